@@ -1,0 +1,42 @@
+# loadwake build, test and demo targets. Everything CI needs is installed from
+# here or from .ci/run; nothing has to be on the machine but Go.
+GO      ?= go
+STORE   ?= demo-out/loadwake.db
+OUT     ?= demo-out
+COUNT   ?= 5
+
+.PHONY: all build test vet fmt demo bench fuzz browser-test clean
+
+all: build
+
+build:
+	$(GO) build -o bin/loadwake ./cmd/loadwake
+
+fmt:
+	gofmt -l -w .
+
+vet:
+	$(GO) vet ./...
+
+test: vet
+	@test -z "$$(gofmt -l .)" || (echo "gofmt needed on:"; gofmt -l .; exit 1)
+	$(GO) test -timeout 30m ./...
+
+# demo runs the whole job end to end on an invented region with an embedded store.
+demo: build
+	./bin/loadwake demo --out $(OUT) --force
+
+# bench runs every benchmark COUNT times; compare medians (benchstat works well).
+bench:
+	$(GO) test -run '^$$' -bench . -benchmem -count $(COUNT) ./...
+
+FUZZTIME ?= 30s
+fuzz:
+	$(GO) test -run '^$$' -fuzz FuzzXMLReader -fuzztime $(FUZZTIME) ./ingest
+	$(GO) test -run '^$$' -fuzz FuzzOsmChangeReader -fuzztime $(FUZZTIME) ./ingest
+
+browser-test:
+	bash .ci/browser-test
+
+clean:
+	rm -rf bin demo-out
