@@ -16,6 +16,10 @@ const (
 	Attribute                   // tag keys added, changed or removed on an existing feature
 	NewFeature                  // first version that carries a feature class
 	Deletion                    // visible=false on a feature
+	// Bookkeeping records versions that touched only provenance keys (source, note,
+	// created_by, import bookkeeping prefixes). It is reported apart and never
+	// counts as attribute work; it is not in Layers.
+	Bookkeeping
 )
 
 // Layers lists every layer in a stable order.
@@ -32,6 +36,8 @@ func (l Layer) String() string {
 		return "new_feature"
 	case Deletion:
 		return "deletion"
+	case Bookkeeping:
+		return "bookkeeping"
 	}
 	return "unknown"
 }
@@ -89,6 +95,19 @@ type KeyTouch struct {
 }
 
 // Event is one classified edit: a version compared with its predecessor.
+//
+// Counting rules every producer and consumer keeps:
+//   - a version yields at most one event per layer; an attribute event lists every
+//     key it touched (attribute keys and, flagged, provenance keys);
+//   - a version that touched only provenance keys yields one Bookkeeping event;
+//   - NewFeature is the first version that carries a class (version 1 or later);
+//     that version yields no Geometry or Attribute event;
+//   - Deletion only for objects that had a class; untagged vertices yield none;
+//   - an untagged way node that moves yields one Geometry event (WayNodeMoved)
+//     with the class of a way holding it at that time; a node with a class that
+//     moves yields Geometry (NodeMoved) with its own class;
+//   - creating an untagged node yields nothing; the way version that takes it in
+//     yields Geometry (WayNodesChanged).
 type Event struct {
 	Layer     Layer
 	Time      time.Time
