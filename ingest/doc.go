@@ -1,0 +1,57 @@
+// Package ingest reads OpenStreetMap history files and keeps every version of
+// every object, with changeset records, in an embedded Badger store.
+//
+// # Readers
+//
+// OpenFile returns a Reader for a PBF (snapshot or history), OSM XML,
+// OsmChange or changeset-metadata file, plain or compressed; Ingest feeds
+// readers into a Store.
+//
+// # Key layout
+//
+// All keys start with one prefix byte. Integers in keys are big-endian so that
+// byte order is numeric order; 64-bit ids have their sign bit flipped
+// (id XOR 1<<63) so that negative ids sort before positive ones.
+//
+//	v type id version   object versions: 'v', type 'n' | 'w' | 'r', id (8 bytes),
+//	                    version (4 bytes). All versions of one object are
+//	                    adjacent, in version order; objects in id order.
+//	c id                changeset records: 'c', id (8 bytes)
+//	m name              metadata: "m schema" (decimal schema version),
+//	                    "m totals" (JSON Stats), "m file/<hex SHA-256>" (JSON
+//	                    FileRecord of a completely ingested file),
+//	                    "m user/<uid, 8 bytes>" (the first user name seen)
+//	d ...               derived data: raw bytes owned by the packages that
+//	                    write them (PutDerived, ScanDerived, DropDerived)
+//
+// # Value encoding
+//
+// Version and changeset values start with an encoding version byte (now 1).
+// Integers are varints (encoding/binary); signed ones are zig-zag coded.
+// Coordinates are degrees times 10^7, rounded (the API's fixed-point scale).
+// Times are whole seconds since the Unix epoch, 0 for none. A string is its
+// byte length as a uvarint, then the bytes. Tags are a uvarint count, then
+// key and value strings in file order.
+//
+//	version value:   enc(1) flags(1: bit 0 visible) timestamp changeset uid user tags body
+//	  node body:     lat lon (zig-zag varints)
+//	  way body:      count, node refs as zig-zag deltas from the previous ref
+//	  relation body: count, then per member: type byte ('n','w','r'),
+//	                 ref as a zig-zag delta from the previous member's ref, role
+//	changeset value: enc(1) flags(1: bit 0 open, bit 1 has bbox) created_at
+//	                 closed_at num_changes(uvarint) uid user
+//	                 [min_lat min_lon max_lat max_lon] tags
+//
+// The block compression of the store (Snappy by default) takes care of the
+// repetition in tag strings and user names.
+//
+// # Writes
+//
+// Ingest writes in transactions of a few thousand entries; each commits
+// atomically with the store's totals, and a file's record only with its last
+// batch. A version key that already holds the same bytes adds nothing; one
+// holding different bytes is a conflict and keeps the stored value. Keys
+// larger than the largest stored key of their type are known to be absent
+// without a lookup, which keeps the ingest of sorted files close to decoding
+// speed.
+package ingest

@@ -1,0 +1,441 @@
+package ingest
+
+import (
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"math"
+	"time"
+
+	"github.com/paulmach/osm"
+)
+
+// Key prefixes of the store (see doc.go for the full layout).
+const (
+	prefixVersion   = 'v'
+	prefixChangeset = 'c'
+	prefixMeta      = 'm'
+	prefixDerived   = 'd'
+)
+
+// Type bytes in version keys.
+const (
+	typeNode     = 'n'
+	typeWay      = 'w'
+	typeRelation = 'r'
+)
+
+// encodingVersion is the first byte of every version and changeset value.
+const encodingVersion = 1
+
+// Lengths of the fixed-size keys.
+const (
+	versionKeyLen   = 1 + 1 + 8 + 4
+	objectPrefixLen = 1 + 1 + 8
+	changesetKeyLen = 1 + 8
+)
+
+// errValue marks a stored value that cannot be decoded.
+var errValue = errors.New("ingest: corrupt stored value")
+
+// typeByte returns the key byte of an OSM element type.
+func typeByte(t osm.Type) (byte, error) {
+	switch t {
+	case osm.TypeNode:
+		return typeNode, nil
+	case osm.TypeWay:
+		return typeWay, nil
+	case osm.TypeRelation:
+		return typeRelation, nil
+	}
+	return 0, fmt.Errorf("ingest: no versions of type %q are stored", t)
+}
+
+// typeOfByte is the inverse of typeByte.
+func typeOfByte(b byte) osm.Type {
+	switch b {
+	case typeNode:
+		return osm.TypeNode
+	case typeWay:
+		return osm.TypeWay
+	case typeRelation:
+		return osm.TypeRelation
+	}
+	return ""
+}
+
+// putID writes id big-endian with the sign bit flipped, so that negative ids
+// (as in unsubmitted edits) sort before positive ones.
+func putID(b []byte, id int64) { binary.BigEndian.PutUint64(b, uint64(id)^(1<<63)) }
+
+// getID is the inverse of putID.
+func getID(b []byte) int64 { return int64(binary.BigEndian.Uint64(b) ^ (1 << 63)) }
+
+// appendVersionKey appends the key v|type|id|version to dst.
+func appendVersionKey(dst []byte, tb byte, id int64, version int) []byte {
+	var k [versionKeyLen]byte
+	k[0] = prefixVersion
+	k[1] = tb
+	putID(k[2:10], id)
+	binary.BigEndian.PutUint32(k[10:14], uint32(version))
+	return append(dst, k[:]...)
+}
+
+// objectPrefix returns v|type|id, the prefix of all versions of one object.
+func objectPrefix(tb byte, id int64) []byte {
+	k := make([]byte, objectPrefixLen)
+	k[0] = prefixVersion
+	k[1] = tb
+	putID(k[2:10], id)
+	return k
+}
+
+// changesetKey returns c|id.
+func changesetKey(id int64) []byte {
+	k := make([]byte, changesetKeyLen)
+	k[0] = prefixChangeset
+	putID(k[1:], id)
+	return k
+}
+
+// metaKey returns m|name.
+func metaKey(name string) []byte { return append([]byte{prefixMeta}, name...) }
+
+// parseVersionKey splits a version key; ok is false when k is not one.
+func parseVersionKey(k []byte) (tb byte, id int64, version int, ok bool) {
+	if len(k) != versionKeyLen || k[0] != prefixVersion {
+		return 0, 0, 0, false
+	}
+	return k[1], getID(k[2:10]), int(binary.BigEndian.Uint32(k[10:14])), true
+}
+
+// coordinate conversion: OSM stores coordinates with 7 decimals (common practice,
+// the API's fixed-point scale), so a float64 degree value is kept as round(deg*1e7).
+const coordScale = 1e7
+
+func toFixed(deg float64) int64               { return int64(math.Round(deg * coordScale)) }
+func fromFixed(v int64) float64               { return float64(v) / coordScale }
+func zig(v int64) uint64                      { return uint64(v<<1) ^ uint64(v>>63) }
+func unzig(u uint64) int64                    { return int64(u>>1) ^ -int64(u&1) }
+func appendUvarint(b []byte, v uint64) []byte { return binary.AppendUvarint(b, v) }
+func appendVarint(b []byte, v int64) []byte   { return binary.AppendUvarint(b, zig(v)) }
+
+func appendString(b []byte, s string) []byte {
+	b = binary.AppendUvarint(b, uint64(len(s)))
+	return append(b, s...)
+}
+
+func appendTags(b []byte, tags osm.Tags) []byte {
+	b = binary.AppendUvarint(b, uint64(len(tags)))
+	for _, t := range tags {
+		b = appendString(b, t.Key)
+		b = appendString(b, t.Value)
+	}
+	return b
+}
+
+// timestamps are whole seconds since the Unix epoch, zero for the zero time.
+func unixOrZero(t time.Time) int64 {
+	if t.IsZero() {
+		return 0
+	}
+	return t.Unix()
+}
+
+func timeOrZero(s int64) time.Time {
+	if s == 0 {
+		return time.Time{}
+	}
+	return time.Unix(s, 0).UTC()
+}
+
+// Flags in the second byte of a version value.
+const (
+	flagVisible = 1 << 0
+)
+
+// appendVersionValue appends the encoding of one object version to dst.
+// The layout is documented in doc.go.
+func appendVersionValue(dst []byte, o osm.Object) ([]byte, error) {
+	var (
+		visible bool
+		ts      time.Time
+		cs      osm.ChangesetID
+		uid     osm.UserID
+		user    string
+		tags    osm.Tags
+	)
+	switch o := o.(type) {
+	case *osm.Node:
+		visible, ts, cs, uid, user, tags = o.Visible, o.Timestamp, o.ChangesetID, o.UserID, o.User, o.Tags
+	case *osm.Way:
+		visible, ts, cs, uid, user, tags = o.Visible, o.Timestamp, o.ChangesetID, o.UserID, o.User, o.Tags
+	case *osm.Relation:
+		visible, ts, cs, uid, user, tags = o.Visible, o.Timestamp, o.ChangesetID, o.UserID, o.User, o.Tags
+	default:
+		return dst, fmt.Errorf("ingest: cannot store %T", o)
+	}
+	var flags byte
+	if visible {
+		flags |= flagVisible
+	}
+	dst = append(dst, encodingVersion, flags)
+	dst = appendVarint(dst, unixOrZero(ts))
+	dst = appendVarint(dst, int64(cs))
+	dst = appendVarint(dst, int64(uid))
+	dst = appendString(dst, user)
+	dst = appendTags(dst, tags)
+	switch o := o.(type) {
+	case *osm.Node:
+		dst = appendVarint(dst, toFixed(o.Lat))
+		dst = appendVarint(dst, toFixed(o.Lon))
+	case *osm.Way:
+		dst = appendUvarint(dst, uint64(len(o.Nodes)))
+		var prev int64
+		for _, n := range o.Nodes {
+			dst = appendVarint(dst, int64(n.ID)-prev)
+			prev = int64(n.ID)
+		}
+	case *osm.Relation:
+		dst = appendUvarint(dst, uint64(len(o.Members)))
+		var prev int64
+		for _, m := range o.Members {
+			tb, err := typeByte(m.Type)
+			if err != nil {
+				return dst, fmt.Errorf("ingest: relation/%d v%d member: %w", o.ID, o.Version, err)
+			}
+			dst = append(dst, tb)
+			dst = appendVarint(dst, m.Ref-prev)
+			prev = m.Ref
+			dst = appendString(dst, m.Role)
+		}
+	}
+	return dst, nil
+}
+
+// decoder reads the fields of a stored value; the first failure sticks.
+type decoder struct {
+	b   []byte
+	err error
+}
+
+func (d *decoder) fail() {
+	if d.err == nil {
+		d.err = errValue
+	}
+	d.b = nil
+}
+
+func (d *decoder) byte() byte {
+	if len(d.b) < 1 {
+		d.fail()
+		return 0
+	}
+	c := d.b[0]
+	d.b = d.b[1:]
+	return c
+}
+
+func (d *decoder) uvarint() uint64 {
+	v, n := binary.Uvarint(d.b)
+	if n <= 0 {
+		d.fail()
+		return 0
+	}
+	d.b = d.b[n:]
+	return v
+}
+
+func (d *decoder) varint() int64 { return unzig(d.uvarint()) }
+
+// count reads a length and checks it against the bytes left, each element
+// taking at least min bytes, so corrupt data cannot trigger a huge allocation.
+func (d *decoder) count(min int) int {
+	n := d.uvarint()
+	if n > uint64(len(d.b)/min) {
+		d.fail()
+		return 0
+	}
+	return int(n)
+}
+
+func (d *decoder) string() string {
+	n := d.count(1)
+	s := string(d.b[:n])
+	d.b = d.b[n:]
+	return s
+}
+
+func (d *decoder) tags() osm.Tags {
+	n := d.count(2)
+	if n == 0 {
+		return nil
+	}
+	tags := make(osm.Tags, n)
+	for i := range tags {
+		tags[i].Key = d.string()
+		tags[i].Value = d.string()
+	}
+	return tags
+}
+
+// versionHeader holds the fields every version value starts with.
+type versionHeader struct {
+	visible bool
+	ts      time.Time
+	cs      osm.ChangesetID
+	uid     osm.UserID
+	user    string
+}
+
+func (d *decoder) header() versionHeader {
+	if v := d.byte(); v != encodingVersion {
+		if d.err == nil {
+			d.err = fmt.Errorf("%w: encoding version %d, want %d", errValue, v, encodingVersion)
+		}
+		return versionHeader{}
+	}
+	flags := d.byte()
+	return versionHeader{
+		visible: flags&flagVisible != 0,
+		ts:      timeOrZero(d.varint()),
+		cs:      osm.ChangesetID(d.varint()),
+		uid:     osm.UserID(d.varint()),
+		user:    d.string(),
+	}
+}
+
+// decodeVersion rebuilds a freshly allocated object from its key and value.
+func decodeVersion(key, val []byte) (osm.Object, error) {
+	tb, id, version, ok := parseVersionKey(key)
+	if !ok {
+		return nil, fmt.Errorf("%w: bad version key %x", errValue, key)
+	}
+	d := decoder{b: val}
+	h := d.header()
+	tags := d.tags()
+	var o osm.Object
+	switch tb {
+	case typeNode:
+		lat := fromFixed(d.varint())
+		lon := fromFixed(d.varint())
+		o = &osm.Node{ID: osm.NodeID(id), Version: version, Visible: h.visible, Timestamp: h.ts,
+			ChangesetID: h.cs, UserID: h.uid, User: h.user, Tags: tags, Lat: lat, Lon: lon}
+	case typeWay:
+		n := d.count(1)
+		var nodes osm.WayNodes
+		if n > 0 {
+			nodes = make(osm.WayNodes, n)
+			var prev int64
+			for i := range nodes {
+				prev += d.varint()
+				nodes[i].ID = osm.NodeID(prev)
+			}
+		}
+		o = &osm.Way{ID: osm.WayID(id), Version: version, Visible: h.visible, Timestamp: h.ts,
+			ChangesetID: h.cs, UserID: h.uid, User: h.user, Tags: tags, Nodes: nodes}
+	case typeRelation:
+		n := d.count(3)
+		var members osm.Members
+		if n > 0 {
+			members = make(osm.Members, n)
+			var prev int64
+			for i := range members {
+				members[i].Type = typeOfByte(d.byte())
+				prev += d.varint()
+				members[i].Ref = prev
+				members[i].Role = d.string()
+				if members[i].Type == "" {
+					d.fail()
+				}
+			}
+		}
+		o = &osm.Relation{ID: osm.RelationID(id), Version: version, Visible: h.visible, Timestamp: h.ts,
+			ChangesetID: h.cs, UserID: h.uid, User: h.user, Tags: tags, Members: members}
+	default:
+		return nil, fmt.Errorf("%w: unknown type byte %q", errValue, tb)
+	}
+	if d.err != nil {
+		return nil, fmt.Errorf("%s/%d v%d: %w", typeOfByte(tb), id, version, d.err)
+	}
+	return o, nil
+}
+
+// decodeNodePosition reads only what NodeAt needs from a node value.
+func decodeNodePosition(val []byte) (ts time.Time, visible bool, lat, lon float64, err error) {
+	d := decoder{b: val}
+	h := d.header()
+	// skip the tags
+	n := d.count(2)
+	for range 2 * n {
+		m := d.count(1)
+		d.b = d.b[m:]
+	}
+	lat = fromFixed(d.varint())
+	lon = fromFixed(d.varint())
+	return h.ts, h.visible, lat, lon, d.err
+}
+
+// Flags in the second byte of a changeset value.
+const (
+	flagOpen    = 1 << 0
+	flagHasBBox = 1 << 1
+)
+
+// appendChangesetValue appends the encoding of a changeset record to dst.
+func appendChangesetValue(dst []byte, c *osm.Changeset) []byte {
+	var flags byte
+	if c.Open {
+		flags |= flagOpen
+	}
+	hasBBox := c.MinLat != 0 || c.MaxLat != 0 || c.MinLon != 0 || c.MaxLon != 0
+	if hasBBox {
+		flags |= flagHasBBox
+	}
+	dst = append(dst, encodingVersion, flags)
+	dst = appendVarint(dst, unixOrZero(c.CreatedAt))
+	dst = appendVarint(dst, unixOrZero(c.ClosedAt))
+	dst = appendUvarint(dst, uint64(max(c.ChangesCount, 0)))
+	dst = appendVarint(dst, int64(c.UserID))
+	dst = appendString(dst, c.User)
+	if hasBBox {
+		dst = appendVarint(dst, toFixed(c.MinLat))
+		dst = appendVarint(dst, toFixed(c.MinLon))
+		dst = appendVarint(dst, toFixed(c.MaxLat))
+		dst = appendVarint(dst, toFixed(c.MaxLon))
+	}
+	return appendTags(dst, c.Tags)
+}
+
+// decodeChangeset rebuilds a freshly allocated changeset from key and value.
+func decodeChangeset(key, val []byte) (*osm.Changeset, error) {
+	if len(key) != changesetKeyLen || key[0] != prefixChangeset {
+		return nil, fmt.Errorf("%w: bad changeset key %x", errValue, key)
+	}
+	id := getID(key[1:])
+	d := decoder{b: val}
+	if v := d.byte(); v != encodingVersion {
+		return nil, fmt.Errorf("changeset/%d: %w: encoding version %d", id, errValue, v)
+	}
+	flags := d.byte()
+	c := &osm.Changeset{
+		ID:           osm.ChangesetID(id),
+		Open:         flags&flagOpen != 0,
+		CreatedAt:    timeOrZero(d.varint()),
+		ClosedAt:     timeOrZero(d.varint()),
+		ChangesCount: int(d.uvarint()),
+		UserID:       osm.UserID(d.varint()),
+		User:         d.string(),
+	}
+	if flags&flagHasBBox != 0 {
+		c.MinLat = fromFixed(d.varint())
+		c.MinLon = fromFixed(d.varint())
+		c.MaxLat = fromFixed(d.varint())
+		c.MaxLon = fromFixed(d.varint())
+	}
+	c.Tags = d.tags()
+	if d.err != nil {
+		return nil, fmt.Errorf("changeset/%d: %w", id, d.err)
+	}
+	return c, nil
+}

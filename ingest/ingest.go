@@ -1,0 +1,587 @@
+package ingest
+
+import (
+	"bytes"
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"time"
+
+	"github.com/dgraph-io/badger/v4"
+	"github.com/paulmach/orb"
+	"github.com/paulmach/osm"
+)
+
+// Defaults of IngestOptions.
+const (
+	DefaultBatchEntries        = 8192
+	DefaultBatchBytes          = 2 << 20
+	DefaultMaxConflictExamples = 10
+)
+
+// IngestOptions tune Ingest. The zero value is ready to use.
+type IngestOptions struct {
+	// Open returns a Reader for one path; nil means OpenFile with ReadOptions.
+	Open func(ctx context.Context, path string) (Reader, error)
+	// ReadOptions are passed to OpenFile when Open is nil.
+	ReadOptions ReadOptions
+	// BatchEntries and BatchBytes bound one write transaction (and with it the
+	// memory an ingest holds): a batch is committed when either is reached.
+	BatchEntries int
+	BatchBytes   int
+	// MaxConflictExamples is how many conflicts the Report describes.
+	MaxConflictExamples int
+	// Progress hears about each file; nil means silent.
+	Progress Progress
+}
+
+func (o IngestOptions) withDefaults() IngestOptions {
+	if o.Open == nil {
+		ro := o.ReadOptions
+		o.Open = func(ctx context.Context, path string) (Reader, error) { return OpenFile(ctx, path, ro) }
+	}
+	if o.BatchEntries <= 0 {
+		o.BatchEntries = DefaultBatchEntries
+	}
+	if o.BatchBytes <= 0 {
+		o.BatchBytes = DefaultBatchBytes
+	}
+	if o.MaxConflictExamples == 0 {
+		o.MaxConflictExamples = DefaultMaxConflictExamples
+	}
+	if o.Progress == nil {
+		o.Progress = NopProgress{}
+	}
+	return o
+}
+
+// Conflict describes a version or changeset that was already stored with
+// different content. The stored one is kept.
+type Conflict struct {
+	File   string
+	Pos    Position
+	Object string // "way/42 v3" or "changeset/17"
+}
+
+func (c Conflict) String() string {
+	return fmt.Sprintf("%s: %s: %s already stored with different content; kept the stored one", c.File, c.Pos, c.Object)
+}
+
+// FileReport is the outcome for one file of an Ingest call.
+type FileReport struct {
+	FileRecord
+	Skipped bool          // already ingested completely (same SHA-256); nothing read
+	Elapsed time.Duration // time spent on the file
+	Err     error         // why the file was abandoned; nil when it completed
+}
+
+// Report is the outcome of an Ingest call.
+type Report struct {
+	Files     []FileReport
+	Conflicts []Conflict // the first IngestOptions.MaxConflictExamples conflicts
+	Totals    Stats      // the store's totals afterwards
+}
+
+// Sum adds up the per-file counts.
+func (r Report) Sum() FileRecord {
+	var s FileRecord
+	for _, f := range r.Files {
+		s.Size += f.Size
+		s.Items += f.Items
+		s.Versions += f.Versions
+		s.Duplicates += f.Duplicates
+		s.Conflicts += f.Conflicts
+		s.Changesets += f.Changesets
+		s.Updated += f.Updated
+	}
+	return s
+}
+
+// Ingest reads the files at paths, in the order given, into s. Each version is
+// stored under its (type, id, version) key: a version already stored with the
+// same bytes adds nothing, one stored with different bytes is a conflict (the
+// stored one is kept, counted and reported). So files may come in any order, a
+// history file and later OsmChange diffs merge into one history, and a rerun
+// adds nothing. A file whose SHA-256 is recorded as completely ingested is
+// skipped.
+//
+// Writes go out in batches; each batch commits atomically with the store's
+// totals, and a file's record is written only with its last batch. A file the
+// reader cannot parse is abandoned at the error (its FileReport.Err, a
+// *ParseError naming file and position) and the other files are still read;
+// the returned error joins those of all abandoned files. A cancelled ctx stops
+// between batches and returns ctx's error. In every case the store stays
+// consistent, and a rerun after a fix completes without duplicates.
+func Ingest(ctx context.Context, s *Store, paths []string, opts IngestOptions) (Report, error) {
+	opts = opts.withDefaults()
+	s.writeMu.Lock()
+	defer s.writeMu.Unlock()
+
+	w, err := newWriter(s, opts)
+	if err != nil {
+		return Report{}, err
+	}
+	defer w.discard()
+
+	var rep Report
+	var fileErrs []error
+	for _, path := range paths {
+		if err := ctx.Err(); err != nil {
+			return w.finish(rep), err
+		}
+		fr, err := w.file(ctx, path)
+		rep.Files = append(rep.Files, fr)
+		if err != nil {
+			var pe *ParseError
+			if errors.As(err, &pe) {
+				fileErrs = append(fileErrs, err)
+				continue
+			}
+			return w.finish(rep), err
+		}
+	}
+	return w.finish(rep), errors.Join(fileErrs...)
+}
+
+// writer holds the state of one Ingest call.
+type writer struct {
+	s    *Store
+	opts IngestOptions
+
+	txn     *badger.Txn
+	entries int
+	size    int
+	arena   []byte // keys and values of the open transaction
+
+	totals Stats
+	// maxKey[i] is the largest version key of type i (node, way, relation)
+	// stored or pending; a larger key is proven absent without a lookup.
+	maxKey       [3][]byte
+	maxChangeset []byte
+	users        map[osm.UserID]struct{} // uids known to be recorded
+
+	conflicts []Conflict
+	cur       *FileRecord // counts of the file being read
+	committed FileRecord  // cur as of the last commit
+}
+
+func typeIndex(tb byte) int {
+	switch tb {
+	case typeNode:
+		return 0
+	case typeWay:
+		return 1
+	}
+	return 2
+}
+
+func newWriter(s *Store, opts IngestOptions) (*writer, error) {
+	w := &writer{s: s, opts: opts}
+	return w, w.load()
+}
+
+// load reads the totals and key bounds from the store and opens a write
+// transaction, forgetting everything not committed.
+func (w *writer) load() error {
+	w.discard()
+	w.users = make(map[osm.UserID]struct{})
+	w.entries, w.size, w.arena = 0, 0, nil
+	err := w.s.db.View(func(txn *badger.Txn) error {
+		var err error
+		if w.totals, err = readTotals(txn); err != nil {
+			return err
+		}
+		for i, tb := range []byte{typeNode, typeWay, typeRelation} {
+			w.maxKey[i] = lastKey(txn, []byte{prefixVersion, tb})
+		}
+		w.maxChangeset = lastKey(txn, []byte{prefixChangeset})
+		return nil
+	})
+	if err != nil {
+		return fmt.Errorf("%s: %w", w.s.name(), err)
+	}
+	w.txn = w.s.db.NewTransaction(true)
+	return nil
+}
+
+// lastKey returns a copy of the largest key with the given prefix, or nil.
+func lastKey(txn *badger.Txn, prefix []byte) []byte {
+	opt := badger.IteratorOptions{Reverse: true, Prefix: prefix}
+	it := txn.NewIterator(opt)
+	defer it.Close()
+	// In reverse, Seek finds the largest key <= its argument.
+	it.Seek(append(bytes.Clone(prefix), 0xff, 0xff, 0xff, 0xff, 0xff, 0xff, 0xff, 0xff, 0xff, 0xff, 0xff, 0xff, 0xff))
+	if !it.Valid() {
+		return nil
+	}
+	return it.Item().KeyCopy(nil)
+}
+
+func (w *writer) discard() {
+	if w.txn != nil {
+		w.txn.Discard()
+		w.txn = nil
+	}
+}
+
+func (w *writer) finish(rep Report) Report {
+	rep.Conflicts = w.conflicts
+	rep.Totals = w.totals
+	return rep
+}
+
+// alloc returns n bytes from the arena; earlier allocations stay valid.
+func (w *writer) alloc(n int) []byte {
+	if cap(w.arena)-len(w.arena) < n {
+		w.arena = make([]byte, 0, max(n, 1<<20))
+	}
+	b := w.arena[len(w.arena) : len(w.arena)+n : len(w.arena)+n]
+	w.arena = w.arena[:len(w.arena)+n]
+	return b
+}
+
+// set adds one entry to the open transaction, committing first when the
+// transaction is full.
+func (w *writer) set(key, val []byte) error {
+	err := w.txn.Set(key, val)
+	if errors.Is(err, badger.ErrTxnTooBig) {
+		if err := w.commit(nil); err != nil {
+			return err
+		}
+		err = w.txn.Set(key, val)
+	}
+	if err != nil {
+		return fmt.Errorf("%s: write: %w", w.s.name(), err)
+	}
+	w.entries++
+	w.size += len(key) + len(val)
+	return nil
+}
+
+// commit writes the totals (and the file record, when given) into the open
+// transaction, commits it and opens the next one.
+func (w *writer) commit(file *FileRecord) error {
+	tot, err := json.Marshal(w.totals)
+	if err != nil {
+		return err
+	}
+	if err := w.txn.Set(metaKey(metaTotals), tot); err != nil {
+		return fmt.Errorf("%s: write totals: %w", w.s.name(), err)
+	}
+	if file != nil {
+		rec, err := json.Marshal(file)
+		if err != nil {
+			return err
+		}
+		if err := w.txn.Set(metaKey(metaFilePrefix+file.SHA256), rec); err != nil {
+			return fmt.Errorf("%s: write file record: %w", w.s.name(), err)
+		}
+	}
+	if err := w.txn.Commit(); err != nil {
+		return fmt.Errorf("%s: commit: %w", w.s.name(), err)
+	}
+	w.txn = w.s.db.NewTransaction(true)
+	w.entries, w.size = 0, 0
+	w.arena = nil
+	if w.cur != nil {
+		w.committed = *w.cur
+	}
+	return nil
+}
+
+// get returns a copy of the stored or pending value under key.
+func (w *writer) get(key []byte) ([]byte, bool, error) {
+	item, err := w.txn.Get(key)
+	if errors.Is(err, badger.ErrKeyNotFound) {
+		return nil, false, nil
+	}
+	if err != nil {
+		return nil, false, fmt.Errorf("%s: read: %w", w.s.name(), err)
+	}
+	v, err := item.ValueCopy(nil)
+	return v, true, err
+}
+
+// hasPrefix reports whether a stored or pending key starts with prefix.
+func (w *writer) hasPrefix(prefix []byte) bool {
+	opt := badger.IteratorOptions{Prefix: prefix}
+	it := w.txn.NewIterator(opt)
+	defer it.Close()
+	it.Seek(prefix)
+	return it.Valid()
+}
+
+// hashFile returns the size and hex SHA-256 of the file at path.
+func hashFile(path string) (int64, string, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return 0, "", fmt.Errorf("ingest: %w", err)
+	}
+	defer f.Close()
+	h := sha256.New()
+	n, err := io.Copy(h, f)
+	if err != nil {
+		return 0, "", fmt.Errorf("ingest: read %s: %w", path, err)
+	}
+	return n, hex.EncodeToString(h.Sum(nil)), nil
+}
+
+// file ingests one file.
+func (w *writer) file(ctx context.Context, path string) (FileReport, error) {
+	start := time.Now()
+	fr := FileReport{FileRecord: FileRecord{Path: path}}
+	size, sum, err := hashFile(path)
+	if err != nil {
+		fr.Err = err
+		return fr, err
+	}
+	fr.Size, fr.SHA256 = size, sum
+	if _, done, err := w.get(metaKey(metaFilePrefix + sum)); err != nil {
+		return fr, err
+	} else if done {
+		fr.Skipped = true
+		return fr, nil
+	}
+
+	r, err := w.opts.Open(ctx, path)
+	if err != nil {
+		fr.Err = err
+		return fr, err
+	}
+	defer r.Close()
+	fr.Format = r.Format().String()
+	w.opts.Progress.Start(path, size)
+	defer w.opts.Progress.Finish()
+
+	w.committed = fr.FileRecord
+	w.cur = &fr.FileRecord
+	err = w.read(ctx, r, &fr.FileRecord)
+	if err == nil {
+		err = ctx.Err()
+	}
+	if err != nil {
+		// Drop the uncommitted batch; the committed ones are consistent.
+		fr.FileRecord = w.committed
+		if lerr := w.load(); lerr != nil {
+			return fr, lerr
+		}
+		if !errors.As(err, new(*ParseError)) && !errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
+			err = fmt.Errorf("ingest %s: %w", path, err)
+		}
+		fr.Err = err
+		fr.Elapsed = time.Since(start)
+		return fr, err
+	}
+	fr.Completed = time.Now().UTC()
+	if err := w.commit(&fr.FileRecord); err != nil {
+		fr.Err = err
+		return fr, err
+	}
+	w.opts.Progress.Update(r.BytesRead(), fr.Items)
+	fr.Elapsed = time.Since(start)
+	return fr, nil
+}
+
+// read stores the items of r, committing full batches.
+func (w *writer) read(ctx context.Context, r Reader, fr *FileRecord) error {
+	for r.Scan() {
+		it := r.Item()
+		fr.Items++
+		var err error
+		switch {
+		case it.Object != nil:
+			err = w.version(it, fr)
+		case it.Changeset != nil:
+			err = w.changeset(it, fr)
+		}
+		if err != nil {
+			return err
+		}
+		if w.entries >= w.opts.BatchEntries || w.size >= w.opts.BatchBytes {
+			if err := ctx.Err(); err != nil {
+				return err
+			}
+			if err := w.commit(nil); err != nil {
+				return err
+			}
+			w.opts.Progress.Update(r.BytesRead(), fr.Items)
+		}
+	}
+	return r.Err()
+}
+
+// version stores one object version.
+func (w *writer) version(it Item, fr *FileRecord) error {
+	var (
+		tb      byte
+		id      int64
+		ver     int
+		visible bool
+		ts      time.Time
+		uid     osm.UserID
+		user    string
+	)
+	switch o := it.Object.(type) {
+	case *osm.Node:
+		tb, id, ver, visible, ts, uid, user = typeNode, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
+	case *osm.Way:
+		tb, id, ver, visible, ts, uid, user = typeWay, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
+	case *osm.Relation:
+		tb, id, ver, visible, ts, uid, user = typeRelation, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
+	default:
+		return fmt.Errorf("ingest: %s: %s: unexpected object %T", fr.Path, it.Pos, it.Object)
+	}
+	key := appendVersionKey(w.alloc(versionKeyLen)[:0], tb, id, ver)
+	mark := len(w.arena)
+	buf, err := appendVersionValue(w.arena, it.Object)
+	if err != nil {
+		return fmt.Errorf("%s: %s: %w", fr.Path, it.Pos, err)
+	}
+	val := buf[mark:len(buf):len(buf)]
+	if cap(buf) == cap(w.arena) {
+		w.arena = buf
+	} else {
+		w.arena = nil // the value moved to an array of its own
+	}
+
+	ti := typeIndex(tb)
+	newObject := false
+	if maxk := w.maxKey[ti]; maxk == nil || bytes.Compare(key, maxk) > 0 {
+		// Larger than every key of the type: absent, and a new object
+		// unless the largest key belongs to the same id.
+		newObject = maxk == nil || !bytes.Equal(key[:objectPrefixLen], maxk[:objectPrefixLen])
+		w.maxKey[ti] = key
+	} else {
+		old, found, err := w.get(key)
+		if err != nil {
+			return err
+		}
+		if found {
+			if bytes.Equal(old, val) {
+				fr.Duplicates++
+			} else {
+				w.conflict(fr, it.Pos, fmt.Sprintf("%s/%d v%d", typeOfByte(tb), id, ver))
+			}
+			return nil
+		}
+		newObject = !w.hasPrefix(key[:objectPrefixLen])
+	}
+	if err := w.set(key, val); err != nil {
+		return err
+	}
+	fr.Versions++
+	t := &w.totals
+	switch tb {
+	case typeNode:
+		t.NodeVersions++
+		if newObject {
+			t.Nodes++
+		}
+		if visible {
+			n := it.Object.(*osm.Node)
+			p := orb.Point{n.Lon, n.Lat}
+			if t.HasBBox {
+				t.BBox = t.BBox.Extend(p)
+			} else {
+				t.BBox, t.HasBBox = orb.Bound{Min: p, Max: p}, true
+			}
+		}
+	case typeWay:
+		t.WayVersions++
+		if newObject {
+			t.Ways++
+		}
+	default:
+		t.RelationVersions++
+		if newObject {
+			t.Relations++
+		}
+	}
+	if !visible {
+		t.DeletedVersions++
+	}
+	if !ts.IsZero() {
+		ts = ts.UTC()
+		if t.FirstEdit.IsZero() || ts.Before(t.FirstEdit) {
+			t.FirstEdit = ts
+		}
+		if ts.After(t.LastEdit) {
+			t.LastEdit = ts
+		}
+	}
+	return w.user(uid, user)
+}
+
+// user records a uid the first time it is seen.
+func (w *writer) user(uid osm.UserID, name string) error {
+	if uid == 0 {
+		return nil
+	}
+	if _, ok := w.users[uid]; ok {
+		return nil
+	}
+	key := make([]byte, 1+len(metaUserPrefix)+8)
+	copy(key, metaKey(metaUserPrefix))
+	putID(key[1+len(metaUserPrefix):], int64(uid))
+	_, found, err := w.get(key)
+	if err != nil {
+		return err
+	}
+	if !found {
+		if err := w.set(key, []byte(name)); err != nil {
+			return err
+		}
+		w.totals.Users++
+	}
+	w.users[uid] = struct{}{}
+	return nil
+}
+
+// changeset stores one changeset record. A stored open record is replaced
+// by a closed one (a later dump completes it); other differences are
+// conflicts.
+func (w *writer) changeset(it Item, fr *FileRecord) error {
+	c := it.Changeset
+	key := changesetKey(int64(c.ID))
+	val := appendChangesetValue(nil, c)
+	if w.maxChangeset == nil || bytes.Compare(key, w.maxChangeset) > 0 {
+		w.maxChangeset = key
+	} else {
+		old, found, err := w.get(key)
+		if err != nil {
+			return err
+		}
+		if found {
+			switch {
+			case bytes.Equal(old, val):
+				fr.Duplicates++
+			case len(old) > 1 && old[1]&flagOpen != 0 && !c.Open:
+				if err := w.set(key, val); err != nil {
+					return err
+				}
+				fr.Updated++
+			default:
+				w.conflict(fr, it.Pos, fmt.Sprintf("changeset/%d", c.ID))
+			}
+			return nil
+		}
+	}
+	if err := w.set(key, val); err != nil {
+		return err
+	}
+	fr.Changesets++
+	w.totals.Changesets++
+	return w.user(c.UserID, c.User)
+}
+
+func (w *writer) conflict(fr *FileRecord, pos Position, object string) {
+	fr.Conflicts++
+	if len(w.conflicts) < w.opts.MaxConflictExamples {
+		w.conflicts = append(w.conflicts, Conflict{File: fr.Path, Pos: pos, Object: object})
+	}
+}
