@@ -63,7 +63,7 @@ func (l lalonde) design(tb testing.TB, cols []string, keep func(treat float64) b
 	return mat.NewDense(len(ids), len(cols), data), ids
 }
 
-func all(float64) bool        { return true }
+func all(float64) bool         { return true }
 func isTreated(t float64) bool { return t == 1 }
 func isControl(t float64) bool { return t == 0 }
 
