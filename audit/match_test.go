@@ -21,7 +21,7 @@ type lalonde struct {
 
 func loadLalonde(tb testing.TB) lalonde {
 	tb.Helper()
-	ref := loadRefTable(tb, "lalonde.csv")
+	ref := loadRRef(tb, "lalonde.csv")
 	if len(ref.rows) != 614 {
 		tb.Fatalf("lalonde.csv has %d rows, want 614", len(ref.rows))
 	}
@@ -63,9 +63,9 @@ func (l lalonde) design(tb testing.TB, cols []string, keep func(treat float64) b
 	return mat.NewDense(len(ids), len(cols), data), ids
 }
 
-func all(float64) bool         { return true }
-func isTreated(t float64) bool { return t == 1 }
-func isControl(t float64) bool { return t == 0 }
+func lalondeAll(float64) bool       { return true }
+func lalondeTreated(t float64) bool { return t == 1 }
+func lalondeControl(t float64) bool { return t == 0 }
 
 // Source: R 4.2.2 glm(treat ~ age + educ + race + married + nodegree + re74 +
 // re75, family = binomial, data = lalonde) from MatchIt 4.5.1, coefficients and
@@ -75,7 +75,7 @@ func isControl(t float64) bool { return t == 0 }
 func TestFitLogitLalondeAgainstR(t *testing.T) {
 	l := loadLalonde(t)
 	cols := []string{"age", "educ", "race=hispan", "race=white", "married", "nodegree", "re74", "re75"}
-	x, _ := l.design(t, cols, all)
+	x, _ := l.design(t, cols, lalondeAll)
 	fit, err := FitLogit(x, l.treat, LogitOptions{})
 	if err != nil {
 		t.Fatal(err)
@@ -83,7 +83,7 @@ func TestFitLogitLalondeAgainstR(t *testing.T) {
 	if !fit.Converged || fit.Separation {
 		t.Fatalf("converged %v separation %v status %v", fit.Converged, fit.Separation, fit.Status)
 	}
-	ref := loadRefTable(t, "lalonde_glm.csv")
+	ref := loadRRef(t, "lalonde_glm.csv")
 	if len(ref.rows) != len(fit.Coef) {
 		t.Fatalf("R has %d terms, fit %d", len(ref.rows), len(fit.Coef))
 	}
@@ -96,7 +96,7 @@ func TestFitLogitLalondeAgainstR(t *testing.T) {
 			t.Errorf("%s: SE %.10g, R glm %.10g", ref.rows[i]["term"], fit.SE[i], se)
 		}
 	}
-	if !closeTo(fit.LogLik, -243.9219657, 1e-6) {
+	if !nearAbs(fit.LogLik, -243.9219657, 1e-6) {
 		t.Errorf("log-likelihood %.10f, R logLik -243.9219657", fit.LogLik)
 	}
 }
@@ -136,8 +136,8 @@ func TestFitLogitBadInput(t *testing.T) {
 func TestMatchNearestLalondeAgainstMatchIt(t *testing.T) {
 	l := loadLalonde(t)
 	cols := []string{"age", "educ", "re74", "re75"}
-	xt, tids := l.design(t, cols, isTreated)
-	xc, cids := l.design(t, cols, isControl)
+	xt, tids := l.design(t, cols, lalondeTreated)
+	xc, cids := l.design(t, cols, lalondeControl)
 	m, err := MatchNearest(xt, xc, MatchOptions{K: 1})
 	if err != nil {
 		t.Fatal(err)
@@ -147,7 +147,7 @@ func TestMatchNearestLalondeAgainstMatchIt(t *testing.T) {
 	}
 	// The pooled within-group covariance agrees with MatchIt:::pooled_cov.
 	cov := pooledCovariance(xt, xc)
-	covRef := loadRefTable(t, "lalonde_cov.csv")
+	covRef := loadRRef(t, "lalonde_cov.csv")
 	for i := range 4 {
 		for j, c := range cols {
 			if want := covRef.num(t, i, c); math.Abs(cov.At(i, j)-want) > 1e-9*math.Abs(want) {
@@ -155,7 +155,7 @@ func TestMatchNearestLalondeAgainstMatchIt(t *testing.T) {
 			}
 		}
 	}
-	ref := loadRefTable(t, "lalonde_match.csv")
+	ref := loadRRef(t, "lalonde_match.csv")
 	if len(ref.rows) != len(tids) {
 		t.Fatalf("R matched %d treated, we have %d", len(ref.rows), len(tids))
 	}
@@ -186,7 +186,7 @@ func TestMatchNearestLalondeAgainstMatchIt(t *testing.T) {
 	if used != 101 || sum != 185 {
 		t.Fatalf("%d controls used with weight sum %v; MatchIt reports 101 matched controls, 185 treated", used, sum)
 	}
-	wref := loadRefTable(t, "lalonde_weights.csv")
+	wref := loadRRef(t, "lalonde_weights.csv")
 	wByID := map[string]float64{}
 	for i, r := range wref.rows {
 		wByID[r["id"]] = wref.num(t, i, "weight")
@@ -204,7 +204,7 @@ func TestMatchNearestLalondeAgainstMatchIt(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	bref := loadRefTable(t, "lalonde_balance.csv")
+	bref := loadRRef(t, "lalonde_balance.csv")
 	for i, b := range bal {
 		if bref.rows[i]["covariate"] != b.Name {
 			t.Fatalf("row %d: %s vs R %s", i, b.Name, bref.rows[i]["covariate"])
@@ -239,8 +239,8 @@ func TestMatchNearestLalondeAgainstMatchIt(t *testing.T) {
 func TestMatchCaliperDrops(t *testing.T) {
 	l := loadLalonde(t)
 	cols := []string{"age", "educ", "re74", "re75"}
-	xt, _ := l.design(t, cols, isTreated)
-	xc, _ := l.design(t, cols, isControl)
+	xt, _ := l.design(t, cols, lalondeTreated)
+	xc, _ := l.design(t, cols, lalondeControl)
 	free, err := MatchNearest(xt, xc, MatchOptions{K: 3})
 	if err != nil {
 		t.Fatal(err)
@@ -280,7 +280,7 @@ func TestMatchCaliperDrops(t *testing.T) {
 	for _, w := range m.ControlWeights {
 		sum += w
 	}
-	if !closeTo(sum, float64(len(free.Matches)-len(want)), 1e-9) {
+	if !nearAbs(sum, float64(len(free.Matches)-len(want)), 1e-9) {
 		t.Errorf("control weights sum to %v, want the %d kept treated", sum, len(free.Matches)-len(want))
 	}
 	// In SD units the caliper is PairSD times the number given.
@@ -288,7 +288,7 @@ func TestMatchCaliperDrops(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !closeTo(sd.Caliper, 0.05*sd.PairSD, 1e-12) || sd.PairSD <= 0 {
+	if !nearAbs(sd.Caliper, 0.05*sd.PairSD, 1e-12) || sd.PairSD <= 0 {
 		t.Errorf("SD caliper %v with pair SD %v", sd.Caliper, sd.PairSD)
 	}
 }
@@ -299,8 +299,8 @@ func TestMatchCaliperDrops(t *testing.T) {
 // checked against MatchIt's distances via the 4-covariate run.
 func TestMatchSingularCovariance(t *testing.T) {
 	l := loadLalonde(t)
-	xt, _ := l.design(t, []string{"age", "educ", "re74", "re75", "age"}, isTreated)
-	xc, _ := l.design(t, []string{"age", "educ", "re74", "re75", "age"}, isControl)
+	xt, _ := l.design(t, []string{"age", "educ", "re74", "re75", "age"}, lalondeTreated)
+	xc, _ := l.design(t, []string{"age", "educ", "re74", "re75", "age"}, lalondeControl)
 	// x − y lies in the range of the singular S (both age columns move
 	// together), where S⁺ acts as the inverse of the 4-covariate matrix, so the
 	// distances equal MatchIt's 4-covariate ones.
@@ -311,7 +311,7 @@ func TestMatchSingularCovariance(t *testing.T) {
 	if m5.Rank != 4 {
 		t.Fatalf("rank %d, want 4", m5.Rank)
 	}
-	ref := loadRefTable(t, "lalonde_match.csv")
+	ref := loadRRef(t, "lalonde_match.csv")
 	for i := range ref.rows {
 		if want := ref.num(t, i, "dist"); math.Abs(m5.Matches[i][0].Distance-want) > 1e-6 {
 			t.Errorf("treated %d: distance %.9g with singular covariance, MatchIt (4 covariates) %.9g", i, m5.Matches[i][0].Distance, want)
@@ -352,13 +352,13 @@ func TestMatchBadInput(t *testing.T) {
 func TestPropensityMatchLalonde(t *testing.T) {
 	l := loadLalonde(t)
 	cols := []string{"age", "educ", "race=hispan", "race=white", "married", "nodegree", "re74", "re75"}
-	x, _ := l.design(t, cols, all)
+	x, _ := l.design(t, cols, lalondeAll)
 	fit, err := FitLogit(x, l.treat, LogitOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
-	xt, _ := l.design(t, cols, isTreated)
-	xc, _ := l.design(t, cols, isControl)
+	xt, _ := l.design(t, cols, lalondeTreated)
+	xc, _ := l.design(t, cols, lalondeControl)
 	m, err := MatchOnLogit(fit, xt, xc, MatchOptions{K: 1, Caliper: 0.2})
 	if err != nil {
 		t.Fatal(err)
@@ -369,7 +369,7 @@ func TestPropensityMatchLalonde(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	ref := loadRefTable(t, "lalonde_glm.csv")
+	ref := loadRRef(t, "lalonde_glm.csv")
 	for i := range ref.rows {
 		if est := ref.num(t, i, "estimate"); math.Abs(pm.Propensity.Coef[i]-est) > 1e-4*math.Abs(est) {
 			t.Errorf("%s: PropensityMatch coefficient %.10g, R glm %.10g", ref.rows[i]["term"], pm.Propensity.Coef[i], est)

@@ -10,15 +10,15 @@ import (
 	"testing"
 )
 
-// refTable is a CSV reference file from testdata, its rows keyed by header name.
-type refTable struct {
+// rRefTable is a CSV reference file from testdata, its rows keyed by header name.
+type rRefTable struct {
 	name string
 	rows []map[string]string
 }
 
-// loadRefTable reads testdata/name, a CSV with a header row, written by one of
+// loadRRef reads testdata/name, a CSV with a header row, written by one of
 // the committed scripts in testdata/R.
-func loadRefTable(tb testing.TB, name string) refTable {
+func loadRRef(tb testing.TB, name string) rRefTable {
 	tb.Helper()
 	f, err := os.Open(filepath.Join("testdata", name))
 	if err != nil {
@@ -32,7 +32,7 @@ func loadRefTable(tb testing.TB, name string) refTable {
 	if len(recs) < 2 {
 		tb.Fatalf("%s: no data rows", name)
 	}
-	t := refTable{name: name}
+	t := rRefTable{name: name}
 	for _, r := range recs[1:] {
 		row := make(map[string]string, len(r))
 		for j, h := range recs[0] {
@@ -44,7 +44,7 @@ func loadRefTable(tb testing.TB, name string) refTable {
 }
 
 // num parses column col of row i as a float.
-func (t refTable) num(tb testing.TB, i int, col string) float64 {
+func (t rRefTable) num(tb testing.TB, i int, col string) float64 {
 	tb.Helper()
 	s, ok := t.rows[i][col]
 	if !ok {
@@ -58,12 +58,12 @@ func (t refTable) num(tb testing.TB, i int, col string) float64 {
 }
 
 // int parses column col of row i as an integer.
-func (t refTable) int(tb testing.TB, i int, col string) int {
+func (t rRefTable) int(tb testing.TB, i int, col string) int {
 	tb.Helper()
 	return int(t.num(tb, i, col))
 }
 
-func closeTo(got, want, tol float64) bool {
+func nearAbs(got, want, tol float64) bool {
 	return math.Abs(got-want) <= tol
 }
 
@@ -71,7 +71,7 @@ func closeTo(got, want, tol float64) bool {
 // one-sample interval is the Wilson score interval; values written by
 // testdata/R/props_reference.R into testdata/props_wilson.csv.
 func TestWilsonAgainstR(t *testing.T) {
-	ref := loadRefTable(t, "props_wilson.csv")
+	ref := loadRRef(t, "props_wilson.csv")
 	for i := range ref.rows {
 		x, n, level := ref.int(t, i, "x"), ref.int(t, i, "n"), ref.num(t, i, "conf")
 		t.Run(strconv.Itoa(x)+"/"+strconv.Itoa(n), func(t *testing.T) {
@@ -80,7 +80,7 @@ func TestWilsonAgainstR(t *testing.T) {
 				t.Fatal(err)
 			}
 			lo, hi := ref.num(t, i, "lower"), ref.num(t, i, "upper")
-			if !closeTo(iv.Lower, lo, 1e-9) || !closeTo(iv.Upper, hi, 1e-9) {
+			if !nearAbs(iv.Lower, lo, 1e-9) || !nearAbs(iv.Upper, hi, 1e-9) {
 				t.Errorf("Wilson(%d, %d, %v) = [%.10f, %.10f], R prop.test gives [%.10f, %.10f]",
 					x, n, level, iv.Lower, iv.Upper, lo, hi)
 			}
@@ -116,7 +116,7 @@ func TestNewcombePublished(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			if !closeTo(iv.Estimate, c.diff, 5e-5) || !closeTo(iv.Lower, c.lo, 5e-5) || !closeTo(iv.Upper, c.hi, 5e-5) {
+			if !nearAbs(iv.Estimate, c.diff, 5e-5) || !nearAbs(iv.Lower, c.lo, 5e-5) || !nearAbs(iv.Upper, c.hi, 5e-5) {
 				t.Errorf("got %.4f [%.4f, %.4f], Newcombe 1998 Table II: %.4f [%.4f, %.4f]",
 					iv.Estimate, iv.Lower, iv.Upper, c.diff, c.lo, c.hi)
 			}
@@ -127,7 +127,7 @@ func TestNewcombePublished(t *testing.T) {
 // Source: testdata/props_newcombe.csv, Newcombe's method 10 formula evaluated in
 // R 4.2.2 on prop.test(correct = FALSE) Wilson limits (testdata/R/props_reference.R).
 func TestNewcombeAgainstR(t *testing.T) {
-	ref := loadRefTable(t, "props_newcombe.csv")
+	ref := loadRRef(t, "props_newcombe.csv")
 	for i := range ref.rows {
 		x1, n1, x2, n2 := ref.int(t, i, "x1"), ref.int(t, i, "n1"), ref.int(t, i, "x2"), ref.int(t, i, "n2")
 		iv, err := NewcombeDiff(x1, n1, x2, n2, 0.95)
@@ -135,7 +135,7 @@ func TestNewcombeAgainstR(t *testing.T) {
 			t.Fatal(err)
 		}
 		d, lo, hi := ref.num(t, i, "diff"), ref.num(t, i, "lower"), ref.num(t, i, "upper")
-		if !closeTo(iv.Estimate, d, 1e-9) || !closeTo(iv.Lower, lo, 1e-9) || !closeTo(iv.Upper, hi, 1e-9) {
+		if !nearAbs(iv.Estimate, d, 1e-9) || !nearAbs(iv.Lower, lo, 1e-9) || !nearAbs(iv.Upper, hi, 1e-9) {
 			t.Errorf("%d/%d - %d/%d: got %.10f [%.10f, %.10f], R: %.10f [%.10f, %.10f]",
 				x1, n1, x2, n2, iv.Estimate, iv.Lower, iv.Upper, d, lo, hi)
 		}
@@ -145,7 +145,7 @@ func TestNewcombeAgainstR(t *testing.T) {
 // Source: R 4.2.2 prop.test(c(x1, x2), c(n1, n2), correct = FALSE): X-squared
 // and p-value, in testdata/props_ztest.csv (testdata/R/props_reference.R).
 func TestTwoProportionZAgainstR(t *testing.T) {
-	ref := loadRefTable(t, "props_ztest.csv")
+	ref := loadRRef(t, "props_ztest.csv")
 	for i := range ref.rows {
 		x1, n1, x2, n2 := ref.int(t, i, "x1"), ref.int(t, i, "n1"), ref.int(t, i, "x2"), ref.int(t, i, "n2")
 		zt, err := TwoProportionZ(x1, n1, x2, n2)
@@ -153,7 +153,7 @@ func TestTwoProportionZAgainstR(t *testing.T) {
 			t.Fatal(err)
 		}
 		chi, p := ref.num(t, i, "statistic"), ref.num(t, i, "p")
-		if !closeTo(zt.Chi2, chi, 1e-8*math.Max(1, chi)) || !closeTo(zt.P, p, 1e-10) {
+		if !nearAbs(zt.Chi2, chi, 1e-8*math.Max(1, chi)) || !nearAbs(zt.P, p, 1e-10) {
 			t.Errorf("%d/%d vs %d/%d: chi2 %.10g p %.10g, R prop.test: %.10g p %.10g",
 				x1, n1, x2, n2, zt.Chi2, zt.P, chi, p)
 		}
@@ -163,7 +163,7 @@ func TestTwoProportionZAgainstR(t *testing.T) {
 // Source: R 4.2.2 p.adjust(p, method = "BH") in testdata/props_bh.csv
 // (testdata/R/props_reference.R); the vector has ties and is unsorted at the tail.
 func TestBHAdjustAgainstR(t *testing.T) {
-	ref := loadRefTable(t, "props_bh.csv")
+	ref := loadRRef(t, "props_bh.csv")
 	p := make([]float64, len(ref.rows))
 	for i := range ref.rows {
 		p[i] = ref.num(t, i, "p")
@@ -173,7 +173,7 @@ func TestBHAdjustAgainstR(t *testing.T) {
 		t.Fatal(err)
 	}
 	for i := range q {
-		if want := ref.num(t, i, "q"); !closeTo(q[i], want, 1e-10) {
+		if want := ref.num(t, i, "q"); !nearAbs(q[i], want, 1e-10) {
 			t.Errorf("q[%d] = %.12g, R p.adjust BH: %.12g", i, q[i], want)
 		}
 	}
