@@ -46,7 +46,8 @@ the community's import guidelines and local review.`,
 	root.SetFlagErrorFunc(func(_ *cobra.Command, err error) error { return usageError{msg: err.Error()} })
 
 	root.AddCommand(
-	// commands: one constructor per file, in the order of the job
+		// commands: one constructor per file, in the order of the job
+		newRulesCommand(g),
 	)
 	return root
 }
