@@ -42,6 +42,11 @@ type Options struct {
 	// BatchSize is how many events (and index entries) are written per batch;
 	// 0 means 4096. Memory use of the pass is bounded by it.
 	BatchSize int
+	// NodeTable is how many node versions the pass keeps in memory (about 24
+	// bytes each) to place ways and relations without a store lookup per
+	// node; 0 means DefaultNodeTable, a negative value none. Nodes beyond it
+	// are looked up in the store.
+	NodeTable int
 	// Progress, when set, is called after each written batch with the object
 	// type being scanned and the versions of that type scanned so far.
 	Progress func(t osm.Type, versions int64)
@@ -153,6 +158,12 @@ func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error
 		},
 	}
 	p.loc = &storeLocator{ctx: ctx, src: src, pass: p}
+	switch {
+	case opts.NodeTable == 0:
+		p.loc.table = newNodeTable(DefaultNodeTable)
+	case opts.NodeTable > 0:
+		p.loc.table = newNodeTable(opts.NodeTable)
+	}
 	for _, t := range scanTypes {
 		if err := p.scan(t); err != nil {
 			return Summary{}, err
@@ -198,6 +209,9 @@ func (p *pass) scan(t osm.Type) error {
 		}
 		p.fp.add(o)
 		n++
+		if nd, ok := o.(*osm.Node); ok && p.loc.table != nil {
+			p.loc.table.add(nd)
+		}
 		uid, ts := editor(o)
 		if s, ok := p.first[uid]; !ok || ts.Unix() < s {
 			p.first[uid] = ts.Unix()
@@ -224,6 +238,9 @@ func (p *pass) scan(t osm.Type) error {
 	})
 	if err == nil {
 		err = p.flush()
+	}
+	if t == osm.TypeNode && p.loc.table != nil {
+		p.loc.table.done()
 	}
 	p.sum.Versions[string(t)] = n
 	if err != nil {

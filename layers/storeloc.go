@@ -24,7 +24,8 @@ type storeLocator struct {
 	err    error
 	misses int64 // NodeAt calls that found no position
 
-	indexed bool // d|W| node→way index written
+	table   *nodeTable // nil when disabled
+	indexed bool       // d|W| node→way index written
 	ways    map[osm.WayID][]osm.Object
 	rels    map[osm.RelationID][]osm.Object
 }
@@ -38,6 +39,14 @@ func (l *storeLocator) fail(err error) {
 func (l *storeLocator) NodeAt(id osm.NodeID, at time.Time) (orb.Point, bool) {
 	if l.err != nil {
 		return orb.Point{}, false
+	}
+	if l.table != nil {
+		if p, ok, known := l.table.at(id, at); known {
+			if !ok {
+				l.misses++
+			}
+			return p, ok
+		}
 	}
 	p, ok, err := l.src.NodeAt(l.ctx, id, at)
 	if err != nil {
