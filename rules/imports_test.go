@@ -150,5 +150,5 @@ func ExampleRuleSet_Class() {
 	// Output:
 	// building=*
 	// provenance true
-	// address false
+	// addresses false
 }

@@ -98,8 +98,8 @@ func TestRealWay(t *testing.T) {
 				t.Errorf("Family(highway) = %q, %v; a class key is in no family by default", fam, prov)
 			}
 		case "name":
-			if fam != "name" || prov {
-				t.Errorf("Family(name) = %q, %v, want name, false", fam, prov)
+			if fam != "names" || prov {
+				t.Errorf("Family(name) = %q, %v, want names, false", fam, prov)
 			}
 		default:
 			if !strings.HasPrefix(tag.Key, "tiger:") || !prov {
@@ -166,10 +166,10 @@ func TestFamily(t *testing.T) {
 	}{
 		{"tiger:cfcc", "provenance", true},
 		{"tiger:name_base", "provenance", true},
-		{"name:en", "name", false},
-		{"name", "name", false},
-		{"addr:street", "address", false},
-		{"addr:housenumber", "address", false},
+		{"name:en", "names", false},
+		{"name", "names", false},
+		{"addr:street", "addresses", false},
+		{"addr:housenumber", "addresses", false},
 		{"source", "provenance", true},
 		{"source:geometry", "provenance", true},
 		{"name:source", "provenance", true}, // "*:source" glob; provenance comes first
@@ -209,7 +209,7 @@ func TestFamilyOrder(t *testing.T) {
 	if fam, _ := r.Family("name:en"); fam != "first" {
 		t.Errorf("Family(name:en) = %q, want first", fam)
 	}
-	if fam, _ := r.Family("name:de"); fam != "name" {
+	if fam, _ := r.Family("name:de"); fam != "names" {
 		t.Errorf("Family(name:de) = %q, want name", fam)
 	}
 }
