@@ -48,6 +48,7 @@ the community's import guidelines and local review.`,
 	root.AddCommand(
 		// commands: one constructor per file, in the order of the job
 		newRulesCommand(g),
+		newClassifyCommand(g),
 	)
 	return root
 }
