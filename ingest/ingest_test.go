@@ -1,0 +1,612 @@
+package ingest_test
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/ingest/ingesttest"
+	"github.com/paulmach/orb"
+	"github.com/paulmach/osm"
+)
+
+// fakeFiles serves ingesttest Readers for files written to a temp dir; the
+// file bytes only matter for their SHA-256.
+type fakeFiles struct {
+	dir    string
+	items  map[string][]ingest.Item
+	fail   map[string]error
+	opened map[string]int
+}
+
+func newFakeFiles(tb testing.TB) *fakeFiles {
+	tb.Helper()
+	return &fakeFiles{dir: tb.TempDir(), items: map[string][]ingest.Item{}, fail: map[string]error{}, opened: map[string]int{}}
+}
+
+// add writes a file named name with the given content and serves items for it.
+func (f *fakeFiles) add(tb testing.TB, name, content string, items ...ingest.Item) string {
+	tb.Helper()
+	p := filepath.Join(f.dir, name)
+	if err := os.WriteFile(p, []byte(content), 0o644); err != nil {
+		tb.Fatal(err)
+	}
+	f.items[p] = items
+	return p
+}
+
+func (f *fakeFiles) open(_ context.Context, path string) (ingest.Reader, error) {
+	items, ok := f.items[path]
+	if !ok {
+		return nil, fmt.Errorf("no fake reader for %s", path)
+	}
+	f.opened[path]++
+	r := ingesttest.New(ingest.FormatXML, items...)
+	r.Fail = f.fail[path]
+	r.Size = int64(len(items)) * 100
+	return r, nil
+}
+
+func (f *fakeFiles) options() ingest.IngestOptions {
+	return ingest.IngestOptions{Open: f.open, BatchEntries: 3}
+}
+
+var t0 = time.Date(2015, 6, 1, 12, 0, 0, 0, time.UTC)
+
+func node(id int64, v int, at time.Duration, lat, lon float64, tags ...string) ingest.Item {
+	return ingest.Item{Object: &osm.Node{ID: osm.NodeID(id), Version: v, Visible: true, Timestamp: t0.Add(at),
+		ChangesetID: osm.ChangesetID(100 + v), UserID: osm.UserID(id%3 + 1), User: fmt.Sprintf("user%d", id%3+1),
+		Lat: lat, Lon: lon, Tags: tagList(tags)}, Pos: ingest.Position{Element: id}}
+}
+
+func deletedNode(id int64, v int, at time.Duration) ingest.Item {
+	return ingest.Item{Object: &osm.Node{ID: osm.NodeID(id), Version: v, Visible: false, Timestamp: t0.Add(at), UserID: 9, User: "user9"},
+		Action: ingest.ActionDelete}
+}
+
+func way(id int64, v int, at time.Duration, visible bool, nodes []int64, tags ...string) ingest.Item {
+	w := &osm.Way{ID: osm.WayID(id), Version: v, Visible: visible, Timestamp: t0.Add(at), UserID: 1, User: "user1", Tags: tagList(tags)}
+	for _, n := range nodes {
+		w.Nodes = append(w.Nodes, osm.WayNode{ID: osm.NodeID(n)})
+	}
+	return ingest.Item{Object: w}
+}
+
+func tagList(kv []string) osm.Tags {
+	var tags osm.Tags
+	for i := 0; i+1 < len(kv); i += 2 {
+		tags = append(tags, osm.Tag{Key: kv[i], Value: kv[i+1]})
+	}
+	return tags
+}
+
+func openMem(tb testing.TB) *ingest.Store {
+	tb.Helper()
+	s, err := ingest.OpenInMemory(ingest.DefaultOptions())
+	if err != nil {
+		tb.Fatal(err)
+	}
+	tb.Cleanup(func() { s.Close() })
+	return s
+}
+
+// recount derives the totals from a full scan, to check the kept totals.
+func recount(tb testing.TB, s *ingest.Store) ingest.Stats {
+	tb.Helper()
+	ctx := context.Background()
+	var st ingest.Stats
+	users := map[osm.UserID]bool{}
+	for _, typ := range []osm.Type{osm.TypeNode, osm.TypeWay, osm.TypeRelation} {
+		var last int64 = -1 << 63
+		err := s.ScanVersions(ctx, typ, func(o osm.Object) error {
+			var id int64
+			var visible bool
+			var ts time.Time
+			switch o := o.(type) {
+			case *osm.Node:
+				id, visible, ts = int64(o.ID), o.Visible, o.Timestamp
+				st.NodeVersions++
+				users[o.UserID] = true
+				if visible {
+					p := orb.Point{o.Lon, o.Lat}
+					if st.HasBBox {
+						st.BBox = st.BBox.Extend(p)
+					} else {
+						st.BBox, st.HasBBox = orb.Bound{Min: p, Max: p}, true
+					}
+				}
+			case *osm.Way:
+				id, visible, ts = int64(o.ID), o.Visible, o.Timestamp
+				st.WayVersions++
+				users[o.UserID] = true
+			case *osm.Relation:
+				id, visible, ts = int64(o.ID), o.Visible, o.Timestamp
+				st.RelationVersions++
+				users[o.UserID] = true
+			}
+			if id != last {
+				switch typ {
+				case osm.TypeNode:
+					st.Nodes++
+				case osm.TypeWay:
+					st.Ways++
+				default:
+					st.Relations++
+				}
+				last = id
+			}
+			if !visible {
+				st.DeletedVersions++
+			}
+			if !ts.IsZero() && (st.FirstEdit.IsZero() || ts.Before(st.FirstEdit)) {
+				st.FirstEdit = ts
+			}
+			if ts.After(st.LastEdit) {
+				st.LastEdit = ts
+			}
+			return nil
+		})
+		if err != nil {
+			tb.Fatal(err)
+		}
+	}
+	err := s.ScanChangesets(ctx, func(c *osm.Changeset) error {
+		st.Changesets++
+		users[c.UserID] = true
+		return nil
+	})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	delete(users, 0)
+	st.Users = int64(len(users))
+	return st
+}
+
+func stats(tb testing.TB, s *ingest.Store) ingest.Stats {
+	tb.Helper()
+	st, err := s.Stats(context.Background())
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return st
+}
+
+// checkTotals fails when the kept totals differ from a recount.
+func checkTotals(tb testing.TB, s *ingest.Store) ingest.Stats {
+	tb.Helper()
+	got, want := stats(tb, s), recount(tb, s)
+	kept := got
+	if !got.FirstEdit.Equal(want.FirstEdit) || !got.LastEdit.Equal(want.LastEdit) {
+		tb.Errorf("time range %v..%v, recount %v..%v", got.FirstEdit, got.LastEdit, want.FirstEdit, want.LastEdit)
+	}
+	got.FirstEdit, got.LastEdit, want.FirstEdit, want.LastEdit = time.Time{}, time.Time{}, time.Time{}, time.Time{}
+	if got != want {
+		tb.Errorf("totals differ from recount:\n kept %+v\nscan %+v", got, want)
+	}
+	return kept
+}
+
+func history() []ingest.Item {
+	return []ingest.Item{
+		node(1, 1, 0, 38.5, -75.5, "amenity", "bench"),
+		node(1, 2, time.Hour, 38.6, -75.4, "amenity", "bench"),
+		node(2, 1, 0, 38.7, -75.3),
+		node(3, 1, 2*time.Hour, 38.8, -75.2),
+		deletedNode(3, 2, 3*time.Hour),
+		way(10, 1, 0, true, []int64{1, 2, 3}, "highway", "service"),
+		way(10, 2, 4*time.Hour, true, []int64{1, 2}, "highway", "service"),
+	}
+}
+
+func TestIngestIdempotent(t *testing.T) {
+	ctx := context.Background()
+	ff := newFakeFiles(t)
+	a := ff.add(t, "a.osh", "history a", history()...)
+	again := ff.add(t, "a-copy.osh", "same history, other bytes", history()...)
+	s := openMem(t)
+
+	rep, err := ingest.Ingest(ctx, s, []string{a}, ff.options())
+	if err != nil {
+		t.Fatal(err)
+	}
+	first := checkTotals(t, s)
+	if sum := rep.Sum(); sum.Versions != 7 || sum.Duplicates != 0 || sum.Conflicts != 0 {
+		t.Errorf("first ingest: %+v", sum)
+	}
+	// counted by hand from history()
+	want := ingest.Stats{Nodes: 3, Ways: 1, NodeVersions: 5, WayVersions: 2, DeletedVersions: 1, Users: 4}
+	if first.Nodes != want.Nodes || first.Ways != want.Ways || first.NodeVersions != want.NodeVersions ||
+		first.WayVersions != want.WayVersions || first.DeletedVersions != want.DeletedVersions || first.Users != want.Users {
+		t.Errorf("stats %+v, want %+v", first, want)
+	}
+
+	rep, err = ingest.Ingest(ctx, s, []string{a, again}, ff.options())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !rep.Files[0].Skipped || ff.opened[a] != 1 {
+		t.Errorf("same file again: skipped=%v, opened %d times", rep.Files[0].Skipped, ff.opened[a])
+	}
+	if f := rep.Files[1]; f.Skipped || f.Versions != 0 || f.Duplicates != 7 || f.Conflicts != 0 {
+		t.Errorf("same content in another file: %+v", f.FileRecord)
+	}
+	if second := checkTotals(t, s); second != first {
+		t.Errorf("stats changed on re-ingest:\n%+v\n%+v", second, first)
+	}
+	m, err := s.Meta(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(m.Files) != 2 || m.Files[0].Path != a || m.Files[1].Path != again || m.Schema != ingest.SchemaVersion {
+		t.Errorf("meta: %+v", m)
+	}
+}
+
+func TestIngestConflict(t *testing.T) {
+	ctx := context.Background()
+	ff := newFakeFiles(t)
+	a := ff.add(t, "a.osm", "a", way(5, 1, 0, true, []int64{1, 2}, "building", "yes"))
+	b := ff.add(t, "b.osm", "b", way(5, 1, 0, true, []int64{1, 2}, "building", "house"), way(5, 2, time.Hour, true, []int64{1, 2, 3}))
+	s := openMem(t)
+	rep, err := ingest.Ingest(ctx, s, []string{a, b}, ff.options())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f := rep.Files[1]; f.Conflicts != 1 || f.Versions != 1 {
+		t.Errorf("second file: %+v", f.FileRecord)
+	}
+	if len(rep.Conflicts) != 1 || rep.Conflicts[0].Object != "way/5 v1" || rep.Conflicts[0].File != b {
+		t.Fatalf("conflicts: %+v", rep.Conflicts)
+	}
+	if msg := rep.Conflicts[0].String(); !strings.Contains(msg, "b.osm") || !strings.Contains(msg, "way/5 v1") {
+		t.Errorf("conflict message %q", msg)
+	}
+	vs, err := s.ObjectVersions(ctx, osm.TypeWay, 5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(vs) != 2 || vs[0].(*osm.Way).Tags.Find("building") != "yes" {
+		t.Errorf("the first stored version must be kept: %+v", vs)
+	}
+	checkTotals(t, s)
+}
+
+func TestIngestMergesHistoryAndDiff(t *testing.T) {
+	ctx := context.Background()
+	diff := []ingest.Item{
+		node(1, 3, 5*time.Hour, 38.65, -75.45, "amenity", "bench", "backrest", "yes"),
+		node(4, 1, 5*time.Hour, 39.0, -75.0),
+		way(10, 3, 6*time.Hour, false, nil),
+	}
+	for _, order := range []string{"history first", "diff first"} {
+		t.Run(order, func(t *testing.T) {
+			ff := newFakeFiles(t)
+			h := ff.add(t, "h.osh", "history", history()...)
+			d := ff.add(t, "d.osc", "diff", diff...)
+			paths := []string{h, d}
+			if order == "diff first" {
+				paths = []string{d, h}
+			}
+			s := openMem(t)
+			if _, err := ingest.Ingest(ctx, s, paths, ff.options()); err != nil {
+				t.Fatal(err)
+			}
+			st := checkTotals(t, s)
+			if st.Nodes != 4 || st.NodeVersions != 7 || st.Ways != 1 || st.WayVersions != 3 || st.DeletedVersions != 2 {
+				t.Errorf("stats %+v", st)
+			}
+			vs, err := s.ObjectVersions(ctx, osm.TypeNode, 1)
+			if err != nil {
+				t.Fatal(err)
+			}
+			var got []int
+			for _, v := range vs {
+				got = append(got, v.(*osm.Node).Version)
+			}
+			if fmt.Sprint(got) != "[1 2 3]" {
+				t.Errorf("node/1 versions %v, want [1 2 3]", got)
+			}
+			if !st.LastEdit.Equal(t0.Add(6 * time.Hour)) {
+				t.Errorf("last edit %v", st.LastEdit)
+			}
+		})
+	}
+}
+
+func TestObjectVersionsInVersionOrder(t *testing.T) {
+	ctx := context.Background()
+	ff := newFakeFiles(t)
+	// versions arrive out of order and across files; 10 must sort after 2
+	a := ff.add(t, "a", "a", node(7, 10, 10*time.Hour, 1, 1), node(7, 2, 2*time.Hour, 1, 2))
+	b := ff.add(t, "b", "b", node(7, 1, time.Hour, 1, 3), node(6, 1, 0, 0, 0), node(8, 1, 0, 0, 0))
+	s := openMem(t)
+	if _, err := ingest.Ingest(ctx, s, []string{a, b}, ff.options()); err != nil {
+		t.Fatal(err)
+	}
+	vs, err := s.ObjectVersions(ctx, osm.TypeNode, 7)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got []int
+	for _, v := range vs {
+		got = append(got, v.(*osm.Node).Version)
+	}
+	if fmt.Sprint(got) != "[1 2 10]" {
+		t.Errorf("versions %v, want [1 2 10]", got)
+	}
+	if vs, err := s.ObjectVersions(ctx, osm.TypeWay, 7); err != nil || len(vs) != 0 {
+		t.Errorf("way/7: %v, %v", vs, err)
+	}
+	if st := checkTotals(t, s); st.Nodes != 3 || st.NodeVersions != 5 {
+		t.Errorf("stats %+v", st)
+	}
+}
+
+func TestNodeAt(t *testing.T) {
+	ctx := context.Background()
+	ff := newFakeFiles(t)
+	p := ff.add(t, "n", "n", node(1, 1, 0, 10, 20), node(1, 2, 10*time.Hour, 11, 21), deletedNode(1, 3, 20*time.Hour),
+		node(2, 1, time.Hour, 5, 6))
+	s := openMem(t)
+	if _, err := ingest.Ingest(ctx, s, []string{p}, ff.options()); err != nil {
+		t.Fatal(err)
+	}
+	cases := []struct {
+		name string
+		id   osm.NodeID
+		at   time.Duration
+		want orb.Point
+		ok   bool
+	}{
+		{"before the first version", 1, -time.Second, orb.Point{}, false},
+		{"at the first version", 1, 0, orb.Point{20, 10}, true},
+		{"between versions", 1, 5 * time.Hour, orb.Point{20, 10}, true},
+		{"at the second version", 1, 10 * time.Hour, orb.Point{21, 11}, true},
+		{"just before deletion", 1, 20*time.Hour - time.Second, orb.Point{21, 11}, true},
+		{"after deletion", 1, 25 * time.Hour, orb.Point{}, false},
+		{"other node", 2, 2 * time.Hour, orb.Point{6, 5}, true},
+		{"unknown node", 3, 2 * time.Hour, orb.Point{}, false},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			got, ok, err := s.NodeAt(ctx, tc.id, t0.Add(tc.at))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if ok != tc.ok || got != tc.want {
+				t.Errorf("NodeAt = %v, %v; want %v, %v", got, ok, tc.want, tc.ok)
+			}
+		})
+	}
+}
+
+func TestIngestParseErrorAbortsFile(t *testing.T) {
+	ctx := context.Background()
+	ff := newFakeFiles(t)
+	items := history()
+	broken := ff.add(t, "broken.osh", "broken", items[:5]...)
+	ff.fail[broken] = &ingest.ParseError{File: broken, Pos: ingest.Position{Line: 41, Column: 7, Element: 6},
+		Err: fmt.Errorf("%w: bad lat", ingest.ErrFormat)}
+	other := ff.add(t, "other.osc", "other", node(50, 1, 0, 1, 1))
+	s := openMem(t)
+	rep, err := ingest.Ingest(ctx, s, []string{broken, other}, ff.options())
+	var pe *ingest.ParseError
+	if !errors.As(err, &pe) || !errors.Is(err, ingest.ErrFormat) {
+		t.Fatalf("error %v, want a ParseError", err)
+	}
+	if msg := err.Error(); !strings.Contains(msg, "broken.osh") || !strings.Contains(msg, "line 41, column 7") {
+		t.Errorf("message %q does not name file and position", msg)
+	}
+	if rep.Files[0].Err == nil || rep.Files[1].Err != nil || rep.Files[1].Versions != 1 {
+		t.Errorf("reports: %+v", rep.Files)
+	}
+	// BatchEntries 3: the full batches of the broken file are committed, the rest dropped.
+	committed := rep.Files[0].Versions
+	if st := checkTotals(t, s); committed == 0 || committed >= 5 || st.NodeVersions != committed+1 {
+		t.Errorf("broken file: %d versions committed, store has %d node versions", committed, st.NodeVersions)
+	}
+	m, err := s.Meta(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(m.Files) != 1 || m.Files[0].Path != other {
+		t.Errorf("only the completed file may be recorded: %+v", m.Files)
+	}
+
+	fixed := ff.add(t, "fixed.osh", "fixed", items...)
+	rep, err = ingest.Ingest(ctx, s, []string{fixed}, ff.options())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f := rep.Files[0]; f.Versions != 7-committed || f.Duplicates != committed {
+		t.Errorf("rerun: %+v", f.FileRecord)
+	}
+	if st := checkTotals(t, s); st.NodeVersions != 6 || st.WayVersions != 2 {
+		t.Errorf("stats %+v", st)
+	}
+}
+
+// cancelAfter cancels a context at the n-th progress update.
+type cancelAfter struct {
+	ingest.NopProgress
+	n      int
+	cancel context.CancelFunc
+}
+
+func (c *cancelAfter) Update(int64, int64) {
+	if c.n--; c.n == 0 {
+		c.cancel()
+	}
+}
+
+func TestIngestCancelLeavesConsistentStore(t *testing.T) {
+	ff := newFakeFiles(t)
+	var items []ingest.Item
+	for id := int64(1); id <= 200; id++ {
+		items = append(items, node(id, 1, time.Duration(id)*time.Minute, float64(id)/10, 1), node(id, 2, time.Duration(id)*time.Hour, 2, float64(id)/10))
+	}
+	p := ff.add(t, "big.osh", "big", items...)
+	s := openMem(t)
+
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	opts := ff.options()
+	opts.BatchEntries = 50
+	opts.Progress = &cancelAfter{n: 2, cancel: cancel}
+	_, err := ingest.Ingest(ctx, s, []string{p}, opts)
+	if !errors.Is(err, context.Canceled) {
+		t.Fatalf("error %v, want context.Canceled", err)
+	}
+	partial := checkTotals(t, s)
+	if partial.NodeVersions == 0 || partial.NodeVersions >= 400 {
+		t.Errorf("cancelled ingest stored %d versions; want some but not all", partial.NodeVersions)
+	}
+	m, err := s.Meta(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(m.Files) != 0 {
+		t.Errorf("a cancelled file must not be recorded: %+v", m.Files)
+	}
+
+	opts.Progress = nil
+	rep, err := ingest.Ingest(context.Background(), s, []string{p}, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f := rep.Files[0]; f.Versions+f.Duplicates != 400 || f.Duplicates != partial.NodeVersions {
+		t.Errorf("rerun: %+v after %d stored", f.FileRecord, partial.NodeVersions)
+	}
+	if st := checkTotals(t, s); st.Nodes != 200 || st.NodeVersions != 400 || st.Users != 3 {
+		t.Errorf("stats %+v", st)
+	}
+}
+
+func TestChangesets(t *testing.T) {
+	ctx := context.Background()
+	open := &osm.Changeset{ID: 17, UserID: 5, User: "cs-user", CreatedAt: t0, Open: true}
+	closed := &osm.Changeset{ID: 17, UserID: 5, User: "cs-user", CreatedAt: t0, ClosedAt: t0.Add(time.Hour), ChangesCount: 3,
+		MinLat: 1, MaxLat: 2, MinLon: 3, MaxLon: 4, Tags: osm.Tags{{Key: "comment", Value: "survey"}}}
+	other := &osm.Changeset{ID: 17, UserID: 6, User: "someone", CreatedAt: t0, ClosedAt: t0}
+	ff := newFakeFiles(t)
+	a := ff.add(t, "a", "a", ingest.Item{Changeset: open}, ingest.Item{Changeset: &osm.Changeset{ID: 3, CreatedAt: t0, ClosedAt: t0}})
+	b := ff.add(t, "b", "b", ingest.Item{Changeset: closed})
+	c := ff.add(t, "c", "c", ingest.Item{Changeset: other})
+	s := openMem(t)
+	rep, err := ingest.Ingest(ctx, s, []string{a, b, c}, ff.options())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.Files[1].Updated != 1 || rep.Files[2].Conflicts != 1 {
+		t.Errorf("open→closed must update, a different closed record conflicts: %+v", rep.Files)
+	}
+	got, ok, err := s.Changeset(ctx, 17)
+	if err != nil || !ok {
+		t.Fatal(ok, err)
+	}
+	if got.Open || got.ChangesCount != 3 || got.Tags.Find("comment") != "survey" || got.MaxLon != 4 {
+		t.Errorf("changeset 17 = %+v", got)
+	}
+	if _, ok, err := s.Changeset(ctx, 99); ok || err != nil {
+		t.Errorf("unknown changeset: %v, %v", ok, err)
+	}
+	var ids []osm.ChangesetID
+	if err := s.ScanChangesets(ctx, func(c *osm.Changeset) error { ids = append(ids, c.ID); return nil }); err != nil {
+		t.Fatal(err)
+	}
+	if fmt.Sprint(ids) != "[3 17]" {
+		t.Errorf("changesets %v", ids)
+	}
+	if st := checkTotals(t, s); st.Changesets != 2 || st.Users != 1 {
+		t.Errorf("stats %+v", st)
+	}
+}
+
+func TestDerived(t *testing.T) {
+	ctx := context.Background()
+	s := openMem(t)
+	err := s.PutDerived(ctx, func(put func(k, v []byte) error) error {
+		for _, kv := range [][2]string{{"ev/2", "b"}, {"ev/1", "a"}, {"ix/1", "x"}} {
+			if err := put([]byte(kv[0]), []byte(kv[1])); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got []string
+	err = s.ScanDerived(ctx, []byte("ev/"), func(k, v []byte) error { got = append(got, string(k)+"="+string(v)); return nil })
+	if err != nil {
+		t.Fatal(err)
+	}
+	if fmt.Sprint(got) != "[ev/1=a ev/2=b]" {
+		t.Errorf("scan: %v", got)
+	}
+	if v, ok, err := s.GetDerived(ctx, []byte("ix/1")); err != nil || !ok || string(v) != "x" {
+		t.Errorf("get: %q %v %v", v, ok, err)
+	}
+	if err := s.DropDerived(ctx, []byte("ev/")); err != nil {
+		t.Fatal(err)
+	}
+	if _, ok, _ := s.GetDerived(ctx, []byte("ev/1")); ok {
+		t.Error("ev/1 survived DropDerived")
+	}
+	if _, ok, _ := s.GetDerived(ctx, []byte("ix/1")); !ok {
+		t.Error("ix/1 was dropped with ev/")
+	}
+	stop := errors.New("stop")
+	if err := s.PutDerived(ctx, func(func(k, v []byte) error) error { return stop }); !errors.Is(err, stop) {
+		t.Errorf("fill error: %v", err)
+	}
+}
+
+func TestOpenLocked(t *testing.T) {
+	dir := t.TempDir()
+	s, err := ingest.Open(dir, ingest.DefaultOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	_, err = ingest.Open(dir, ingest.DefaultOptions())
+	if !errors.Is(err, ingest.ErrLocked) {
+		t.Fatalf("second open: %v, want ErrLocked", err)
+	}
+	if !strings.Contains(err.Error(), dir) || strings.Contains(err.Error(), "goroutine") {
+		t.Errorf("message %q should name %s plainly", err, dir)
+	}
+}
+
+func TestReopenKeepsData(t *testing.T) {
+	ctx := context.Background()
+	dir := t.TempDir()
+	ff := newFakeFiles(t)
+	p := ff.add(t, "h", "h", history()...)
+	s, err := ingest.Open(dir, ingest.DefaultOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := ingest.Ingest(ctx, s, []string{p}, ff.options()); err != nil {
+		t.Fatal(err)
+	}
+	before := checkTotals(t, s)
+	if err := s.Close(); err != nil {
+		t.Fatal(err)
+	}
+	s, err = ingest.Open(dir, ingest.DefaultOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	if after := checkTotals(t, s); after != before {
+		t.Errorf("after reopen %+v, before %+v", after, before)
+	}
+}
