@@ -1,0 +1,145 @@
+package layers
+
+import (
+	"context"
+	"fmt"
+	"path/filepath"
+	"testing"
+	"time"
+
+	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/rules"
+	"github.com/paulmach/osm"
+)
+
+// *ingest.Store meets the interfaces layers declares.
+var (
+	_ Source        = (*ingest.Store)(nil)
+	_ DerivedReader = (*ingest.Store)(nil)
+)
+
+// ingested returns a store holding the given files, in memory or, when dir is
+// not "", on disk.
+func ingested(tb testing.TB, dir string, paths ...string) *ingest.Store {
+	tb.Helper()
+	var st *ingest.Store
+	var err error
+	if dir == "" {
+		st, err = ingest.OpenInMemory(ingest.DefaultOptions())
+	} else {
+		st, err = ingest.Open(dir, ingest.DefaultOptions())
+	}
+	if err != nil {
+		tb.Fatal(err)
+	}
+	tb.Cleanup(func() { st.Close() })
+	if _, err := ingest.Ingest(context.Background(), st, paths, ingest.IngestOptions{}); err != nil {
+		tb.Fatal(err)
+	}
+	return st
+}
+
+func eventStrings(tb testing.TB, src DerivedReader) []string {
+	tb.Helper()
+	var out []string
+	err := ScanEvents(context.Background(), src, time.Time{}, time.Time{}, func(e *Event) error {
+		out = append(out, fmt.Sprintf("%+v", *e))
+		return nil
+	})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return out
+}
+
+// TestStoreMatchesMemory runs the pass on real histories (osm module
+// testdata) ingested into the Badger store, with and without the in-memory
+// node table, and on the in-memory fake; all three must store the same events.
+func TestStoreMatchesMemory(t *testing.T) {
+	for _, file := range []string{"annotate/testdata/way_6394949.osm", "annotate/testdata/relation_4017808.osm"} {
+		t.Run(filepath.Base(file), func(t *testing.T) {
+			path := osmTestdata(t, file)
+			mem := newMemSource(t, readOSMXML(t, path)...)
+			memSum := runPass(t, mem)
+			want := eventStrings(t, mem)
+			for _, table := range []int{0, -1, 5} {
+				st := ingested(t, "", path)
+				sum, err := Run(context.Background(), st, rules.Default(), Options{NodeTable: table, BatchSize: 100})
+				if err != nil {
+					t.Fatal(err)
+				}
+				got := eventStrings(t, st)
+				if len(got) != len(want) {
+					t.Fatalf("table %d: store has %d events, fake %d", table, len(got), len(want))
+				}
+				for i := range want {
+					if got[i] != want[i] {
+						t.Errorf("table %d: event %d\nstore %s\n fake %s", table, i, got[i], want[i])
+						break
+					}
+				}
+				if sum.Fingerprint != memSum.Fingerprint || sum.WaysMissingNodes != memSum.WaysMissingNodes {
+					t.Errorf("table %d: summary %+v, fake %+v", table, sum, memSum)
+				}
+				stored, err := Summarize(context.Background(), st)
+				if err != nil || stored.Fingerprint != sum.Fingerprint || stored.Events["geometry"] != sum.Events["geometry"] {
+					t.Errorf("Summarize = %+v, %v; Run returned %+v", stored, err, sum)
+				}
+				again, err := Run(context.Background(), st, rules.Default(), Options{})
+				if err != nil || !again.Skipped {
+					t.Errorf("rerun on the store: skipped %v, err %v", again.Skipped, err)
+				}
+			}
+		})
+	}
+}
+
+// delawareStore ingests the Delaware extract (osm module testdata) into a
+// store on disk under dir.
+func delawareStore(b *testing.B) *ingest.Store {
+	b.Helper()
+	return ingested(b, b.TempDir(), osmTestdata(b, "testdata/delaware-latest.osm.pbf"))
+}
+
+// BenchmarkScanDelaware is the baseline of BenchmarkClassifyDelaware: a plain
+// scan of every stored version, nodes, ways then relations.
+func BenchmarkScanDelaware(b *testing.B) {
+	st := delawareStore(b)
+	ctx := context.Background()
+	b.ReportAllocs()
+	var n int64
+	for b.Loop() {
+		n = 0
+		for _, t := range scanTypes {
+			if err := st.ScanVersions(ctx, t, func(osm.Object) error { n++; return nil }); err != nil {
+				b.Fatal(err)
+			}
+		}
+	}
+	b.ReportMetric(float64(n)*float64(b.N)/b.Elapsed().Seconds(), "versions/s")
+}
+
+// BenchmarkClassifyDelaware runs the whole classification pass (forced) on
+// the same store: scan, classify, place ways, write events.
+func BenchmarkClassifyDelaware(b *testing.B) {
+	st := delawareStore(b)
+	ctx := context.Background()
+	r := rules.Default()
+	b.ReportAllocs()
+	var sum Summary
+	for b.Loop() {
+		var err error
+		if sum, err = Run(ctx, st, r, Options{Force: true}); err != nil {
+			b.Fatal(err)
+		}
+	}
+	var events, versions int64
+	for _, n := range sum.Events {
+		events += n
+	}
+	for _, n := range sum.Versions {
+		versions += n
+	}
+	b.ReportMetric(float64(events)*float64(b.N)/b.Elapsed().Seconds(), "events/s")
+	b.ReportMetric(float64(versions)*float64(b.N)/b.Elapsed().Seconds(), "versions/s")
+}
