@@ -166,6 +166,9 @@ func detectFormat(br *bufio.Reader) (Format, error) {
 	if f, ok := xmlFormat(head); ok {
 		return f, nil
 	}
+	if err != nil && !errors.Is(err, io.EOF) && !errors.Is(err, bufio.ErrBufferFull) {
+		return FormatUnknown, err // a broken stream, not an unknown format
+	}
 	if len(head) == 0 {
 		return FormatUnknown, fmt.Errorf("%w: empty content", ErrUnknown)
 	}
