@@ -10,6 +10,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"slices"
 	"time"
 
 	"github.com/dgraph-io/badger/v4"
@@ -165,6 +166,13 @@ type writer struct {
 	maxChangeset []byte
 	users        map[osm.UserID]struct{} // uids known to be recorded
 
+	// Versions written in the open transaction: the keys proven absent by
+	// maxKey, per type and ascending, and the objects of the others.
+	pendSorted [3][][]byte
+	pendObj    map[[objectPrefixLen]byte]struct{}
+	view       *badger.Txn // read view of committed data for hasObject
+	viewIt     *badger.Iterator
+
 	conflicts []Conflict
 	cur       *FileRecord // counts of the file being read
 	committed FileRecord  // cur as of the last commit
@@ -190,7 +198,8 @@ func newWriter(s *Store, opts IngestOptions) (*writer, error) {
 func (w *writer) load() error {
 	w.discard()
 	w.users = make(map[osm.UserID]struct{})
-	w.entries, w.size, w.arena = 0, 0, nil
+	w.pendObj = make(map[[objectPrefixLen]byte]struct{})
+	w.forgetPending()
 	err := w.s.db.View(func(txn *badger.Txn) error {
 		var err error
 		if w.totals, err = readTotals(txn); err != nil {
@@ -223,6 +232,7 @@ func lastKey(txn *badger.Txn, prefix []byte) []byte {
 }
 
 func (w *writer) discard() {
+	w.closeView()
 	if w.txn != nil {
 		w.txn.Discard()
 		w.txn = nil
@@ -285,9 +295,9 @@ func (w *writer) commit(file *FileRecord) error {
 	if err := w.txn.Commit(); err != nil {
 		return fmt.Errorf("%s: commit: %w", w.s.name(), err)
 	}
+	w.closeView()
 	w.txn = w.s.db.NewTransaction(true)
-	w.entries, w.size = 0, 0
-	w.arena = nil
+	w.forgetPending()
 	if w.cur != nil {
 		w.committed = *w.cur
 	}
@@ -307,13 +317,42 @@ func (w *writer) get(key []byte) ([]byte, bool, error) {
 	return v, true, err
 }
 
-// hasPrefix reports whether a stored or pending key starts with prefix.
-func (w *writer) hasPrefix(prefix []byte) bool {
-	opt := badger.IteratorOptions{Prefix: prefix}
-	it := w.txn.NewIterator(opt)
-	defer it.Close()
-	it.Seek(prefix)
-	return it.Valid()
+// hasObject reports whether a version of the object with the given key
+// prefix (v|type|id) is stored or pending. It avoids iterating the write
+// transaction, which would sort its pending writes on every call.
+func (w *writer) hasObject(ti int, prefix []byte) bool {
+	if _, ok := w.pendObj[[objectPrefixLen]byte(prefix)]; ok {
+		return true
+	}
+	keys := w.pendSorted[ti]
+	i, _ := slices.BinarySearchFunc(keys, prefix, bytes.Compare)
+	if i < len(keys) && bytes.HasPrefix(keys[i], prefix) {
+		return true
+	}
+	if w.viewIt == nil {
+		w.view = w.s.db.NewTransaction(false)
+		w.viewIt = w.view.NewIterator(badger.IteratorOptions{})
+	}
+	w.viewIt.Seek(prefix)
+	return w.viewIt.Valid() && bytes.HasPrefix(w.viewIt.Item().Key(), prefix)
+}
+
+// closeView ends the read view of hasObject, which must not outlive a commit.
+func (w *writer) closeView() {
+	if w.viewIt != nil {
+		w.viewIt.Close()
+		w.view.Discard()
+		w.viewIt, w.view = nil, nil
+	}
+}
+
+// forgetPending resets the bookkeeping of the open transaction.
+func (w *writer) forgetPending() {
+	w.entries, w.size, w.arena = 0, 0, nil
+	for i := range w.pendSorted {
+		w.pendSorted[i] = w.pendSorted[i][:0]
+	}
+	clear(w.pendObj)
 }
 
 // hashFile returns the size and hex SHA-256 of the file at path.
@@ -456,6 +495,7 @@ func (w *writer) version(it Item, fr *FileRecord) error {
 		// unless the largest key belongs to the same id.
 		newObject = maxk == nil || !bytes.Equal(key[:objectPrefixLen], maxk[:objectPrefixLen])
 		w.maxKey[ti] = key
+		w.pendSorted[ti] = append(w.pendSorted[ti], key)
 	} else {
 		old, found, err := w.get(key)
 		if err != nil {
@@ -469,7 +509,8 @@ func (w *writer) version(it Item, fr *FileRecord) error {
 			}
 			return nil
 		}
-		newObject = !w.hasPrefix(key[:objectPrefixLen])
+		newObject = !w.hasObject(ti, key[:objectPrefixLen])
+		w.pendObj[[objectPrefixLen]byte(key)] = struct{}{}
 	}
 	if err := w.set(key, val); err != nil {
 		return err
