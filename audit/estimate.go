@@ -139,20 +139,20 @@ var estimateCautions = []string{
 
 // estimate is one estimator's result for one outcome.
 type estimate struct {
-	att, se, lo, hi, p        float64
-	rel, relLo, relHi         float64
-	hasRel                    bool
-	preP                      float64
-	hasPre                    bool
+	att, se, lo, hi, p         float64
+	rel, relLo, relHi          float64
+	hasRel                     bool
+	preP                       float64
+	hasPre                     bool
 	treatedUnits, controlUnits int
-	method, note              string
-	events                    []eventPoint
+	method, note               string
+	events                     []eventPoint
 }
 
 type eventPoint struct {
-	e                int
-	est, se, lo, hi  float64
-	reference        bool
+	e               int
+	est, se, lo, hi float64
+	reference       bool
 }
 
 // setRelativeLinear sets the relative effect att/(m − att) for a treated

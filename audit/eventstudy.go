@@ -21,7 +21,8 @@ import (
 // mean over months, x̄ʷ_t the weighted mean over units of month t) is the
 // exact weighted projection off both sets of dummies.
 //
-// twfe-linear's att is the mean of the post coefficients e = 0..Post−1,
+// Event times no treated unit reaches get no column. twfe-linear's att is
+// the mean of the post coefficients e = 0..Post−1 present,
 // pre_trend_p the joint Wald test that all leads are zero (CR1 variance).
 
 // esDesign is the event-time design shared by every outcome.
@@ -44,9 +45,19 @@ type esDesign struct {
 func newESDesign(p *Panel, win Window) (*esDesign, error) {
 	T := p.Months
 	d := &esDesign{p: p}
+	// columns: binned event times that occur, except the reference −1
+	present := map[int]bool{}
+	for _, un := range p.Units {
+		if un.Weight <= 0 || un.FirstTreated < 0 {
+			continue
+		}
+		for t := range T {
+			present[min(max(t-un.FirstTreated, -win.Pre), win.Post-1)] = true
+		}
+	}
 	col := map[int]int{}
 	for e := -win.Pre; e < win.Post; e++ {
-		if e == -1 {
+		if e == -1 || !present[e] {
 			continue
 		}
 		col[e] = len(d.cols)
@@ -192,9 +203,15 @@ func twfeEventStudy(d *esDesign, y []float64, cl []int, G int, opts EstimateOpti
 	// post average and leads
 	cvec := make([]float64, K)
 	var leads []int
+	nPost := 0
+	for _, ev := range d.cols {
+		if ev >= 0 {
+			nPost++
+		}
+	}
 	for c, ev := range d.cols {
 		if ev >= 0 {
-			cvec[c] = 1 / float64(opts.Window.Post)
+			cvec[c] = 1 / float64(nPost)
 		} else {
 			leads = append(leads, c)
 		}
