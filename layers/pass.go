@@ -142,10 +142,8 @@ func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error
 			return Summary{}, err
 		}
 	}
-	for _, p := range [][]byte{keyMeta, prefixEvent, prefixChangeset, prefixFirstEdit, prefixNodeWays} {
-		if err := src.DropDerived(ctx, p); err != nil {
-			return Summary{}, fmt.Errorf("classify: drop %s: %w", p, err)
-		}
+	if err := dropOwn(ctx, src); err != nil {
+		return Summary{}, err
 	}
 	p := &pass{
 		ctx: ctx, src: src, rules: r, opts: opts,
@@ -342,6 +340,30 @@ func (p *pass) writeFirstEdits() error {
 	}
 	if err := write(); err != nil {
 		return fmt.Errorf("classify: write first edits: %w", err)
+	}
+	return nil
+}
+
+// ownPrefixes are the derived keys a pass writes; the summary comes first so
+// that an interrupted drop leaves the store "not classified".
+var ownPrefixes = [...][]byte{keyMeta, prefixEvent, prefixChangeset, prefixFirstEdit, prefixNodeWays}
+
+// dropOwn deletes what an earlier pass wrote. A prefix with no key is not
+// dropped: the store's drop flushes and compacts, which costs as much as
+// classifying when nothing is there.
+func dropOwn(ctx context.Context, src Source) error {
+	for _, p := range ownPrefixes {
+		found := false
+		err := src.ScanDerived(ctx, p, func(_, _ []byte) error { found = true; return errStop })
+		if err != nil && !errors.Is(err, errStop) {
+			return fmt.Errorf("classify: look for %s: %w", p, err)
+		}
+		if !found {
+			continue
+		}
+		if err := src.DropDerived(ctx, p); err != nil {
+			return fmt.Errorf("classify: drop %s: %w", p, err)
+		}
 	}
 	return nil
 }
