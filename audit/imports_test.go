@@ -1,0 +1,323 @@
+package audit
+
+import (
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"slices"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/paulmach/osm"
+
+	"github.com/loadwake/loadwake/rules"
+)
+
+// fakeHistory is an in-memory HistorySource. Objects must be given in the
+// order the store returns them: by type, id, then version.
+type fakeHistory struct {
+	changesets []*osm.Changeset
+	objects    []osm.Object
+	err        error // returned by ScanVersions when set
+}
+
+func (f *fakeHistory) ScanChangesets(ctx context.Context, fn func(c *osm.Changeset) error) error {
+	for _, c := range f.changesets {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		if err := fn(c); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+func (f *fakeHistory) ScanVersions(ctx context.Context, t osm.Type, fn func(o osm.Object) error) error {
+	if f.err != nil {
+		return f.err
+	}
+	for _, o := range f.objects {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		if o.ObjectID().Type() != t {
+			continue
+		}
+		if err := fn(o); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+var day0 = time.Date(2021, 3, 1, 9, 0, 0, 0, time.UTC)
+
+func at(days float64) time.Time { return day0.Add(time.Duration(days * float64(24*time.Hour))) }
+
+func cset(id osm.ChangesetID, uid osm.UserID, user string, days float64, tags ...string) *osm.Changeset {
+	c := &osm.Changeset{ID: id, UserID: uid, User: user, CreatedAt: at(days), ClosedAt: at(days).Add(time.Hour)}
+	for i := 0; i+1 < len(tags); i += 2 {
+		c.Tags = append(c.Tags, osm.Tag{Key: tags[i], Value: tags[i+1]})
+	}
+	return c
+}
+
+func node(id osm.NodeID, v int, cs osm.ChangesetID, uid osm.UserID, user string, days float64, lon, lat float64, tags ...string) *osm.Node {
+	n := &osm.Node{ID: id, Version: v, ChangesetID: cs, UserID: uid, User: user, Timestamp: at(days), Visible: true, Lon: lon, Lat: lat}
+	for i := 0; i+1 < len(tags); i += 2 {
+		n.Tags = append(n.Tags, osm.Tag{Key: tags[i], Value: tags[i+1]})
+	}
+	return n
+}
+
+func way(id osm.WayID, v int, cs osm.ChangesetID, uid osm.UserID, user string, days float64, tags ...string) *osm.Way {
+	w := &osm.Way{ID: id, Version: v, ChangesetID: cs, UserID: uid, User: user, Timestamp: at(days), Visible: true}
+	for i := 0; i+1 < len(tags); i += 2 {
+		w.Tags = append(w.Tags, osm.Tag{Key: tags[i], Value: tags[i+1]})
+	}
+	return w
+}
+
+func deleted[T interface{ *osm.Node | *osm.Way }](o T) T {
+	switch v := any(o).(type) {
+	case *osm.Node:
+		v.Visible, v.Tags = false, nil
+	case *osm.Way:
+		v.Visible, v.Tags = false, nil
+	}
+	return o
+}
+
+// history builds a small history. Accounts and places are invented; the
+// signs of an import follow the community's import guidelines (OSM wiki,
+// Import/Guidelines: dedicated account, import=yes and source on changesets;
+// from memory).
+//
+//	changeset 10, 11, 13: account 501 "harbourdata_import", import=yes,
+//	                       source "Harbour County parcels"; days 0, 5 and 60
+//	changeset 12:          account 501, import=yes, other source; day 6
+//	changeset 20:          account 7 "wren", organic edits; day 7
+//	changeset 30:          no metadata; versions by account 502 "bulk_import_bot" (all creations)
+func history() *fakeHistory {
+	const imp, impName = 501, "harbourdata_import"
+	return &fakeHistory{
+		changesets: []*osm.Changeset{
+			cset(10, imp, impName, 0, "import", "yes", "source", "Harbour County parcels"),
+			cset(11, imp, impName, 5, "import", "yes", "source", "Harbour County parcels"),
+			cset(12, imp, impName, 6, "import", "yes", "source", "Harbour County addresses"),
+			cset(13, imp, impName, 60, "import", "yes", "source", "Harbour County parcels"),
+			cset(20, 7, "wren", 7, "comment", "fix"),
+		},
+		objects: []osm.Object{
+			node(1, 1, 10, imp, impName, 0, 10.0, 50.0),
+			node(1, 2, 20, 7, "wren", 7, 10.001, 50.0),
+			node(2, 1, 10, imp, impName, 0, 10.01, 50.02, "addr:housenumber", "4"),
+			node(3, 1, 12, imp, impName, 6, 11.0, 51.0, "addr:housenumber", "9"),
+			node(4, 1, 30, 502, "bulk_import_bot", 3, 12.0, 52.0, "amenity", "bench"),
+			node(5, 1, 30, 502, "bulk_import_bot", 3, 12.5, 52.5, "amenity", "bench"),
+			node(6, 1, 13, imp, impName, 60, 10.5, 50.5, "shop", "bakery"),
+			way(100, 1, 10, imp, impName, 0, "building", "yes"),
+			way(101, 1, 10, imp, impName, 0, "building", "house"),
+			way(101, 2, 11, imp, impName, 5, "building", "house", "building:levels", "2"),
+			way(102, 1, 20, 7, "wren", 7, "highway", "residential"),
+			deleted(way(102, 2, 11, imp, impName, 5)),
+		},
+	}
+}
+
+func TestDetectImports(t *testing.T) {
+	eps, err := DetectImports(context.Background(), history(), rules.Default(), DetectOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	type want struct {
+		id                  string
+		changesets          []osm.ChangesetID
+		matchers            []string
+		source              string
+		created, mod, del   int
+		classes             []ClassCount
+		firstMonth, lastMon string
+		bbox                []float64
+	}
+	wants := []want{
+		{"imp-10", []osm.ChangesetID{10, 11}, []string{"import-tag", "import-account"}, "Harbour County parcels", 4, 1, 1,
+			// way 102 was highway=residential before the import deleted it
+			[]ClassCount{{"building=*", 3}, {"addr:housenumber=*", 1}, {"highway=residential", 1}},
+			"2021-03", "2021-03", nil},
+		{"imp-30", []osm.ChangesetID{30}, []string{"import-account"}, "", 2, 0, 0,
+			[]ClassCount{{"amenity=bench", 2}}, "2021-03", "2021-03", []float64{12.0, 52.0, 12.5, 52.5}},
+		{"imp-12", []osm.ChangesetID{12}, []string{"import-tag", "import-account"}, "Harbour County addresses", 1, 0, 0,
+			[]ClassCount{{"addr:housenumber=*", 1}}, "2021-03", "2021-03", []float64{11.0, 51.0, 11.0, 51.0}},
+		{"imp-13", []osm.ChangesetID{13}, []string{"import-tag", "import-account"}, "Harbour County parcels", 1, 0, 0,
+			[]ClassCount{{"shop=*", 1}}, "2021-04", "2021-04", []float64{10.5, 50.5, 10.5, 50.5}},
+	}
+	if len(eps) != len(wants) {
+		for _, e := range eps {
+			t.Logf("%+v", e)
+		}
+		t.Fatalf("got %d episodes, want %d", len(eps), len(wants))
+	}
+	for i, w := range wants {
+		e := eps[i]
+		t.Run(w.id, func(t *testing.T) {
+			if e.ID != w.id || !slices.Equal(e.Changesets, w.changesets) || e.Source != w.source {
+				t.Errorf("episode %s %v source %q, want %s %v %q", e.ID, e.Changesets, e.Source, w.id, w.changesets, w.source)
+			}
+			if !slices.Equal(e.Matchers, w.matchers) {
+				t.Errorf("matchers %v, want %v", e.Matchers, w.matchers)
+			}
+			if e.Created != w.created || e.Modified != w.mod || e.Deleted != w.del {
+				t.Errorf("created/modified/deleted %d/%d/%d, want %d/%d/%d", e.Created, e.Modified, e.Deleted, w.created, w.mod, w.del)
+			}
+			if !slices.Equal(e.Classes, w.classes) {
+				t.Errorf("classes %v, want %v", e.Classes, w.classes)
+			}
+			if e.FirstMonth != w.firstMonth || e.LastMonth != w.lastMon {
+				t.Errorf("months %s..%s, want %s..%s", e.FirstMonth, e.LastMonth, w.firstMonth, w.lastMon)
+			}
+			if w.bbox != nil && !slices.Equal(e.BBox, w.bbox) {
+				t.Errorf("bbox %v, want %v", e.BBox, w.bbox)
+			}
+		})
+	}
+	// imp-10: bbox over the node versions of changesets 10 and 11 (11 made no node version).
+	if got, want := eps[0].BBox, []float64{10.0, 50.0, 10.01, 50.02}; !slices.Equal(got, want) {
+		t.Errorf("imp-10 bbox %v, want %v", got, want)
+	}
+	if got := eps[0].Accounts; !slices.Equal(got, []Account{{501, "harbourdata_import"}}) {
+		t.Errorf("imp-10 accounts %v", got)
+	}
+}
+
+// TestDetectGap checks the grouping gap: changesets 0, 5 and 60 days apart
+// form one episode when the gap exceeds the pause, two otherwise.
+func TestDetectGap(t *testing.T) {
+	tests := []struct {
+		gap  string
+		want [][]osm.ChangesetID
+	}{
+		{"0", [][]osm.ChangesetID{{10}, {11}, {13}}},
+		{"4.9", [][]osm.ChangesetID{{10}, {11}, {13}}},
+		{"5", [][]osm.ChangesetID{{10, 11}, {13}}}, // 11 opens 4 days 23 hours after 10 closed
+		{"60", [][]osm.ChangesetID{{10, 11, 13}}},
+	}
+	for _, tt := range tests {
+		t.Run(tt.gap, func(t *testing.T) {
+			r := gapRules(t, tt.gap)
+			h := history()
+			h.changesets = slices.DeleteFunc(slices.Clone(h.changesets), func(c *osm.Changeset) bool { return c.ID == 12 })
+			eps, err := DetectImports(context.Background(), h, r, DetectOptions{})
+			if err != nil {
+				t.Fatal(err)
+			}
+			var got [][]osm.ChangesetID
+			for _, e := range eps {
+				if e.Source == "Harbour County parcels" {
+					got = append(got, e.Changesets)
+				}
+			}
+			if !slices.EqualFunc(got, tt.want, slices.Equal) {
+				t.Errorf("episodes %v, want %v", got, tt.want)
+			}
+		})
+	}
+}
+
+func gapRules(t testing.TB, gap string) *rules.RuleSet {
+	t.Helper()
+	src := strings.Replace(string(rules.DefaultYAML()), "group_gap_days: 30", "group_gap_days: "+gap, 1)
+	r, err := rules.Parse("gap.yaml", []byte(src))
+	if err != nil {
+		t.Fatal(err)
+	}
+	return r
+}
+
+func TestDetectManual(t *testing.T) {
+	tests := []struct {
+		name    string
+		opts    DetectOptions
+		want    []osm.ChangesetID
+		wantErr string
+	}{
+		{"changesets", DetectOptions{Changesets: []int64{20, 11}}, []osm.ChangesetID{11, 20}, ""},
+		{"account name", DetectOptions{Account: "wren"}, []osm.ChangesetID{20}, ""},
+		{"account id", DetectOptions{Account: "501"}, []osm.ChangesetID{10, 11, 12, 13}, ""},
+		{"account from versions only", DetectOptions{Account: "bulk_import_bot"}, []osm.ChangesetID{30}, ""},
+		{"union", DetectOptions{Account: "wren", Changesets: []int64{30}}, []osm.ChangesetID{20, 30}, ""},
+		{"unknown changeset", DetectOptions{Changesets: []int64{10, 99, 98}}, nil, "99, 98"},
+		{"unknown account", DetectOptions{Account: "nobody"}, nil, `"nobody"`},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			eps, err := DetectImports(context.Background(), history(), rules.Default(), tt.opts)
+			if tt.wantErr != "" {
+				if !errors.Is(err, ErrNoImport) || !strings.Contains(err.Error(), tt.wantErr) {
+					t.Fatalf("err = %v, want ErrNoImport naming %s", err, tt.wantErr)
+				}
+				return
+			}
+			if err != nil {
+				t.Fatal(err)
+			}
+			if len(eps) != 1 {
+				t.Fatalf("got %d episodes, want 1", len(eps))
+			}
+			e := eps[0]
+			wantID := fmt.Sprintf("manual-%d", tt.want[0])
+			if e.ID != wantID || !slices.Equal(e.Changesets, tt.want) || !slices.Equal(e.Matchers, []string{ManualMatcher}) {
+				t.Errorf("episode %s %v %v, want %s %v [manual]", e.ID, e.Changesets, e.Matchers, wantID, tt.want)
+			}
+		})
+	}
+}
+
+func TestDetectIncludeEmpty(t *testing.T) {
+	h := history()
+	h.changesets = append(h.changesets, cset(40, 501, "harbourdata_import", 1, "import", "yes", "source", "Harbour County parcels"))
+	for _, include := range []bool{false, true} {
+		eps, err := DetectImports(context.Background(), h, rules.Default(), DetectOptions{IncludeEmpty: include})
+		if err != nil {
+			t.Fatal(err)
+		}
+		if got := slices.Contains(eps[0].Changesets, 40); got != include {
+			t.Errorf("IncludeEmpty %v: changeset 40 in %v", include, eps[0].Changesets)
+		}
+	}
+}
+
+func TestDetectErrors(t *testing.T) {
+	boom := errors.New("disk on fire")
+	h := history()
+	h.err = boom
+	if _, err := DetectImports(context.Background(), h, rules.Default(), DetectOptions{}); !errors.Is(err, boom) || !strings.Contains(err.Error(), "scan node versions") {
+		t.Errorf("err = %v, want the source's error naming the scan", err)
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	cancel()
+	if _, err := DetectImports(ctx, history(), rules.Default(), DetectOptions{}); !errors.Is(err, context.Canceled) {
+		t.Errorf("err = %v, want context.Canceled", err)
+	}
+}
+
+func TestEpisodeJSON(t *testing.T) {
+	eps, err := DetectImports(context.Background(), history(), rules.Default(), DetectOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	b, err := json.Marshal(eps[1])
+	if err != nil {
+		t.Fatal(err)
+	}
+	want := `{"id":"imp-30","matchers":["import-account"],"accounts":[{"uid":502,"name":"bulk_import_bot"}],` +
+		`"changesets":[30],"created":2,"modified":0,"deleted":0,"classes":[{"class":"amenity=bench","count":2}],` +
+		`"first":"2021-03-04T09:00:00Z","last":"2021-03-04T09:00:00Z","first_month":"2021-03","last_month":"2021-03",` +
+		`"bbox":[12,52,12.5,52.5]}`
+	if string(b) != want {
+		t.Errorf("JSON\n%s\nwant\n%s", b, want)
+	}
+}
