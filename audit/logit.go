@@ -280,12 +280,12 @@ func softplus(e float64) float64 {
 	return math.Log1p(math.Exp(e))
 }
 
-// PropensityMatch estimates propensity scores and matches on them: it fits
+// FitPropensityMatch estimates propensity scores and matches on them: it fits
 // FitLogit to the stacked rows (treated rows outcome 1, control rows 0, an
-// intercept plus every column) and calls MatchOnLogit with that fit. The fit
+// intercept plus every column) and calls PropensityMatch with that fit. The fit
 // is kept in Matching.Propensity. A model that fails to fit or converge is an
 // error wrapping ErrModel.
-func PropensityMatch(treated, controls *mat.Dense, opts MatchOptions) (*Matching, error) {
+func FitPropensityMatch(treated, controls *mat.Dense, opts MatchOptions) (*Matching, error) {
 	nt, p, nc, err := checkMatchInput(treated, controls)
 	if err != nil {
 		return nil, err
@@ -301,10 +301,10 @@ func PropensityMatch(treated, controls *mat.Dense, opts MatchOptions) (*Matching
 	if err != nil {
 		return nil, fmt.Errorf("propensity model: %w", err)
 	}
-	return MatchOnLogit(fit, treated, controls, opts)
+	return PropensityMatch(fit, treated, controls, opts)
 }
 
-// MatchOnLogit matches each treated row to its nearest controls on the
+// PropensityMatch matches each treated row to its nearest controls on the
 // logit of the propensity score from fit (Rosenbaum and Rubin 1985; Austin
 // 2011, "Optimal caliper widths for propensity-score matching", Pharmaceutical
 // Statistics 10, recommends a caliper of 0.2 standard deviations of the logit).
@@ -312,7 +312,7 @@ func PropensityMatch(treated, controls *mat.Dense, opts MatchOptions) (*Matching
 // apply as in MatchNearest except that a CaliperSD caliper is in units of the
 // pooled standard deviation of the logit, sqrt((var_t + var_c)/2), following
 // Austin (2011); opts.Covariance is ignored.
-func MatchOnLogit(fit *LogitFit, treated, controls *mat.Dense, opts MatchOptions) (*Matching, error) {
+func PropensityMatch(fit *LogitFit, treated, controls *mat.Dense, opts MatchOptions) (*Matching, error) {
 	et, err := fit.LinearPredictor(treated)
 	if err != nil {
 		return nil, fmt.Errorf("treated: %w", err)

@@ -359,25 +359,25 @@ func TestPropensityMatchLalonde(t *testing.T) {
 	}
 	xt, _ := l.design(t, cols, lalondeTreated)
 	xc, _ := l.design(t, cols, lalondeControl)
-	m, err := MatchOnLogit(fit, xt, xc, MatchOptions{K: 1, Caliper: 0.2})
+	m, err := PropensityMatch(fit, xt, xc, MatchOptions{K: 1, Caliper: 0.2})
 	if err != nil {
 		t.Fatal(err)
 	}
-	// PropensityMatch refits the same model on the stacked rows: same
+	// FitPropensityMatch refits the same model on the stacked rows: same
 	// coefficients as R's glm (testdata/lalonde_glm.csv), same matches.
-	pm, err := PropensityMatch(xt, xc, MatchOptions{K: 1, Caliper: 0.2})
+	pm, err := FitPropensityMatch(xt, xc, MatchOptions{K: 1, Caliper: 0.2})
 	if err != nil {
 		t.Fatal(err)
 	}
 	ref := loadRRef(t, "lalonde_glm.csv")
 	for i := range ref.rows {
 		if est := ref.num(t, i, "estimate"); math.Abs(pm.Propensity.Coef[i]-est) > 1e-4*math.Abs(est) {
-			t.Errorf("%s: PropensityMatch coefficient %.10g, R glm %.10g", ref.rows[i]["term"], pm.Propensity.Coef[i], est)
+			t.Errorf("%s: FitPropensityMatch coefficient %.10g, R glm %.10g", ref.rows[i]["term"], pm.Propensity.Coef[i], est)
 		}
 	}
 	for i := range m.Matches {
 		if len(m.Matches[i]) != len(pm.Matches[i]) || len(m.Matches[i]) > 0 && m.Matches[i][0].Control != pm.Matches[i][0].Control {
-			t.Errorf("treated %d: MatchOnLogit %v, PropensityMatch %v", i, m.Matches[i], pm.Matches[i])
+			t.Errorf("treated %d: PropensityMatch %v, FitPropensityMatch %v", i, m.Matches[i], pm.Matches[i])
 		}
 	}
 	et, _ := fit.LinearPredictor(xt)
