@@ -194,6 +194,9 @@ func Generate(ctx context.Context, cfg Config, dir string, force bool) (*Truth, 
 	if err := g.writeDistricts(filepath.Join(dir, DistrictsFile)); err != nil {
 		return nil, err
 	}
+	if g.accounts != nil {
+		g.truth.ImportAccounts = g.accounts
+	}
 	g.truth.Tallies.Nodes = int64(len(g.nodes))
 	g.truth.Tallies.Ways = int64(len(g.ways))
 	if err := writeJSON(filepath.Join(dir, TruthFile), g.truth); err != nil {
@@ -786,7 +789,7 @@ func (g *gen) newFeature(d *district, kind uint8, t int64, imported bool) {
 		h := 4 + r.Float64()*8
 		var ids []uint32
 		for _, c := range [4][2]float64{{-1, -1}, {-1, 1}, {1, 1}, {1, -1}} {
-			la, lo := g.offsetXY(lat, lon, c[0]*h, c[1]*h*(0.7+0.6*r.Float64()))
+			la, lo := d.clamp(g.offsetXY(lat, lon, c[0]*h, c[1]*h*(0.7+0.6*r.Float64())))
 			id := g.newNode(la, lo)
 			g.writeNode(id, t, true, nil)
 			ids = append(ids, id)
