@@ -425,3 +425,27 @@ func BenchmarkMatchNearest(b *testing.B) {
 	}
 	b.ReportMetric(float64(nt)*float64(b.N)/b.Elapsed().Seconds(), "treated/s")
 }
+
+// Source: R 4.2.2 stats::mahalanobis with cov() of the 429 LaLonde controls,
+// nearest control per treated unit by which.min (first in data order on ties),
+// in testdata/lalonde_match_ctrlcov.csv (testdata/R/match_lalonde.R).
+func TestMatchNearestControlCovarianceAgainstR(t *testing.T) {
+	l := loadLalonde(t)
+	cols := []string{"age", "educ", "re74", "re75"}
+	xt, tids := l.design(t, cols, lalondeTreated)
+	xc, cids := l.design(t, cols, lalondeControl)
+	m, err := MatchNearest(xt, xc, MatchOptions{K: 1, Covariance: CovControls})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ref := loadRRef(t, "lalonde_match_ctrlcov.csv")
+	for i, r := range ref.rows {
+		got := m.Matches[i][0]
+		if r["treated"] != tids[i] || cids[got.Control] != r["control"] {
+			t.Errorf("%s: matched %s, R %s", tids[i], cids[got.Control], r["control"])
+		}
+		if want := ref.num(t, i, "dist"); math.Abs(got.Distance-want) > 1e-9 {
+			t.Errorf("%s: distance %.12g, R %.12g", tids[i], got.Distance, want)
+		}
+	}
+}

@@ -3,6 +3,7 @@ package audit
 import (
 	"encoding/csv"
 	"errors"
+	"fmt"
 	"math"
 	"os"
 	"path/filepath"
@@ -201,4 +202,14 @@ func TestProportionBadInput(t *testing.T) {
 			}
 		})
 	}
+}
+
+func ExampleNewcombeDiff() {
+	// Newcombe (1998), Table II, example (a): 56/70 against 48/80.
+	iv, err := NewcombeDiff(56, 70, 48, 80, 0.95)
+	if err != nil {
+		panic(err)
+	}
+	fmt.Printf("%.4f [%.4f, %.4f]\n", iv.Estimate, iv.Lower, iv.Upper)
+	// Output: 0.2000 [0.0524, 0.3339]
 }

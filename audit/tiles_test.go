@@ -1,6 +1,7 @@
 package audit
 
 import (
+	"fmt"
 	"math"
 	"strconv"
 	"testing"
@@ -173,4 +174,10 @@ func TestTileUnitsBadSpec(t *testing.T) {
 			}
 		})
 	}
+}
+
+func ExampleTileAt() {
+	t, ok := TileAt(orb.Point{13.405, 52.52}, 10)
+	fmt.Println(t, ok)
+	// Output: 10/550/335 true
 }

@@ -428,8 +428,8 @@ func newUnitGrid(bounds []orb.Bound) unitGrid {
 	for _, b := range bounds[1:] {
 		ext = ext.Union(b)
 	}
-	// About two units per cell on average, at most 1024 cells a side.
-	side := int(math.Ceil(math.Sqrt(float64(len(bounds)) / 2)))
+	// About four cells per unit, at most 1024 cells a side.
+	side := int(math.Ceil(2 * math.Sqrt(float64(len(bounds)))))
 	side = max(1, min(side, 1024))
 	g := unitGrid{extent: ext, nx: side, ny: side, cells: make([][]int32, side*side)}
 	for i, b := range bounds {
