@@ -26,17 +26,22 @@ const deletedLat = math.MinInt32
 // nodeTable holds the positions of every version of the nodes with the lowest
 // ids, filled in id and version order by the node pass up to a fixed number of
 // entries. It answers NodeAt exactly for ids up to covered; larger ids go to
-// the store. Memory is bounded by the limit, not by the data.
+// the store. Memory is bounded by the limit, not by the data. Entries live in
+// fixed-size chunks, so growing never copies.
 type nodeTable struct {
 	limit   int
-	entries []nodeEntry
-	covered int64 // every version of every node id <= covered is in entries
+	chunk   int // entries per chunk
+	n       int
+	chunks  [][]nodeEntry
+	covered int64 // every version of every node id <= covered is in the table
 	full    bool
 	curID   int64 // id whose versions are being added
 }
 
+const nodeChunk = 1 << 16
+
 func newNodeTable(limit int) *nodeTable {
-	return &nodeTable{limit: limit, covered: -1 << 63, curID: -1 << 63}
+	return &nodeTable{limit: limit, chunk: nodeChunk, covered: -1 << 63, curID: -1 << 63}
 }
 
 // add records one node version; versions arrive id ascending, then version
@@ -49,7 +54,7 @@ func (t *nodeTable) add(n *osm.Node) {
 	if id != t.curID {
 		// the previous id is complete
 		t.covered = t.curID
-		if len(t.entries) >= t.limit {
+		if t.n >= t.limit {
 			t.full = true
 			return
 		}
@@ -60,7 +65,12 @@ func (t *nodeTable) add(n *osm.Node) {
 		e.lon = int32(math.Round(n.Lon * coordScale))
 		e.lat = int32(math.Round(n.Lat * coordScale))
 	}
-	t.entries = append(t.entries, e)
+	if len(t.chunks) == 0 || len(t.chunks[len(t.chunks)-1]) == t.chunk {
+		t.chunks = append(t.chunks, make([]nodeEntry, 0, t.chunk))
+	}
+	last := &t.chunks[len(t.chunks)-1]
+	*last = append(*last, e)
+	t.n++
 }
 
 // done marks the end of the node scan: the last id is complete too.
@@ -76,13 +86,27 @@ func (t *nodeTable) at(id osm.NodeID, at time.Time) (p orb.Point, ok, known bool
 	if int64(id) > t.covered {
 		return orb.Point{}, false, false
 	}
-	i := sort.Search(len(t.entries), func(i int) bool { return t.entries[i].id >= int64(id) })
+	want := int64(id)
+	// first chunk whose last entry is >= id, then the first entry >= id in it
+	c := sort.Search(len(t.chunks), func(i int) bool { ch := t.chunks[i]; return ch[len(ch)-1].id >= want })
+	if c == len(t.chunks) {
+		return orb.Point{}, false, true
+	}
+	ch := t.chunks[c]
+	i := sort.Search(len(ch), func(i int) bool { return ch[i].id >= want })
 	sec := at.Unix()
 	var last *nodeEntry
-	for ; i < len(t.entries) && t.entries[i].id == int64(id); i++ {
-		if t.entries[i].ts <= sec {
-			last = &t.entries[i]
+	for c < len(t.chunks) {
+		ch = t.chunks[c]
+		for ; i < len(ch) && ch[i].id == want; i++ {
+			if ch[i].ts <= sec {
+				last = &ch[i]
+			}
 		}
+		if i < len(ch) {
+			break
+		}
+		c, i = c+1, 0 // this id's versions may continue in the next chunk
 	}
 	if last == nil || last.lat == deletedLat {
 		return orb.Point{}, false, true

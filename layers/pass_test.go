@@ -30,6 +30,7 @@ func TestNodeTableMatchesStore(t *testing.T) {
 		ids[1] = true // absent
 		for _, limit := range []int{1 << 20, 7, 1} {
 			tab := newNodeTable(limit)
+			tab.chunk = 2 // versions of one node span chunks
 			_ = src.ScanVersions(context.Background(), osm.TypeNode, func(o osm.Object) error {
 				tab.add(o.(*osm.Node))
 				return nil
