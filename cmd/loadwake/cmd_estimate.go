@@ -1,0 +1,153 @@
+package main
+
+import (
+	"encoding/json"
+	"fmt"
+	"os"
+	"strings"
+	"text/tabwriter"
+
+	"github.com/loadwake/loadwake/audit"
+	"github.com/spf13/cobra"
+)
+
+// estimateOptions holds the flags of `loadwake estimate`.
+type estimateOptions struct {
+	panel        string   // long-format panel CSV
+	unit         string   // column names
+	time         string   //
+	firstTreated string   //
+	outcomes     []string //
+	cluster      string   //
+	weight       string   //
+	json         string   // JSON output file; "-" for stdout
+	pre, post    int      // event window
+	draws        int
+	seed         uint64
+	inference    string
+}
+
+func newEstimateCommand(g *globalOptions) *cobra.Command {
+	d := audit.DefaultEstimateOptions()
+	o := estimateOptions{unit: "unit", time: "month", firstTreated: "first_treated",
+		pre: d.Window.Pre, post: d.Window.Post, draws: d.Draws, seed: d.Seed, inference: d.Inference}
+	cmd := &cobra.Command{
+		Use:   "estimate --panel FILE.csv --outcome COL [--outcome COL...]",
+		Short: "Estimate how follow-on activity changed in treated areas against matched controls",
+		Long: `estimate reads a unit-by-month panel in long format (one row per unit and
+month) and estimates, per outcome, how activity changed in treated units after
+their first treated month compared with never-treated (matched) units:
+
+  cs-att       group-time ATT (Callaway & Sant'Anna), aggregated by cohort size
+  ppml-twfe    Poisson regression stacked by cohort, unit and month fixed effects
+  twfe-linear  linear event study (a cross-check; biased with staggered timing)
+  did-2x2      classic before/after x treated/control comparison
+
+Each row gives the effect, its 95% interval (of the relative effect where one
+is given), p-value, the joint pre-trend test, unit counts and the inference
+method. With fewer than 30 treated clusters the intervals come from a wild or
+multiplier bootstrap. A CSV written by the panel export has the default column
+names; name the columns of your own file with the flags.`,
+		Args: noArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			return runEstimate(cmd, g, &o)
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.panel, "panel", "", "panel CSV file (required)")
+	f.StringVar(&o.unit, "unit", o.unit, "column with the unit identifier")
+	f.StringVar(&o.time, "time", o.time, "column with the month (YYYY-MM or YYYY-MM-DD)")
+	f.StringVar(&o.firstTreated, "first-treated", o.firstTreated, "column with the first treated month (empty for never treated)")
+	f.StringSliceVar(&o.outcomes, "outcome", nil, "outcome column(s), repeatable or comma-separated (required)")
+	f.StringVar(&o.cluster, "cluster", "", "column with the cluster for inference (default: the unit)")
+	f.StringVar(&o.weight, "weight", "", "column with matching weights (default: 1)")
+	f.StringVar(&o.json, "json", "", "write all estimates as JSON to this file (- for stdout)")
+	f.IntVar(&o.pre, "window-pre", o.pre, "months before treatment used")
+	f.IntVar(&o.post, "window-post", o.post, "months from treatment used")
+	f.IntVar(&o.draws, "draws", o.draws, "bootstrap draws")
+	f.Uint64Var(&o.seed, "seed", o.seed, "seed of the bootstrap draws")
+	f.StringVar(&o.inference, "inference", o.inference, "auto, analytic or bootstrap")
+	return cmd
+}
+
+func runEstimate(cmd *cobra.Command, _ *globalOptions, o *estimateOptions) error {
+	if o.panel == "" {
+		return usagef("estimate: --panel FILE.csv is required")
+	}
+	if len(o.outcomes) == 0 {
+		return usagef("estimate: name at least one --outcome column")
+	}
+	opts := audit.DefaultEstimateOptions()
+	opts.Window = audit.Window{Pre: o.pre, Post: o.post}
+	opts.Draws, opts.Seed, opts.Inference = o.draws, o.seed, o.inference
+	if o.pre < 1 || o.post < 1 || o.draws < 99 {
+		return usagef("estimate: --window-pre and --window-post must be >= 1 and --draws >= 99")
+	}
+	switch o.inference {
+	case audit.InferenceAuto, audit.InferenceAnalytic, audit.InferenceBootstrap:
+	default:
+		return usagef("estimate: --inference %q: want auto, analytic or bootstrap", o.inference)
+	}
+	f, err := os.Open(o.panel)
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	p, err := audit.ReadPanelCSV(f, o.panel, audit.PanelColumns{Unit: o.unit, Time: o.time, FirstTreated: o.firstTreated,
+		Outcomes: o.outcomes, Cluster: o.cluster, Weight: o.weight})
+	if err != nil {
+		return err
+	}
+	es, err := audit.Estimate(cmd.Context(), p, opts)
+	if err != nil {
+		return fmt.Errorf("%s: %w", o.panel, err)
+	}
+	out := cmd.OutOrStdout()
+	if o.json != "-" {
+		printEstimates(out, es)
+	}
+	if o.json != "" {
+		b, err := json.MarshalIndent(es, "", "  ")
+		if err != nil {
+			return fmt.Errorf("estimate: encode JSON: %w", err)
+		}
+		b = append(b, '\n')
+		if o.json == "-" {
+			_, err = out.Write(b)
+			return err
+		}
+		if err := os.WriteFile(o.json, b, 0o644); err != nil {
+			return fmt.Errorf("estimate: %w", err)
+		}
+	}
+	return nil
+}
+
+func printEstimates(w interface{ Write([]byte) (int, error) }, es *audit.Estimates) {
+	tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
+	fmt.Fprintln(tw, "OUTCOME\tESTIMATOR\tATT\tRELATIVE\t95% INTERVAL\tP\tPRE-TREND P\tTREATED/CONTROL\tMETHOD")
+	for _, e := range es.Effects {
+		rel, ci := "-", fmt.Sprintf("[%.3g, %.3g]", e.CI95[0], e.CI95[1])
+		if e.RelativeEffect != nil {
+			rel = fmt.Sprintf("%+.1f%%", 100**e.RelativeEffect)
+			ci = fmt.Sprintf("[%+.1f%%, %+.1f%%]", 100*e.CI95[0], 100*e.CI95[1])
+		}
+		pre := "-"
+		if e.PreTrendP != nil {
+			pre = fmt.Sprintf("%.3g", *e.PreTrendP)
+		}
+		fmt.Fprintf(tw, "%s\t%s\t%.4g\t%s\t%s\t%.3g\t%s\t%d/%d\t%s\n", e.Layer, e.Estimator, e.ATT, rel, ci, e.PValue, pre,
+			e.TreatedUnits, e.ControlUnits, e.Method)
+	}
+	tw.Flush()
+	for _, p := range es.Placebo {
+		fmt.Fprintf(w, "placebo %s, starts %d months early: att %.4g [%.3g, %.3g], p %.3g\n", p.Layer, p.ShiftMonths, p.ATT, p.CI95[0], p.CI95[1], p.PValue)
+	}
+	if len(es.Warnings) > 0 {
+		fmt.Fprintln(w, "\nwarnings:")
+		for _, s := range es.Warnings {
+			fmt.Fprintln(w, "  - "+s)
+		}
+	}
+	fmt.Fprintln(w, "\n"+strings.Join(es.Cautions, "\n"))
+}

@@ -1,0 +1,146 @@
+package main
+
+import (
+	"bytes"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+	"time"
+
+	"github.com/loadwake/loadwake/audit"
+)
+
+// writeInventedPanel writes an invented panel (40 treated units in two
+// cohorts, 60 controls, 24 months, +30% planted in "geometry", nothing in
+// "deletion") with the panel export's column names.
+func writeInventedPanel(t testing.TB) string {
+	t.Helper()
+	rng := rand.New(rand.NewPCG(5, 5))
+	p := &audit.Panel{Start: time.Date(2032, 1, 1, 0, 0, 0, 0, time.UTC), Months: 24, Outcomes: []string{"geometry", "deletion"}}
+	p.Y = make([][]float64, 2)
+	for u := range 100 {
+		g := -1
+		switch {
+		case u < 20:
+			g = 8
+		case u < 40:
+			g = 12
+		}
+		p.Units = append(p.Units, audit.PanelUnit{ID: fmt.Sprintf("cell-%03d", u), FirstTreated: g, Weight: 1})
+		level := 2 + 6*rng.Float64()
+		for tm := range 24 {
+			for o := range 2 {
+				lam := level
+				if o == 0 && g >= 0 && tm >= g {
+					lam *= 1.3
+				}
+				// Poisson draw by inversion
+				k, pr, cdf, x := 0.0, math.Exp(-lam), math.Exp(-lam), rng.Float64()
+				for x > cdf {
+					k++
+					pr *= lam / k
+					cdf += pr
+				}
+				p.Y[o] = append(p.Y[o], k)
+			}
+		}
+	}
+	var buf bytes.Buffer
+	if err := audit.WritePanelCSV(&buf, p); err != nil {
+		t.Fatal(err)
+	}
+	f := filepath.Join(t.TempDir(), "panel.csv")
+	if err := os.WriteFile(f, buf.Bytes(), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return f
+}
+
+func runEstimateRoot(t testing.TB, args ...string) (string, string, error) {
+	t.Helper()
+	root := newRootCommand(newGlobalOptions())
+	var out, errb bytes.Buffer
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs(args)
+	err := root.Execute()
+	return out.String(), errb.String(), err
+}
+
+func TestEstimateCommand(t *testing.T) {
+	panel := writeInventedPanel(t)
+	js := filepath.Join(t.TempDir(), "est.json")
+	out, _, err := runEstimateRoot(t, "estimate", "--panel", panel, "--outcome", "geometry,deletion", "--cluster", "cluster",
+		"--weight", "weight", "--window-pre", "6", "--window-post", "10", "--draws", "199", "--json", js)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, want := range []string{"OUTCOME", "geometry", "cs-att", "ppml-twfe", "twfe-linear", "did-2x2", "40/60", "import guidelines"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("output lacks %q:\n%s", want, out)
+		}
+	}
+	b, err := os.ReadFile(js)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var es struct {
+		Effects []map[string]any `json:"effects"`
+		Events  []map[string]any `json:"event_study"`
+	}
+	if err := json.Unmarshal(b, &es); err != nil {
+		t.Fatal(err)
+	}
+	if len(es.Effects) != 8 || len(es.Events) == 0 {
+		t.Fatalf("%d effects, %d event-study rows; want 8 and some", len(es.Effects), len(es.Events))
+	}
+	for _, k := range []string{"layer", "estimator", "att", "relative_effect", "ci95", "se", "p_value", "pre_trend_p", "treated_units", "control_units", "method", "note"} {
+		if _, ok := es.Effects[0][k]; !ok {
+			t.Errorf("effect row lacks %q", k)
+		}
+	}
+	for _, e := range es.Effects {
+		if e["layer"] == "geometry" && e["estimator"] == "cs-att" {
+			if rel := e["relative_effect"].(float64); math.Abs(rel-0.3) > 0.1 {
+				t.Errorf("geometry relative effect %v, planted 0.3", rel)
+			}
+		}
+	}
+}
+
+func TestEstimateCommandErrors(t *testing.T) {
+	panel := writeInventedPanel(t)
+	bad := filepath.Join(t.TempDir(), "bad.csv")
+	if err := os.WriteFile(bad, []byte("unit,month,first_treated,geometry\na,2030-01,,1\na,2030-02,,oops\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	cases := []struct {
+		name  string
+		args  []string
+		usage bool
+		want  string
+	}{
+		{"no panel", []string{"estimate", "--outcome", "geometry"}, true, "--panel"},
+		{"no outcome", []string{"estimate", "--panel", panel}, true, "--outcome"},
+		{"bad inference", []string{"estimate", "--panel", panel, "--outcome", "geometry", "--inference", "magic"}, true, "inference"},
+		{"missing column", []string{"estimate", "--panel", panel, "--outcome", "trees"}, false, `column "trees"`},
+		{"bad value", []string{"estimate", "--panel", bad, "--outcome", "geometry"}, false, `bad.csv:3: column "geometry": count "oops"`},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			_, _, err := runEstimateRoot(t, c.args...)
+			if err == nil || !strings.Contains(err.Error(), c.want) {
+				t.Fatalf("error %v, want %q", err, c.want)
+			}
+			if got := errors.As(err, new(usageError)); got != c.usage {
+				t.Errorf("usage error %v, want %v", got, c.usage)
+			}
+		})
+	}
+}
