@@ -21,8 +21,8 @@ type LogitOptions struct {
 	// MaxIterations bounds the Newton iterations (default 100).
 	MaxIterations int
 	// GradientTolerance stops the search when the infinity norm of the
-	// log-likelihood gradient, in standardized covariates, falls below it
-	// (default 1e-10).
+	// log-likelihood gradient, in standardized covariates and divided by
+	// the number of rows, falls below it (default 1e-10).
 	GradientTolerance float64
 }
 
@@ -193,7 +193,7 @@ func FitLogit(x *mat.Dense, y []float64, opts LogitOptions) (*LogitFit, error) {
 		},
 	}
 	settings := &optimize.Settings{
-		GradientThreshold: opts.GradientTolerance,
+		GradientThreshold: opts.GradientTolerance * float64(n),
 		MajorIterations:   opts.MaxIterations,
 		Converger:         optimize.NeverTerminate{},
 	}
