@@ -1,12 +1,16 @@
 package audit
 
 import (
+	"bufio"
 	"context"
+	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"slices"
 	"strconv"
 	"strings"
+	"text/tabwriter"
 	"time"
 
 	"github.com/paulmach/orb"
@@ -489,4 +493,104 @@ func buildEpisode(ms []*csMeta, prefix string) Episode {
 		e.BBox = []float64{bbox.Min[0], bbox.Min[1], bbox.Max[0], bbox.Max[1]}
 	}
 	return e
+}
+
+// ReadChangesetIDs reads changeset ids from a list a user wrote: ids separated
+// by spaces, commas or new lines, "#" starting a comment to the end of the
+// line. name is used in errors, which give the line and column of a bad id.
+func ReadChangesetIDs(r io.Reader, name string) ([]int64, error) {
+	var ids []int64
+	sc := bufio.NewScanner(r)
+	line := 0
+	for sc.Scan() {
+		line++
+		text := sc.Text()
+		if i := strings.IndexByte(text, '#'); i >= 0 {
+			text = text[:i]
+		}
+		col := 0
+		for col < len(text) {
+			if c := text[col]; c == ' ' || c == '\t' || c == ',' || c == '\r' {
+				col++
+				continue
+			}
+			end := col
+			for end < len(text) && !strings.ContainsRune(" \t,\r", rune(text[end])) {
+				end++
+			}
+			id, err := strconv.ParseInt(text[col:end], 10, 64)
+			if err != nil || id <= 0 {
+				return nil, fmt.Errorf("%s:%d:%d: %q is not a changeset id (a positive whole number)", name, line, col+1, text[col:end])
+			}
+			ids = append(ids, id)
+			col = end
+		}
+	}
+	if err := sc.Err(); err != nil {
+		return nil, fmt.Errorf("%s: line %d: %w", name, line+1, err)
+	}
+	if len(ids) == 0 {
+		return nil, fmt.Errorf("%s: no changeset ids", name)
+	}
+	return ids, nil
+}
+
+// EpisodeCaution is printed with episode lists: what they are and are not.
+const EpisodeCaution = `Episodes are found from changeset tags, account names and sizes: they are
+candidates to check, not findings. Confirm each against the import's
+documentation and its community discussion before drawing conclusions; an
+account's edits say nothing about the people behind it. Any new import follows
+the community's import guidelines and local review.`
+
+// WriteEpisodes prints episodes as a table, one a line, then EpisodeCaution.
+func WriteEpisodes(w io.Writer, eps []Episode) error {
+	bw := bufio.NewWriter(w)
+	if len(eps) == 0 {
+		fmt.Fprintln(bw, "no import episodes found")
+	} else {
+		tw := tabwriter.NewWriter(bw, 0, 4, 2, ' ', 0)
+		fmt.Fprintln(tw, "EPISODE\tFIRST\tLAST\tACCOUNTS\tCHANGESETS\tCREATED\tMODIFIED\tDELETED\tCLASSES\tMATCHED BY")
+		for i := range eps {
+			e := &eps[i]
+			var accounts []string
+			for _, a := range e.Accounts {
+				accounts = append(accounts, fmt.Sprintf("%s (%d)", a.Name, a.UID))
+			}
+			fmt.Fprintf(tw, "%s\t%s\t%s\t%s\t%d\t%d\t%d\t%d\t%s\t%s\n", e.ID, e.FirstMonth, e.LastMonth,
+				strings.Join(accounts, ", "), len(e.Changesets), e.Created, e.Modified, e.Deleted,
+				episodeClasses(e.Classes, 3), strings.Join(e.Matchers, ","))
+		}
+		if err := tw.Flush(); err != nil {
+			return err
+		}
+	}
+	fmt.Fprintf(bw, "\n%s\n", EpisodeCaution)
+	return bw.Flush()
+}
+
+// episodeClasses names the n most frequent classes, "-" when none.
+func episodeClasses(cs []ClassCount, n int) string {
+	if len(cs) == 0 {
+		return "-"
+	}
+	var parts []string
+	for i, c := range cs {
+		if i == n {
+			parts = append(parts, fmt.Sprintf("+%d more", len(cs)-n))
+			break
+		}
+		parts = append(parts, fmt.Sprintf("%s %d", c.Class, c.Count))
+	}
+	return strings.Join(parts, ", ")
+}
+
+// WriteEpisodesJSON prints episodes as an indented JSON array of Episode
+// objects (an empty array when there are none).
+func WriteEpisodesJSON(w io.Writer, eps []Episode) error {
+	if eps == nil {
+		eps = []Episode{}
+	}
+	enc := json.NewEncoder(w)
+	enc.SetIndent("", "  ")
+	return enc.Encode(eps)
 }

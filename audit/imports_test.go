@@ -321,3 +321,53 @@ func TestEpisodeJSON(t *testing.T) {
 		t.Errorf("JSON\n%s\nwant\n%s", b, want)
 	}
 }
+
+func TestReadChangesetIDs(t *testing.T) {
+	tests := []struct {
+		name, in string
+		want     []int64
+		wantErr  string
+	}{
+		{"lines and commas", "# import of harbour parcels\n10, 11\n12\t13 # last\n", []int64{10, 11, 12, 13}, ""},
+		{"crlf", "10\r\n11\r\n", []int64{10, 11}, ""},
+		{"bad id", "10\n11, x12\n", nil, "ids.txt:2:5: \"x12\" is not a changeset id"},
+		{"negative", "-4\n", nil, "ids.txt:1:1: \"-4\""},
+		{"empty", "# nothing\n", nil, "ids.txt: no changeset ids"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			got, err := ReadChangesetIDs(strings.NewReader(tt.in), "ids.txt")
+			if tt.wantErr != "" {
+				if err == nil || !strings.Contains(err.Error(), tt.wantErr) {
+					t.Fatalf("err = %v, want %q", err, tt.wantErr)
+				}
+				return
+			}
+			if err != nil || !slices.Equal(got, tt.want) {
+				t.Errorf("got %v, %v, want %v", got, err, tt.want)
+			}
+		})
+	}
+}
+
+func TestWriteEpisodes(t *testing.T) {
+	eps, err := DetectImports(context.Background(), history(), rules.Default(), DetectOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var b strings.Builder
+	if err := WriteEpisodes(&b, eps[:2]); err != nil {
+		t.Fatal(err)
+	}
+	want := "EPISODE  FIRST    LAST     ACCOUNTS                  CHANGESETS  CREATED  MODIFIED  DELETED  CLASSES                                                    MATCHED BY\n" +
+		"imp-10   2021-03  2021-03  harbourdata_import (501)  2           4        1         1        building=* 3, addr:housenumber=* 1, highway=residential 1  import-tag,import-account\n" +
+		"imp-30   2021-03  2021-03  bulk_import_bot (502)     1           2        0         0        amenity=bench 2                                            import-account\n" +
+		"\n" + EpisodeCaution + "\n"
+	if b.String() != want {
+		t.Errorf("got\n%s\nwant\n%s", b.String(), want)
+	}
+	b.Reset()
+	if err := WriteEpisodesJSON(&b, nil); err != nil || b.String() != "[]\n" {
+		t.Errorf("empty JSON = %q, %v", b.String(), err)
+	}
+}

@@ -49,6 +49,7 @@ the community's import guidelines and local review.`,
 		// commands: one constructor per file, in the order of the job
 		newRulesCommand(g),
 		newClassifyCommand(g),
+		newImportsCommand(g),
 		newEstimateCommand(g),
 	)
 	return root

@@ -1,0 +1,106 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"io/fs"
+	"os"
+
+	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/rules"
+	"github.com/spf13/cobra"
+)
+
+// importsOptions holds the flags of `loadwake imports`.
+type importsOptions struct {
+	rules        string // rule file; "" means the built-in rules
+	json         bool   // JSON array instead of a table
+	changesets   string // file listing the changesets of a named import
+	account      string // account of a named import
+	includeEmpty bool   // keep matched changesets with no stored versions
+}
+
+func newImportsCommand(g *globalOptions) *cobra.Command {
+	var o importsOptions
+	cmd := &cobra.Command{
+		Use:   "imports",
+		Short: "List past import episodes found in the stored history",
+		Long: `imports matches every stored changeset against the import rules (import=yes
+and similar changeset tags, dedicated import accounts, large creation-only
+changesets; see loadwake rules show) and groups the matches by account and
+changeset source tag into episodes. Name an import yourself with --changesets
+FILE (ids separated by spaces, commas or lines; # starts a comment) or
+--account NAME (a name, or a numeric account id): the result is then that one
+episode, whatever the rules say.
+
+--json prints an array of episodes with the fields:
+  id           "imp-" or "manual-" and the smallest changeset id; stable across runs
+  matchers     names of the rules' matchers that matched ("manual" when named)
+  accounts     [{uid, name}] of the changesets
+  source       the changesets' source tag (rule-based episodes), omitted when empty
+  changesets   changeset ids, ascending
+  created, modified, deleted
+               versions in the store that created (version 1), deleted
+               (visible=false) or otherwise modified objects
+  classes      [{class, count}] of those versions by feature class
+  first, last  opening of the first and closing of the last changeset (RFC 3339, UTC)
+  first_month, last_month
+               the same as YYYY-MM
+  bbox         [min_lon, min_lat, max_lon, max_lat], omitted when unknown
+
+Episodes are candidates to check against the import's documentation and its
+community discussion, not findings about the people behind an account.`,
+		Args: noArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error {
+			return runImports(cmd, g, &o)
+		},
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.rules, "rules", "", "rule file (default: the built-in rules; see loadwake rules show)")
+	f.BoolVar(&o.json, "json", false, "print a JSON array of episodes instead of a table")
+	f.StringVar(&o.changesets, "changesets", "", "file listing the changeset ids of one import to describe")
+	f.StringVar(&o.account, "account", "", "account name or numeric id of one import to describe")
+	f.BoolVar(&o.includeEmpty, "include-empty", false, "keep matched changesets the store holds no versions of")
+	return cmd
+}
+
+func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
+	r := rules.Default()
+	if o.rules != "" {
+		var err error
+		if r, err = rules.Load(o.rules); err != nil {
+			return err
+		}
+	}
+	opts := audit.DetectOptions{Account: o.account, IncludeEmpty: o.includeEmpty}
+	if o.changesets != "" {
+		f, err := os.Open(o.changesets)
+		if err != nil {
+			return fmt.Errorf("changeset list: %w", err)
+		}
+		opts.Changesets, err = audit.ReadChangesetIDs(f, o.changesets)
+		f.Close()
+		if err != nil {
+			return err
+		}
+	}
+	if _, err := os.Stat(g.store); errors.Is(err, fs.ErrNotExist) {
+		return fmt.Errorf("no store at %s: run loadwake ingest first, or pass --store", g.store)
+	}
+	st, err := ingest.Open(g.store, ingest.DefaultOptions())
+	if err != nil {
+		return err
+	}
+	eps, err := audit.DetectImports(cmd.Context(), st, r, opts)
+	if cerr := st.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		return err
+	}
+	if o.json {
+		return audit.WriteEpisodesJSON(cmd.OutOrStdout(), eps)
+	}
+	return audit.WriteEpisodes(cmd.OutOrStdout(), eps)
+}
