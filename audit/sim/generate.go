@@ -817,6 +817,20 @@ func (g *gen) newFeature(d *district, kind uint8, t int64, imported bool) {
 	g.addLive(d, int32(len(g.features)-1))
 }
 
+// move returns a new position lo to hi metres from (lat, lon) that stays in
+// d and differs from the old one, so that the version is a real geometry edit.
+func (g *gen) move(d *district, lat, lon int32, lo, hi float64) (int32, int32) {
+	for range 16 {
+		la, ln := d.clamp(g.offset(lat, lon, lo+(hi-lo)*g.rng.Float64()))
+		if la != lat || ln != lon {
+			return la, ln
+		}
+	}
+	// Stuck in a corner: step towards the district's centre.
+	cLat, cLon := d.minLat+d.spanLat/2, d.minLon+d.spanLon/2
+	return lat + (cLat-lat)/100 + 1, lon + (cLon-lon)/100 + 1
+}
+
 func (g *gen) offsetXY(lat, lon int32, north, east float64) (int32, int32) {
 	dLat := north / 111_320
 	dLon := east / (111_320 * math.Cos(float64(lat)*1e-7*math.Pi/180))
@@ -889,7 +903,7 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 		case 0: // move a tagged POI node
 			f := &g.features[g.randomLive(d, kindPOI)]
 			n := &g.nodes[f.id-1]
-			n.lat, n.lon = d.clamp(g.offset(n.lat, n.lon, 2+28*r.Float64()))
+			n.lat, n.lon = g.move(d, n.lat, n.lon, 2, 30)
 			g.writeNode(f.id, stamp(t, n.last), true, f.tags)
 			return true
 		case 1: // move an untagged way node
@@ -899,7 +913,7 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 				nid = w.nodes[r.IntN(len(w.nodes))]
 			}
 			n := &g.nodes[nid-1]
-			n.lat, n.lon = d.clamp(g.offset(n.lat, n.lon, 1+7*r.Float64()))
+			n.lat, n.lon = g.move(d, n.lat, n.lon, 1, 8)
 			g.writeNode(nid, stamp(t, n.last), true, nil)
 			return true
 		case 2: // insert a node into a way
