@@ -5,6 +5,9 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"os"
+	"os/exec"
+	"path/filepath"
 	"slices"
 	"strings"
 	"testing"
@@ -12,6 +15,8 @@ import (
 
 	"github.com/paulmach/osm"
 
+	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
 )
 
@@ -370,4 +375,136 @@ func TestWriteEpisodes(t *testing.T) {
 	if err := WriteEpisodesJSON(&b, nil); err != nil || b.String() != "[]\n" {
 		t.Errorf("empty JSON = %q, %v", b.String(), err)
 	}
+}
+
+// TestDetectSimulated checks DetectImports against the simulator's truth: the
+// changesets it planted as import changesets (truth.json import_changesets)
+// must be exactly the changesets of the detected episodes, and every
+// episode's account one of the planted import accounts. The world is
+// invented by audit/sim; it is stored through ingest as the command does.
+func TestDetectSimulated(t *testing.T) {
+	if testing.Short() {
+		t.Skip("generates and ingests a simulated history")
+	}
+	ctx := context.Background()
+	cfg := sim.DefaultConfig()
+	cfg.Cols, cfg.Rows, cfg.Months = 4, 4, 18
+	cfg.Treated, cfg.Waves = 4, 2
+	cfg.Scale = 0.25
+	cfg.ChangesetLimit = 40 // several changesets per district import
+	dir := t.TempDir()
+	truth, err := sim.Generate(ctx, cfg, dir, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	st, err := ingest.OpenInMemory(ingest.DefaultOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	paths := []string{filepath.Join(dir, sim.ChangesetsFile), filepath.Join(dir, sim.HistoryFile)}
+	if _, err := ingest.Ingest(ctx, st, paths, ingest.IngestOptions{}); err != nil {
+		t.Fatal(err)
+	}
+	eps, err := DetectImports(ctx, st, rules.Default(), DetectOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got []int64
+	accounts := map[osm.UserID]bool{}
+	for _, a := range truth.ImportAccounts {
+		accounts[osm.UserID(a.UID)] = true
+	}
+	for _, e := range eps {
+		for _, c := range e.Changesets {
+			got = append(got, int64(c))
+		}
+		if len(e.Accounts) != 1 || !accounts[e.Accounts[0].UID] {
+			t.Errorf("episode %s accounts %v are not one planted import account", e.ID, e.Accounts)
+		}
+		if e.Created == 0 || e.Source == "" {
+			t.Errorf("episode %s: created %d, source %q", e.ID, e.Created, e.Source)
+		}
+	}
+	slices.Sort(got)
+	want := slices.Clone(truth.ImportChangesets)
+	slices.Sort(want)
+	if len(want) < 2*cfg.Treated {
+		t.Fatalf("the simulation planted only %d import changesets; the config no longer splits imports", len(want))
+	}
+	t.Logf("%d episodes, %d import changesets planted", len(eps), len(want))
+	if !slices.Equal(got, want) {
+		t.Errorf("detected import changesets %v\nplanted %v", got, want)
+	}
+	// Waves start months apart, more than the 30-day gap: at least one
+	// episode per wave.
+	if len(eps) < cfg.Waves {
+		t.Errorf("%d episodes for %d waves", len(eps), cfg.Waves)
+	}
+}
+
+// TestDetectRealTIGER runs DetectImports on real history shipped with the osm
+// module (github.com/paulmach/osm v0.8.0, annotate/testdata/relation_2714790.osm,
+// the members of a relation in California with all their versions). Account
+// 7168 is the 2007 TIGER import account (OSM wiki, TIGER page; from memory).
+// Counts read off the file with grep: 207 versions by uid 7168, all version 1
+// and visible, in 4 changesets, all timestamped 2007-09.
+func TestDetectRealTIGER(t *testing.T) {
+	path := osmModuleFile(t, "annotate/testdata/relation_2714790.osm")
+	ctx := context.Background()
+	st, err := ingest.OpenInMemory(ingest.DefaultOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	if _, err := ingest.Ingest(ctx, st, []string{path}, ingest.IngestOptions{}); err != nil {
+		t.Fatal(err)
+	}
+	// The built-in rules look for the signs today's guidelines ask for; the
+	// 2007 upload carries none of them (no changeset metadata, no import tag).
+	eps, err := DetectImports(ctx, st, rules.Default(), DetectOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(eps) != 0 {
+		t.Errorf("built-in rules found %d episodes in the TIGER history, want 0", len(eps))
+	}
+	src := strings.Replace(string(rules.DefaultYAML()), "  matchers:\n", "  matchers:\n    - name: tiger-account\n      account_ids: [7168]\n", 1)
+	r, err := rules.Parse("tiger.yaml", []byte(src))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, opts := range []DetectOptions{{}, {Account: "7168"}} {
+		eps, err := DetectImports(ctx, st, r, opts)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if len(eps) != 1 {
+			t.Fatalf("%+v: %d episodes, want 1", opts, len(eps))
+		}
+		e := eps[0]
+		if len(e.Changesets) != 4 || e.Created != 207 || e.Modified != 0 || e.Deleted != 0 ||
+			e.FirstMonth != "2007-09" || e.LastMonth != "2007-09" {
+			t.Errorf("%+v: episode %s changesets %v created/modified/deleted %d/%d/%d months %s..%s, want 4 changesets, 207/0/0, 2007-09",
+				opts, e.ID, e.Changesets, e.Created, e.Modified, e.Deleted, e.FirstMonth, e.LastMonth)
+		}
+		if want := fmt.Sprintf("%s-%d", map[bool]string{true: "manual", false: "imp"}[opts.Account != ""], e.Changesets[0]); e.ID != want {
+			t.Errorf("ID %s, want %s", e.ID, want)
+		}
+	}
+}
+
+// osmModuleFile returns the path of a file in the osm module's source in the
+// module cache; the test skips when the cache does not hold it.
+func osmModuleFile(t testing.TB, rel string) string {
+	t.Helper()
+	out, err := exec.Command("go", "env", "GOMODCACHE").Output()
+	if err != nil {
+		t.Skipf("go env GOMODCACHE: %v", err)
+	}
+	p := filepath.Join(strings.TrimSpace(string(out)), "github.com", "paulmach", "osm@v0.8.0", rel)
+	if _, err := os.Stat(p); err != nil {
+		t.Skipf("osm module testdata not in the module cache: %v", err)
+	}
+	return p
 }
