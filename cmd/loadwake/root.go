@@ -47,11 +47,11 @@ the community's import guidelines and local review.`,
 
 	root.AddCommand(
 		// commands: one constructor per file, in the order of the job
+		newIngestCommand(g), newStatsCommand(g),
 		newRulesCommand(g),
 		newClassifyCommand(g),
 		newImportsCommand(g),
 		newEstimateCommand(g),
-		newSimulateCommand(g),
 	)
 	return root
 }

@@ -1,0 +1,110 @@
+package main
+
+import (
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+
+	"github.com/dustin/go-humanize"
+	"github.com/loadwake/loadwake/ingest"
+	"github.com/spf13/cobra"
+	"golang.org/x/term"
+)
+
+// ingestOptions holds the flags of `loadwake ingest`.
+type ingestOptions struct {
+	// noClassify is read by the classification pass that follows ingest; the
+	// pass is run by `loadwake classify` and skips nothing here yet.
+	noClassify bool
+}
+
+func newIngestCommand(g *globalOptions) *cobra.Command {
+	var o ingestOptions
+	cmd := &cobra.Command{
+		Use:   "ingest FILE...",
+		Short: "Read OpenStreetMap history files into the store",
+		Long: `ingest reads OSM files into the history store (--store, created when missing):
+PBF snapshots and full histories, OSM XML histories, OsmChange diffs and
+changeset metadata, plain or compressed with gzip or bzip2, in any order.
+Every version is kept under its type, id and version: ingesting a file again
+adds nothing, a history followed by later diffs merges into one history, and a
+version stored before with different content is kept and reported as a
+conflict. A file already ingested completely (same SHA-256) is skipped.
+
+A file with malformed content is abandoned at the error, which names the file
+and position; what was stored before stays consistent and a rerun after the
+fix completes without duplicates. Ctrl-C stops between batches likewise.
+
+--no-classify is for the classification pass (loadwake classify), which is run
+separately for now.
+
+OpenStreetMap data is licensed under the ODbL: keep its attribution in
+whatever you derive from the store.`,
+		Args: func(_ *cobra.Command, args []string) error {
+			if len(args) == 0 {
+				return usagef("ingest needs at least one FILE")
+			}
+			return nil
+		},
+		RunE: func(cmd *cobra.Command, args []string) error {
+			return runIngest(cmd, g, &o, args)
+		},
+	}
+	cmd.Flags().BoolVar(&o.noClassify, "no-classify", false, "do not classify the new edits (used by the classification pass)")
+	return cmd
+}
+
+func runIngest(cmd *cobra.Command, g *globalOptions, _ *ingestOptions, paths []string) error {
+	for _, p := range paths {
+		if st, err := os.Stat(p); err != nil {
+			return fmt.Errorf("ingest: %w", err)
+		} else if st.IsDir() {
+			return usagef("ingest: %s is a directory, not a file", p)
+		}
+	}
+	s, err := ingest.Open(g.store, ingest.DefaultOptions())
+	if err != nil {
+		return err
+	}
+	opts := ingest.IngestOptions{}
+	errw := cmd.ErrOrStderr()
+	if f, ok := errw.(*os.File); ok && !g.quiet && term.IsTerminal(int(f.Fd())) {
+		opts.Progress = ingest.NewLineProgress(errw, nil)
+	}
+	rep, err := ingest.Ingest(cmd.Context(), s, paths, opts)
+	printIngestReport(cmd.OutOrStdout(), errw, rep)
+	if cerr := s.Close(); err == nil {
+		err = cerr
+	}
+	return err
+}
+
+// printIngestReport writes a line per file and a summary line to out and the
+// conflict examples to errw.
+func printIngestReport(out, errw io.Writer, rep ingest.Report) {
+	for _, f := range rep.Files {
+		name := filepath.Base(f.Path)
+		switch {
+		case f.Skipped:
+			fmt.Fprintf(out, "%s: already ingested (sha256 %.12s), skipped\n", name, f.SHA256)
+		case f.Err != nil:
+			fmt.Fprintf(out, "%s: abandoned after %s new versions: %v\n", name, humanize.Comma(f.Versions), f.Err)
+		default:
+			fmt.Fprintf(out, "%s: %s, %s items: %s new versions, %s new changesets, %s duplicates, %s conflicts (%s)\n",
+				name, f.Format, humanize.Comma(f.Items), humanize.Comma(f.Versions), humanize.Comma(f.Changesets),
+				humanize.Comma(f.Duplicates), humanize.Comma(f.Conflicts), f.Elapsed.Round(1e6))
+		}
+	}
+	if len(rep.Conflicts) > 0 {
+		fmt.Fprintln(errw, "conflicts: these versions were stored before with different content; the stored ones were kept.")
+		fmt.Fprintln(errw, "The files disagree about history: check where they come from before relying on these objects.")
+		for _, c := range rep.Conflicts {
+			fmt.Fprintln(errw, "  "+c.String())
+		}
+	}
+	sum, t := rep.Sum(), rep.Totals
+	fmt.Fprintf(out, "ingested %d files: %s new versions, %s conflicts; store now holds %s versions of %s objects, %s changesets\n",
+		len(rep.Files), humanize.Comma(sum.Versions), humanize.Comma(sum.Conflicts), humanize.Comma(t.Versions()),
+		humanize.Comma(t.Nodes+t.Ways+t.Relations), humanize.Comma(t.Changesets))
+}
