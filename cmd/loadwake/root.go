@@ -52,6 +52,7 @@ the community's import guidelines and local review.`,
 		newClassifyCommand(g),
 		newImportsCommand(g),
 		newEstimateCommand(g),
+		newSimulateCommand(g),
 	)
 	return root
 }
