@@ -444,10 +444,14 @@ func callawaySantAnna(p *Panel, y []float64, cl []int, G int, opts EstimateOptio
 	sR := scale(clusterSums(relPhi, cl, G))
 	tc := len(tClusters)
 	boot := opts.useBootstrap(tc)
+	var bd *bootDraws
+	if boot {
+		bd = newBootDraws(rng, opts.Draws, G)
+	}
 	res := &csResult{byCohort: byCohort}
 	e := &estimate{att: theta, treatedUnits: nTreated, controlUnits: len(r.controls)}
 	infer := func(est float64, s []float64) (se, lo, hi, pv float64) {
-		return inferSums(est, s, boot, opts.Draws, rng, tc, G)
+		return inferSums(est, s, bd, tc, G)
 	}
 	e.se, e.lo, e.hi, e.p = infer(theta, sO)
 	if cf > 0 {
@@ -504,28 +508,26 @@ func callawaySantAnna(p *Panel, y []float64, cl []int, G int, opts EstimateOptio
 // inferSums turns an estimate and its cluster influence sums into a standard
 // error, 95% interval and p-value: analytic (normal, or t(G−1) with few treated
 // clusters) or by multiplier bootstrap.
-func inferSums(est float64, s []float64, boot bool, draws int, rng *rand.Rand, treatedClusters, G int) (se, lo, hi, p float64) {
+func inferSums(est float64, s []float64, bd *bootDraws, treatedClusters, G int) (se, lo, hi, p float64) {
 	ss := 0.0
 	for _, v := range s {
 		ss += v * v
 	}
 	se = math.Sqrt(ss)
-	if !boot {
+	if bd == nil {
 		c := critical(treatedClusters, G)
 		return se, est - c*se, est + c*se, pTwoSided(est/se, treatedClusters, G)
 	}
-	_, webb := bootName(G)
-	v := make([]float64, G)
-	d := make([]float64, draws)
+	d := make([]float64, bd.B)
 	for i := range d {
-		bootWeights(rng, v, webb)
+		v := bd.v[i*G : (i+1)*G]
 		x := 0.0
 		for g, sg := range s {
 			x += v[g] * sg
 		}
 		d[i] = x
 	}
-	abs := make([]float64, draws)
+	abs := make([]float64, bd.B)
 	for i, x := range d {
 		abs[i] = math.Abs(x)
 	}
@@ -585,6 +587,10 @@ func placeboCS(p *Panel, y []float64, cl []int, G int, opts EstimateOptions, rng
 			sums[i] *= math.Sqrt(float64(G) / float64(G-1))
 		}
 	}
-	_, lo, hi, pv := inferSums(agg.est, sums, opts.useBootstrap(len(tClusters)), opts.Draws, rng, len(tClusters), G)
+	var bd *bootDraws
+	if opts.useBootstrap(len(tClusters)) {
+		bd = newBootDraws(rng, opts.Draws, G)
+	}
+	_, lo, hi, pv := inferSums(agg.est, sums, bd, len(tClusters), G)
 	return &placebo{att: agg.est, lo: lo, hi: hi, p: pv, ok: true}, nil
 }

@@ -41,17 +41,38 @@ var errSingular = errors.New("singular design")
 var webbWeights = [6]float64{-math.Sqrt(1.5), -1, -math.Sqrt(0.5), math.Sqrt(0.5), 1, math.Sqrt(1.5)}
 
 // bootWeights fills v with one draw of wild bootstrap weights: Webb's six-point
-// when webb is true, Rademacher ±1 otherwise.
+// when webb is true, Rademacher ±1 otherwise (64 signs per random word).
 func bootWeights(rng *rand.Rand, v []float64, webb bool) {
-	for i := range v {
-		if webb {
+	if webb {
+		for i := range v {
 			v[i] = webbWeights[rng.IntN(6)]
-		} else if rng.Uint64()&1 == 0 {
-			v[i] = -1
-		} else {
-			v[i] = 1
 		}
+		return
 	}
+	var bits uint64
+	for i := range v {
+		if i%64 == 0 {
+			bits = rng.Uint64()
+		}
+		v[i] = float64(int(bits&1)*2 - 1)
+		bits >>= 1
+	}
+}
+
+// bootDraws holds B draws of G cluster weights, shared by every aggregate of
+// one outcome so that their bootstrap distributions are joint.
+type bootDraws struct {
+	B, G int
+	v    []float64 // v[b*G+g]
+}
+
+func newBootDraws(rng *rand.Rand, B, G int) *bootDraws {
+	_, webb := bootName(G)
+	d := &bootDraws{B: B, G: G, v: make([]float64, B*G)}
+	for b := range B {
+		bootWeights(rng, d.v[b*G:(b+1)*G], webb)
+	}
+	return d
 }
 
 // bootName names a wild bootstrap weight scheme for the method field.

@@ -361,21 +361,45 @@ func (a *twoWay) demean(v []float64) {
 	}
 }
 
-// stackedPPML estimates the effect on outcome y with a Poisson regression
-// stacked by cohort: for each cohort g the cohort's units and the
-// never-treated controls in months [g−Pre, g+Post), with stack-specific unit
-// and month fixed effects and one treated×post regressor (a "clean controls"
-// stacked design, as in Cengiz, Dube, Lindner & Zipperer 2019).
-func stackedPPML(p *Panel, y []float64, cl []int, G int, opts EstimateOptions, rng *rand.Rand) (*estimate, error) {
+// stacked is the cohort-stacked design of one outcome.
+type stacked struct {
+	y, d, w                   []float64
+	f1, f2, cl                []int
+	n1, n2                    int
+	blocks                    []ppmlBlock
+	tUnits, cUnits, tClusters map[int]bool
+	postSum, postN            float64
+	cohorts                   []int
+}
+
+// stackPanel builds the stacked arrays: per cohort its units and the
+// never-treated controls over the cohort's window.
+func stackPanel(p *Panel, y []float64, cl []int, win Window) *stacked {
 	T := p.Months
-	var yy, d, w []float64
-	var f1, f2, cc []int
+	cohorts := cohortsOf(p)
+	size, nCtl := map[int]int{}, 0
+	for _, un := range p.Units {
+		if un.Weight > 0 {
+			if un.FirstTreated >= 0 {
+				size[un.FirstTreated]++
+			} else {
+				nCtl++
+			}
+		}
+	}
+	rows, nb := 0, 0
+	for _, g := range cohorts {
+		rows += (size[g] + nCtl) * (min(T, g+win.Post) - max(0, g-win.Pre))
+		nb += size[g] + nCtl
+	}
+	yy, d, w := make([]float64, 0, rows), make([]float64, 0, rows), make([]float64, 0, rows)
+	f1, f2, cc := make([]int, 0, rows), make([]int, 0, rows), make([]int, 0, rows)
+	blocks := make([]ppmlBlock, 0, nb)
 	n1, n2 := 0, 0
 	tUnits, cUnits, tClusters := map[int]bool{}, map[int]bool{}, map[int]bool{}
 	postSum, postN := 0.0, 0.0
-	cohorts := cohortsOf(p)
 	for _, g := range cohorts {
-		lo, hi := max(0, g-opts.Window.Pre), min(T, g+opts.Window.Post)
+		lo, hi := max(0, g-win.Pre), min(T, g+win.Post)
 		if g-lo < 1 {
 			continue
 		}
@@ -384,6 +408,7 @@ func stackedPPML(p *Panel, y []float64, cl []int, G int, opts EstimateOptions, r
 				continue
 			}
 			tr := un.FirstTreated == g
+			blocks = append(blocks, ppmlBlock{start: len(yy), n: hi - lo, tOff: n2})
 			for t := lo; t < hi; t++ {
 				v := y[u*T+t]
 				yy = append(yy, v)
@@ -409,10 +434,23 @@ func stackedPPML(p *Panel, y []float64, cl []int, G int, opts EstimateOptions, r
 		}
 		n2 += hi - lo
 	}
+	return &stacked{y: yy, d: d, w: w, f1: f1, f2: f2, cl: cc, n1: n1, n2: n2, blocks: blocks,
+		tUnits: tUnits, cUnits: cUnits, tClusters: tClusters, postSum: postSum, postN: postN, cohorts: cohorts}
+}
+
+// stackedPPML estimates the effect on outcome y with a Poisson regression
+// stacked by cohort: for each cohort g the cohort's units and the
+// never-treated controls in months [g−Pre, g+Post), with stack-specific unit
+// and month fixed effects and one treated×post regressor (a "clean controls"
+// stacked design, as in Cengiz, Dube, Lindner & Zipperer 2019).
+func stackedPPML(p *Panel, y []float64, cl []int, G int, opts EstimateOptions, rng *rand.Rand) (*estimate, error) {
+	st := stackPanel(p, y, cl, opts.Window)
+	tUnits, cUnits, tClusters, cohorts := st.tUnits, st.cUnits, st.tClusters, st.cohorts
+	postSum, postN := st.postSum, st.postN
 	if len(tUnits) < 2 || len(cUnits) < 2 {
 		return nil, fmt.Errorf("%d treated and %d control units in the stacked windows; need at least 2 of each", len(tUnits), len(cUnits))
 	}
-	fit, err := fitPoissonFE(yy, [][]float64{d}, f1, n1, f2, n2, w, cc, G)
+	fit, err := fitStackedPoisson(st.y, st.d, st.w, st.cl, G, st.blocks, st.n2)
 	if err != nil {
 		return nil, err
 	}
@@ -460,4 +498,337 @@ func cohortsOf(p *Panel) []int {
 	}
 	slices.Sort(cs)
 	return cs
+}
+
+// ppmlBlock is one stacked unit: rows [start, start+n) of the stacked
+// arrays, months with fixed effects tOff..tOff+n−1 of its stack.
+type ppmlBlock struct{ start, n, tOff int }
+
+// fitStackedPoisson fits the Poisson model with one fixed effect per block
+// (stacked unit), one per stack month and the single regressor d, by
+// Newton's method on the likelihood with the unit effects concentrated out:
+// given the rest, a unit's effect is log(Σ_t y / Σ_t exp(γ_t + βd)), which
+// turns each unit's counts into a multinomial over its months (Hausman, Hall &
+// Griliches 1984). The month effects of a stack only meet that stack's units,
+// so the Hessian is block diagonal plus a border for β and each Newton step
+// costs one pass over the data. The estimate, scores and CR1 variance are
+// those of the full dummy-variable fit (fitPoissonFE; checked in tests).
+func fitStackedPoisson(y, d, w []float64, cl []int, G int, blocks []ppmlBlock, nMonths int) (*ppmlFit, error) {
+	// drop blocks with no counts, then stack months with no counts
+	var keep []ppmlBlock
+	fit := &ppmlFit{}
+	monthSum := make([]float64, nMonths)
+	for _, b := range blocks {
+		n := 0.0
+		for i := range b.n {
+			n += y[b.start+i]
+		}
+		if n == 0 || w[b.start] <= 0 {
+			if w[b.start] > 0 {
+				fit.dropped1++
+			}
+			continue
+		}
+		keep = append(keep, b)
+		for i := range b.n {
+			monthSum[b.tOff+i] += y[b.start+i]
+		}
+	}
+	if len(keep) < 2 {
+		return nil, errors.New("fewer than 2 stacked units with any count")
+	}
+	// free month parameters: per stack the first active month is fixed at 0
+	free := make([]int, nMonths) // index into the stack's free list, −1 fixed, −2 inactive
+	type stack struct{ off, n, m int }
+	stacks := map[int]*stack{}
+	var order []int
+	for _, b := range keep {
+		if _, ok := stacks[b.tOff]; !ok {
+			stacks[b.tOff] = &stack{off: b.tOff, n: b.n}
+			order = append(order, b.tOff)
+		}
+	}
+	activeMonths := 0
+	for _, off := range order {
+		s := stacks[off]
+		first := true
+		for t := s.off; t < s.off+s.n; t++ {
+			switch {
+			case monthSum[t] == 0:
+				free[t] = -2
+				fit.dropped2++
+			case first:
+				free[t] = -1
+				first = false
+				activeMonths++
+			default:
+				free[t] = s.m
+				s.m++
+				activeMonths++
+			}
+		}
+	}
+	gam := make([]float64, nMonths)
+	for t := range gam {
+		if free[t] == -2 {
+			continue
+		}
+		gam[t] = math.Log(monthSum[t])
+	}
+	for _, off := range order { // normalise so the fixed month is 0
+		s := stacks[off]
+		base := 0.0
+		for t := s.off; t < s.off+s.n; t++ {
+			if free[t] == -1 {
+				base = gam[t]
+			}
+		}
+		for t := s.off; t < s.off+s.n; t++ {
+			gam[t] -= base
+		}
+	}
+	beta := 0.0
+	maxN := 0
+	for _, b := range keep {
+		maxN = max(maxN, b.n)
+	}
+	pi := make([]float64, maxN)
+	// loglik returns the concentrated log likelihood at (gam, beta).
+	loglik := func(gam []float64, beta float64) float64 {
+		ll := 0.0
+		for _, b := range keep {
+			mx := math.Inf(-1)
+			for i := range b.n {
+				if free[b.tOff+i] != -2 {
+					mx = max(mx, gam[b.tOff+i]+beta*d[b.start+i])
+				}
+			}
+			z := 0.0
+			for i := range b.n {
+				if free[b.tOff+i] != -2 {
+					z += math.Exp(gam[b.tOff+i] + beta*d[b.start+i] - mx)
+				}
+			}
+			lz := mx + math.Log(z)
+			for i := range b.n {
+				if yv := y[b.start+i]; yv > 0 {
+					ll += w[b.start] * yv * (gam[b.tOff+i] + beta*d[b.start+i] - lz)
+				}
+			}
+		}
+		return ll
+	}
+	// derivatives at the current point
+	A := map[int]*mat.SymDense{}
+	gG := map[int][]float64{}
+	B := map[int][]float64{}
+	var gB, cBB float64
+	deriv := func() {
+		gB, cBB = 0, 0
+		for _, off := range order {
+			m := stacks[off].m
+			if A[off] == nil {
+				A[off] = mat.NewSymDense(max(m, 1), nil)
+			} else {
+				A[off].Zero()
+			}
+			gG[off] = make([]float64, m)
+			B[off] = make([]float64, m)
+		}
+		for _, b := range keep {
+			blockProbs(b, gam, beta, d, free, pi)
+			n := 0.0
+			for i := range b.n {
+				n += y[b.start+i]
+			}
+			wu := w[b.start]
+			xbar := 0.0
+			for i := range b.n {
+				xbar += pi[i] * d[b.start+i]
+			}
+			a := A[b.tOff].RawSymmetric()
+			gg, bb := gG[b.tOff], B[b.tOff]
+			for i := range b.n {
+				fi := free[b.tOff+i]
+				r := y[b.start+i] - n*pi[i]
+				gB += wu * d[b.start+i] * r
+				if fi < 0 {
+					continue
+				}
+				gg[fi] += wu * r
+				bb[fi] += wu * n * pi[i] * (d[b.start+i] - xbar)
+				row := a.Data[fi*a.Stride:]
+				row[fi] += wu * n * pi[i]
+				for j := i; j < b.n; j++ {
+					if fj := free[b.tOff+j]; fj >= 0 {
+						row[fj] -= wu * n * pi[i] * pi[j]
+					}
+				}
+			}
+			cBB += wu * n * (xbar - xbar*xbar)
+		}
+	}
+	solve := func() (dB float64, dG map[int][]float64, schur float64, q map[int][]float64, err error) {
+		q = map[int][]float64{}
+		rg := map[int][]float64{}
+		schur = cBB
+		num := gB
+		for _, off := range order {
+			m := stacks[off].m
+			if m == 0 {
+				continue
+			}
+			var ch mat.Cholesky
+			if !ch.Factorize(A[off]) {
+				return 0, nil, 0, nil, fmt.Errorf("stacked Poisson: month effects of a stack: %w", errSingular)
+			}
+			qv := mat.NewVecDense(m, nil)
+			if err := ch.SolveVecTo(qv, mat.NewVecDense(m, B[off])); err != nil {
+				return 0, nil, 0, nil, errSingular
+			}
+			rv := mat.NewVecDense(m, nil)
+			if err := ch.SolveVecTo(rv, mat.NewVecDense(m, gG[off])); err != nil {
+				return 0, nil, 0, nil, errSingular
+			}
+			q[off], rg[off] = qv.RawVector().Data, rv.RawVector().Data
+			for i := range m {
+				schur -= B[off][i] * q[off][i]
+				num -= B[off][i] * rg[off][i]
+			}
+		}
+		if !(schur > 1e-12*max(cBB, 1e-300)) {
+			return 0, nil, 0, nil, fmt.Errorf("stacked Poisson: %w (treatment indistinguishable from the fixed effects)", errSingular)
+		}
+		dB = num / schur
+		dG = map[int][]float64{}
+		for _, off := range order {
+			m := stacks[off].m
+			dg := make([]float64, m)
+			for i := range m {
+				dg[i] = rg[off][i] - q[off][i]*dB
+			}
+			dG[off] = dg
+		}
+		return dB, dG, schur, q, nil
+	}
+	ll := loglik(gam, beta)
+	newGam := make([]float64, nMonths)
+	for iter := 0; ; iter++ {
+		deriv()
+		dB, dG, _, _, err := solve()
+		if err != nil {
+			return nil, err
+		}
+		step := 1.0
+		maxStep := math.Abs(dB)
+		for _, dg := range dG {
+			for _, v := range dg {
+				maxStep = max(maxStep, math.Abs(v))
+			}
+		}
+		for {
+			copy(newGam, gam)
+			for _, off := range order {
+				s := stacks[off]
+				for t := s.off; t < s.off+s.n; t++ {
+					if fi := free[t]; fi >= 0 {
+						newGam[t] += step * dG[off][fi]
+					}
+				}
+			}
+			nl := loglik(newGam, beta+step*dB)
+			if nl >= ll-1e-12*math.Abs(ll) || step < 1e-8 {
+				ll = nl
+				break
+			}
+			step /= 2
+		}
+		copy(gam, newGam)
+		beta += step * dB
+		fit.iter = iter + 1
+		if maxStep*step < 1e-11 {
+			break
+		}
+		if iter >= 100 || !finite(beta) {
+			return nil, errors.New("stacked Poisson: no convergence in 100 Newton steps")
+		}
+	}
+	// sandwich at the optimum: unit scores with the month effects partialled out
+	deriv()
+	_, _, schur, q, err := solve()
+	if err != nil {
+		return nil, err
+	}
+	sc := make([]float64, G)
+	used := make([]bool, G)
+	nObs := 0
+	for _, b := range keep {
+		blockProbs(b, gam, beta, d, free, pi)
+		n := 0.0
+		for i := range b.n {
+			n += y[b.start+i]
+		}
+		wu := w[b.start]
+		s := 0.0
+		for i := range b.n {
+			fi := free[b.tOff+i]
+			if fi == -2 {
+				continue
+			}
+			nObs++
+			r := wu * (y[b.start+i] - n*pi[i])
+			s += d[b.start+i] * r
+			if fi >= 0 {
+				s -= q[b.tOff][fi] * r
+			}
+		}
+		c := cl[b.start]
+		sc[c] += s
+		used[c] = true
+	}
+	kParams := 1 + len(keep) + activeMonths - 1
+	Gu := 0
+	meat := 0.0
+	for g, u := range used {
+		if u {
+			Gu++
+			meat += sc[g] * sc[g]
+		}
+	}
+	if Gu < 2 || nObs <= kParams {
+		return nil, fmt.Errorf("stacked Poisson: %d clusters, %d observations for %d parameters", Gu, nObs, kParams)
+	}
+	fit.adj = float64(Gu) / float64(Gu-1) * float64(nObs-1) / float64(nObs-kParams)
+	fit.beta = []float64{beta}
+	fit.vcov = mat.NewSymDense(1, []float64{fit.adj * meat / (schur * schur)})
+	fit.g = Gu
+	fit.nObs = nObs
+	a := make([]float64, G)
+	for g := range a {
+		a[g] = sc[g] / schur
+	}
+	fit.a = [][]float64{a}
+	return fit, nil
+}
+
+// blockProbs writes the block's multinomial month probabilities into pi.
+func blockProbs(b ppmlBlock, gam []float64, beta float64, d []float64, free []int, pi []float64) {
+	mx := math.Inf(-1)
+	for i := range b.n {
+		if free[b.tOff+i] != -2 {
+			mx = max(mx, gam[b.tOff+i]+beta*d[b.start+i])
+		}
+	}
+	z := 0.0
+	for i := range b.n {
+		if free[b.tOff+i] == -2 {
+			pi[i] = 0
+			continue
+		}
+		pi[i] = math.Exp(gam[b.tOff+i] + beta*d[b.start+i] - mx)
+		z += pi[i]
+	}
+	for i := range b.n {
+		pi[i] /= z
+	}
 }

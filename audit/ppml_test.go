@@ -83,3 +83,46 @@ func TestPoissonFEDropsAllZeroGroups(t *testing.T) {
 		t.Errorf("2x2 Poisson slope %v, want %v", small.beta[0], want)
 	}
 }
+
+// TestStackedPoissonMatchesDummyFit: the concentrated Newton fit of the
+// stacked design must give the dummy-variable Poisson fit's coefficient,
+// CR1 variance and bootstrap contributions (fitPoissonFE, itself checked
+// against R's glm above), including with all-zero units and weights.
+func TestStackedPoissonMatchesDummyFit(t *testing.T) {
+	w := simWorld{perCohort: 15, cohorts: []int{5, 8, 11}, controls: 30, months: 18, delta: 0.3}
+	for _, seed := range []uint64{1, 2, 3} {
+		p := w.panel(seed)
+		for u := range 4 { // some all-zero units, some weights
+			for m := range p.Months {
+				p.Y[0][(u*7)*p.Months+m] = 0
+			}
+		}
+		for u := 50; u < 70; u++ {
+			p.Units[u].Weight = 0.3 + float64(u%5)/4
+		}
+		cl, G := p.clusterIndex()
+		st := stackPanel(p, p.Y[0], cl, Window{Pre: 4, Post: 6})
+		fast, err := fitStackedPoisson(st.y, st.d, st.w, st.cl, G, st.blocks, st.n2)
+		if err != nil {
+			t.Fatal(err)
+		}
+		slow, err := fitPoissonFE(st.y, [][]float64{st.d}, st.f1, st.n1, st.f2, st.n2, st.w, st.cl, G)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if math.Abs(fast.beta[0]-slow.beta[0]) > 1e-8 {
+			t.Errorf("seed %d: beta %v concentrated, %v dummy fit", seed, fast.beta[0], slow.beta[0])
+		}
+		if v1, v2 := fast.vcov.At(0, 0), slow.vcov.At(0, 0); math.Abs(v1-v2) > 1e-6*v2 {
+			t.Errorf("seed %d: variance %v concentrated, %v dummy fit", seed, v1, v2)
+		}
+		if fast.dropped1 != slow.dropped1 || fast.dropped1 == 0 {
+			t.Errorf("seed %d: dropped %d and %d units", seed, fast.dropped1, slow.dropped1)
+		}
+		for g := range G {
+			if math.Abs(fast.a[0][g]-slow.a[0][g]) > 1e-7 {
+				t.Fatalf("seed %d: cluster %d contribution %v vs %v", seed, g, fast.a[0][g], slow.a[0][g])
+			}
+		}
+	}
+}
