@@ -154,7 +154,7 @@ func Generate(ctx context.Context, cfg Config, dir string, force bool) (*Truth, 
 	defer os.RemoveAll(tmp)
 
 	g := newGen(cfg)
-	g.out = runWriter{dir: tmp, limit: runLimit}
+	g.out = runWriter{dir: tmp, limit: runLimit, buf: make([]byte, 0, runLimit+4<<20), idx: make([]runRec, 0, 1<<16)}
 	if err := g.setup(); err != nil {
 		return nil, err
 	}
