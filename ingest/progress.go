@@ -114,5 +114,5 @@ func progressLine(name string, done, total, objects int64, elapsed time.Duration
 	secs := int64(elapsed.Seconds())
 	return fmt.Sprintf("%s  [%s%s] %3.0f%%  %s/%s  %s obj/s  %d:%02d",
 		name, strings.Repeat("#", filled), strings.Repeat("-", barWidth-filled), frac*100,
-		humanize.Bytes(uint64(max(done, 0))), humanize.Bytes(uint64(max(total, 0))), humanize.SIWithDigits(rate, 1, ""), secs/60, secs%60)
+		humanize.Bytes(uint64(max(done, 0))), humanize.Bytes(uint64(max(total, 0))), strings.TrimSpace(humanize.SIWithDigits(rate, 1, "")), secs/60, secs%60)
 }
