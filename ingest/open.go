@@ -239,7 +239,8 @@ func xmlFormat(head []byte) (Format, bool) {
 				return FormatXML, true // <osm></osm> with no objects
 			}
 		case xml.CharData:
-			if depth == 0 && len(bytes.TrimSpace(t)) > 0 {
+			// A UTF-8 byte order mark comes as character data before the root.
+			if depth == 0 && len(bytes.TrimSpace(bytes.TrimPrefix(t, []byte("\uFEFF")))) > 0 {
 				return FormatUnknown, false
 			}
 		}

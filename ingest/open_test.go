@@ -58,6 +58,16 @@ func TestDetect(t *testing.T) {
 	}
 }
 
+// TestDetectBOM checks that a UTF-8 byte order mark before the XML
+// content (allowed by XML 1.0, section 4.3.3) does not hide the format.
+func TestDetectBOM(t *testing.T) {
+	data := append([]byte("\uFEFF"), readFile(t, "testdata/way_6394949.osm")...)
+	format, items := mustReadAll(t, writeTemp(t, "bom.osm", data))
+	if format != FormatXML || len(items) != 38 { // osmium fileinfo -e way_6394949.osm: 33 nodes + 5 ways
+		t.Errorf("format %v with %d items, want osm-xml with 38", format, len(items))
+	}
+}
+
 // TestBytesRead checks that BytesRead counts compressed bytes: after a full
 // read it equals the file size, which is smaller than the content.
 func TestBytesRead(t *testing.T) {

@@ -323,3 +323,28 @@ func BenchmarkDecodeDelaware(b *testing.B) {
 	}
 	b.ReportMetric(float64(objects)/b.Elapsed().Seconds(), "objects/s")
 }
+
+// BenchmarkDecodeDelawareOsmpbf scans the same extract with the reference
+// decoder, github.com/paulmach/osm/osmpbf v0.8.0, for comparison with
+// BenchmarkDecodeDelaware.
+func BenchmarkDecodeDelawareOsmpbf(b *testing.B) {
+	path := osmModuleTestdata(b, "testdata/delaware-latest.osm.pbf")
+	b.ReportAllocs()
+	var objects int
+	for b.Loop() {
+		f, err := os.Open(path)
+		if err != nil {
+			b.Fatal(err)
+		}
+		s := osmpbf.New(b.Context(), f, runtime.GOMAXPROCS(0))
+		for s.Scan() {
+			objects++
+		}
+		if err := s.Err(); err != nil {
+			b.Fatal(err)
+		}
+		s.Close()
+		f.Close()
+	}
+	b.ReportMetric(float64(objects)/b.Elapsed().Seconds(), "objects/s")
+}
