@@ -74,6 +74,7 @@ type PanelColumns struct {
 	Outcomes     []string // count columns, one outcome each
 	Cluster      string   // optional cluster for inference
 	Weight       string   // optional matching weight
+	Covariates   []string // optional pre-period covariates (constant within a unit) for the doubly robust cs-att
 }
 
 // PanelCSVError is a problem at a position of a panel CSV file. It unwraps to
@@ -145,6 +146,12 @@ func ReadPanelCSV(r io.Reader, name string, cols PanelColumns) (*Panel, error) {
 			return nil, err
 		}
 	}
+	icov := make([]int, len(cols.Covariates))
+	for k, c := range cols.Covariates {
+		if icov[k], err = need(c); err != nil {
+			return nil, err
+		}
+	}
 	iout := make([]int, len(cols.Outcomes))
 	for o, c := range cols.Outcomes {
 		if iout[o], err = need(c); err != nil {
@@ -157,6 +164,7 @@ func ReadPanelCSV(r io.Reader, name string, cols PanelColumns) (*Panel, error) {
 		ftMonth int // absolute month number, −1 never
 		cluster string
 		weight  float64
+		cov     []float64
 		vals    map[int][]float64 // absolute month → outcomes
 		lines   map[int]int
 	}
@@ -200,9 +208,17 @@ func ReadPanelCSV(r io.Reader, name string, cols PanelColumns) (*Panel, error) {
 				return nil, fail(line, cols.Weight, "weight %q is not a finite number >= 0", rec[iw])
 			}
 		}
+		cov := make([]float64, len(icov))
+		for k, i := range icov {
+			v, err := strconv.ParseFloat(strings.TrimSpace(rec[i]), 64)
+			if err != nil || math.IsNaN(v) || math.IsInf(v, 0) {
+				return nil, fail(line, cols.Covariates[k], "covariate %q is not a finite number", rec[i])
+			}
+			cov[k] = v
+		}
 		ui, ok := units[id]
 		if !ok {
-			ui = &unitInfo{line: line, ft: ftText, ftMonth: ft, cluster: cl, weight: w, vals: map[int][]float64{}, lines: map[int]int{}}
+			ui = &unitInfo{line: line, ft: ftText, ftMonth: ft, cluster: cl, weight: w, cov: cov, vals: map[int][]float64{}, lines: map[int]int{}}
 			units[id] = ui
 			order = append(order, id)
 		}
@@ -213,6 +229,8 @@ func ReadPanelCSV(r io.Reader, name string, cols PanelColumns) (*Panel, error) {
 			return nil, fail(line, cols.Cluster, "unit %q has cluster %q here but %q on line %d", id, cl, ui.cluster, ui.line)
 		case ui.weight != w:
 			return nil, fail(line, cols.Weight, "unit %q has weight %v here but %v on line %d", id, w, ui.weight, ui.line)
+		case !slices.Equal(ui.cov, cov):
+			return nil, fail(line, "", "unit %q has covariates %v here but %v on line %d; covariates must be constant within a unit", id, cov, ui.cov, ui.line)
 		}
 		if prev, dup := ui.lines[m]; dup {
 			return nil, fail(line, cols.Time, "unit %q, month %s already given on line %d", id, rec[it], prev)
@@ -258,7 +276,11 @@ func ReadPanelCSV(r io.Reader, name string, cols PanelColumns) (*Panel, error) {
 				return nil, fail(ui.line, cols.FirstTreated, "unit %q first treated %s, after the panel's last month %s", id, ui.ft, monthString(maxM))
 			}
 		}
-		p.Units = append(p.Units, PanelUnit{ID: id, FirstTreated: ft, Weight: ui.weight, Cluster: ui.cluster})
+		var cov []float64
+		if len(ui.cov) > 0 {
+			cov = ui.cov
+		}
+		p.Units = append(p.Units, PanelUnit{ID: id, FirstTreated: ft, Weight: ui.weight, Cluster: ui.cluster, Covariates: cov})
 		for m, vals := range ui.vals {
 			for o, v := range vals {
 				p.Y[o][u*months+m-minM] = v

@@ -38,6 +38,8 @@ func TestPanelCSVRoundTrip(t *testing.T) {
 
 func TestReadPanelCSVErrors(t *testing.T) {
 	cols := PanelColumns{Unit: "u", Time: "m", FirstTreated: "g", Outcomes: []string{"y"}}
+	covCols := cols
+	covCols.Covariates = []string{"x"}
 	cases := []struct {
 		name, in, want string
 	}{
@@ -51,10 +53,15 @@ func TestReadPanelCSVErrors(t *testing.T) {
 		{"treated before start", "u,m,g,y\na,2030-01,2029-12,1\na,2030-02,2029-12,1\n", `p.csv:2: column "g": unit "a" first treated 2029-12, before`},
 		{"ragged csv", "u,m,g,y\na,2030-01,,1,9\n", `p.csv:2: record on line 2: wrong number of fields`},
 		{"empty", "", "p.csv: empty file"},
+		{"changing covariate", "u,m,g,y,x\na,2030-01,,1,0.5\na,2030-02,,1,0.7\n", `p.csv:3: unit "a" has covariates [0.7] here but [0.5] on line 2`},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			_, err := ReadPanelCSV(strings.NewReader(c.in), "p.csv", cols)
+			cc := cols
+			if strings.HasPrefix(c.in, "u,m,g,y,x\n") {
+				cc = covCols
+			}
+			_, err := ReadPanelCSV(strings.NewReader(c.in), "p.csv", cc)
 			if err == nil || !strings.Contains(err.Error(), c.want) {
 				t.Fatalf("error %v, want %q", err, c.want)
 			}
@@ -62,5 +69,16 @@ func TestReadPanelCSVErrors(t *testing.T) {
 				t.Errorf("%v does not unwrap to ErrPanel", err)
 			}
 		})
+	}
+}
+
+func TestReadPanelCSVCovariates(t *testing.T) {
+	in := "u,m,g,y,x\na,2030-01,2030-02,1,0.5\na,2030-02,2030-02,3,0.5\nb,2030-01,,2,1.5\nb,2030-02,,2,1.5\n"
+	p, err := ReadPanelCSV(strings.NewReader(in), "p.csv", PanelColumns{Unit: "u", Time: "m", FirstTreated: "g", Outcomes: []string{"y"}, Covariates: []string{"x"}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(p.Units[1].Covariates, []float64{1.5}) || p.Units[0].FirstTreated != 1 || p.Units[1].FirstTreated != -1 {
+		t.Errorf("units %+v", p.Units)
 	}
 }

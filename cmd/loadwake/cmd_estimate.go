@@ -20,6 +20,7 @@ type estimateOptions struct {
 	outcomes     []string //
 	cluster      string   //
 	weight       string   //
+	covariates   []string // pre-period covariates for the doubly robust cs-att
 	json         string   // JSON output file; "-" for stdout
 	pre, post    int      // event window
 	draws        int
@@ -61,6 +62,7 @@ names; name the columns of your own file with the flags.`,
 	f.StringSliceVar(&o.outcomes, "outcome", nil, "outcome column(s), repeatable or comma-separated (required)")
 	f.StringVar(&o.cluster, "cluster", "", "column with the cluster for inference (default: the unit)")
 	f.StringVar(&o.weight, "weight", "", "column with matching weights (default: 1)")
+	f.StringSliceVar(&o.covariates, "covariate", nil, "pre-period covariate column(s), constant within a unit; cs-att becomes doubly robust")
 	f.StringVar(&o.json, "json", "", "write all estimates as JSON to this file (- for stdout)")
 	f.IntVar(&o.pre, "window-pre", o.pre, "months before treatment used")
 	f.IntVar(&o.post, "window-post", o.post, "months from treatment used")
@@ -94,7 +96,7 @@ func runEstimate(cmd *cobra.Command, _ *globalOptions, o *estimateOptions) error
 	}
 	defer f.Close()
 	p, err := audit.ReadPanelCSV(f, o.panel, audit.PanelColumns{Unit: o.unit, Time: o.time, FirstTreated: o.firstTreated,
-		Outcomes: o.outcomes, Cluster: o.cluster, Weight: o.weight})
+		Outcomes: o.outcomes, Cluster: o.cluster, Weight: o.weight, Covariates: o.covariates})
 	if err != nil {
 		return err
 	}
