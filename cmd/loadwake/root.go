@@ -51,6 +51,8 @@ the community's import guidelines and local review.`,
 		newRulesCommand(g),
 		newClassifyCommand(g),
 		newImportsCommand(g),
+		newPanelCommand(g),
+		newAuditCommand(g),
 		newEstimateCommand(g),
 		newSimulateCommand(g),
 	)
