@@ -508,3 +508,36 @@ func osmModuleFile(t testing.TB, rel string) string {
 	}
 	return p
 }
+
+// BenchmarkDetectImports detects imports in real history (the osm module's
+// relation_2714790.osm, held in an in-memory store) with a rule naming the
+// TIGER account; throughput in stored versions read per second.
+func BenchmarkDetectImports(b *testing.B) {
+	path := osmModuleFile(b, "annotate/testdata/relation_2714790.osm")
+	ctx := context.Background()
+	st, err := ingest.OpenInMemory(ingest.DefaultOptions())
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer st.Close()
+	rep, err := ingest.Ingest(ctx, st, []string{path}, ingest.IngestOptions{})
+	if err != nil {
+		b.Fatal(err)
+	}
+	versions := rep.Sum().Versions
+	src := strings.Replace(string(rules.DefaultYAML()), "  matchers:\n", "  matchers:\n    - name: tiger-account\n      account_ids: [7168]\n", 1)
+	r, err := rules.Parse("tiger.yaml", []byte(src))
+	if err != nil {
+		b.Fatal(err)
+	}
+	b.ReportAllocs()
+	n := 0
+	for b.Loop() {
+		eps, err := DetectImports(ctx, st, r, DetectOptions{})
+		if err != nil || len(eps) != 1 {
+			b.Fatalf("%d episodes, %v", len(eps), err)
+		}
+		n++
+	}
+	b.ReportMetric(float64(versions)*float64(n)/b.Elapsed().Seconds(), "versions/s")
+}

@@ -1,0 +1,37 @@
+package rules
+
+import (
+	"errors"
+	"os"
+	"path/filepath"
+	"testing"
+)
+
+// FuzzParse checks that no rule file makes Parse panic, that a rejected file
+// gives problems with positions unwrapping to ErrInvalid, and that an accepted
+// file's canonical form parses to the same hash.
+func FuzzParse(f *testing.F) {
+	f.Add(DefaultYAML())
+	if b, err := os.ReadFile(filepath.Join("testdata", "broken.yaml")); err == nil {
+		f.Add(b)
+	}
+	f.Add([]byte("format: 1\nfeature_classes: {keys: [{key: a, detail: value}]}\nkey_families: []\nimport_detection: {group_gap_days: 1, matchers: [{name: m, min_changes: 1}]}\n"))
+	f.Add([]byte("a: &x [*x]\n"))
+	f.Fuzz(func(t *testing.T, data []byte) {
+		r, err := Parse("fuzz.yaml", data)
+		if err != nil {
+			var ps *Problems
+			if !errors.As(err, &ps) || len(*ps) == 0 || !errors.Is(err, ErrInvalid) {
+				t.Fatalf("error %v is not a non-empty *Problems", err)
+			}
+			return
+		}
+		again, err := Parse("canonical.yaml", r.Canonical())
+		if err != nil {
+			t.Fatalf("canonical form rejected: %v\n%s", err, r.Canonical())
+		}
+		if again.Hash() != r.Hash() {
+			t.Fatalf("canonical form changes the hash")
+		}
+	})
+}
