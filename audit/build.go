@@ -367,8 +367,11 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	// Clip the window to the months that hold data.
 	lo, hi := 0, b.months-1
 	if !b.minData.IsZero() {
-		if d := monthDiff(monthOf(b.minData), b.start); d > lo {
-			lo = d
+		// When the data begin inside the window, their first month is left
+		// out too: a history begins with a partial month or with the bulk
+		// first mapping of the area, neither of which is follow-on activity.
+		if d := monthDiff(monthOf(b.minData), b.start); d >= lo {
+			lo = d + 1
 		}
 		if d := monthDiff(monthOf(b.maxData), b.start); d < hi {
 			hi = d
@@ -438,31 +441,53 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	}
 
 	// Covariates from the months before the import's first month.
-	classes := topClasses(b.classLive, treated, 3)
-	covNames := []string{}
-	for _, l := range layers.Layers {
-		covNames = append(covNames, "log1p mean monthly "+l.String())
-	}
-	covNames = append(covNames, "log1p mean monthly contributors", "log1p features before import")
-	for _, c := range classes {
-		covNames = append(covNames, "log1p features "+c)
-	}
+	// Matching uses three summaries of pre-import activity: per-layer means
+	// are nearly collinear with them, and Mahalanobis distance over collinear
+	// covariates weighs their noise, which gave worse balance on simulated
+	// worlds. The balance table also checks the per-layer means and the
+	// features of the import's three most common classes.
+	covNames := []string{"log1p mean monthly events", "log1p mean monthly contributors", "log1p features before import"}
 	st.Covariates = covNames
-	cov := func(u int) []float64 {
-		row := make([]float64, 0, len(covNames))
-		for _, l := range layers.Layers {
-			row = append(row, math.Log1p(mean(clip(b.y[l.String()], u)[:epMonth])))
-		}
-		row = append(row, math.Log1p(mean(clip(b.y[OutcomeContributors], u)[:epMonth])))
+	preMean := func(name string, u int) float64 { return mean(clip(b.y[name], u)[:epMonth]) }
+	features := func(u int) int {
 		pre := 0
 		for _, n := range b.classLive[u] {
 			pre += n
 		}
-		row = append(row, math.Log1p(float64(pre)))
+		return pre
+	}
+	cov := func(u int) []float64 {
+		tot := 0.0
+		for _, l := range layers.Layers {
+			tot += preMean(l.String(), u)
+		}
+		return []float64{math.Log1p(tot), math.Log1p(preMean(OutcomeContributors, u)), math.Log1p(float64(features(u)))}
+	}
+	classes := topClasses(b.classLive, treated, 3)
+	diagNames := append([]string{}, covNames...)
+	for _, l := range layers.Layers {
+		diagNames = append(diagNames, "log1p mean monthly "+l.String())
+	}
+	for _, c := range classes {
+		diagNames = append(diagNames, "log1p features "+c)
+	}
+	diag := func(u int) []float64 {
+		row := cov(u)
+		for _, l := range layers.Layers {
+			row = append(row, math.Log1p(preMean(l.String(), u)))
+		}
 		for _, c := range classes {
 			row = append(row, math.Log1p(float64(b.classLive[u][c])))
 		}
 		return row
+	}
+	td := mat.NewDense(len(treated), len(diagNames), nil)
+	for i, u := range treated {
+		td.SetRow(i, diag(u))
+	}
+	cd := mat.NewDense(len(candidates), len(diagNames), nil)
+	for i, u := range candidates {
+		cd.SetRow(i, diag(u))
 	}
 	tm := mat.NewDense(len(treated), len(covNames), nil)
 	for i, u := range treated {
@@ -482,7 +507,7 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	if err != nil {
 		return nil, fmt.Errorf("match controls: %w", err)
 	}
-	if st.Balance, err = Balance(covNames, tm, cm, m); err != nil {
+	if st.Balance, err = Balance(diagNames, td, cd, m); err != nil {
 		return nil, fmt.Errorf("balance: %w", err)
 	}
 	for _, i := range m.Dropped {
