@@ -541,3 +541,21 @@ func BenchmarkDetectImports(b *testing.B) {
 	}
 	b.ReportMetric(float64(versions)*float64(n)/b.Elapsed().Seconds(), "versions/s")
 }
+
+func ExampleDetectImports() {
+	// history() is an in-memory HistorySource with invented accounts; a
+	// *ingest.Store is the usual one.
+	eps, err := DetectImports(context.Background(), history(), rules.Default(), DetectOptions{})
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	for _, e := range eps {
+		fmt.Println(e.ID, e.Changesets, e.Created, e.Matchers)
+	}
+	// Output:
+	// imp-10 [10 11] 4 [import-tag import-account]
+	// imp-30 [30] 2 [import-account]
+	// imp-12 [12] 1 [import-tag import-account]
+	// imp-13 [13] 1 [import-tag import-account]
+}
