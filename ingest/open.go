@@ -62,7 +62,14 @@ const detectPeek = 64 << 10
 // compression (gzip, bzip2 or none) is detected from the file's magic bytes and
 // the format from the first bytes of the decompressed content, never from the
 // name. Close closes the file. Errors about the content are *ParseError values
-// naming path and unwrapping to ErrUnknown or ErrFormat.
+// naming path and unwrapping to ErrUnknown, ErrFormat or ErrOrder.
+//
+// The readers check what the store relies on: every object has a positive
+// version and a timestamp (a PBF written without metadata fails), consecutive
+// versions of one object increase strictly, and changesets have an id and a
+// created_at. A missing visible attribute or PBF visible field means visible;
+// objects of an OsmChange delete block are not visible, of create and modify
+// blocks visible.
 func OpenFile(ctx context.Context, path string, opts ReadOptions) (Reader, error) {
 	f, err := os.Open(path)
 	if err != nil {

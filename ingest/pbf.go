@@ -86,6 +86,7 @@ func newPBFReader(ctx context.Context, base readerBase, r io.Reader, opts ReadOp
 		go func() {
 			defer pr.wg.Done()
 			var d blockDecoder
+			defer d.close()
 			for b := range work {
 				if b.err == nil {
 					b.objs, b.err = d.decode(b.blob)
@@ -383,6 +384,13 @@ type blockDecoder struct {
 	vers, times, csets, uids, usids, visibles, keys, vals []uint64
 }
 
+// close releases the zstd decoder's goroutines.
+func (d *blockDecoder) close() {
+	if d.zstd != nil {
+		d.zstd.Close()
+	}
+}
+
 // blobData returns the uncompressed content of a Blob message.
 func (d *blockDecoder) blobData(blob []byte) ([]byte, error) {
 	var (
@@ -658,10 +666,19 @@ func (d *blockDecoder) node(b []byte) error {
 		return fmt.Errorf("node %d: %w", n.ID, err)
 	}
 	n.Lat, n.Lon, n.Tags = d.coord(d.latOff, lat), d.coord(d.lonOff, lon), tags
+	if !m.visible {
+		n.Lat, n.Lon = 0, 0 // see deletedNode
+	}
 	n.Version, n.Timestamp, n.ChangesetID, n.UserID, n.User, n.Visible = m.version, m.timestamp, m.changeset, m.uid, m.user, m.visible
 	d.objs = append(d.objs, n)
 	return nil
 }
+
+// deletedNode: a deleted node version has no location. The OSM API writes
+// none, so osm.Node reads 0,0 from XML; osmium writes the undefined location
+// of libosmium (2147483647 in units of granularity, 214.7483647 degrees) into
+// history PBFs it converts from PBF, and 0,0 into those it converts from XML.
+// The reader gives 0,0 for every deleted node version, whatever the file holds.
 
 func (d *blockDecoder) dense(b []byte) error {
 	d.ids, d.lats, d.lons, d.kv = d.ids[:0], d.lats[:0], d.lons[:0], d.kv[:0]
@@ -727,8 +744,9 @@ func (d *blockDecoder) dense(b []byte) error {
 			}
 			n.User = u
 		}
-		if len(d.visibles) > 0 {
-			n.Visible = d.visibles[i] != 0
+		if len(d.visibles) > 0 && d.visibles[i] == 0 {
+			n.Visible = false
+			n.Lat, n.Lon = 0, 0 // see deletedNode
 		}
 		// keys_vals: per node, key/value string index pairs ended by 0;
 		// absent when no node in the block has tags.

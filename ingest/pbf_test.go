@@ -2,6 +2,7 @@ package ingest
 
 import (
 	"context"
+	"encoding/binary"
 	"errors"
 	"fmt"
 	"io"
@@ -10,10 +11,13 @@ import (
 	"os"
 	"reflect"
 	"runtime"
+	"strings"
 	"testing"
 
+	"github.com/klauspost/compress/zstd"
 	"github.com/paulmach/osm"
 	"github.com/paulmach/osm/osmpbf"
+	"google.golang.org/protobuf/encoding/protowire"
 )
 
 // TestPBFDelaware reads the Geofabrik Delaware extract shipped with
@@ -146,6 +150,8 @@ func TestPBFHistoryMatchesXML(t *testing.T) {
 		{"relation_4017808.osh.pbf", "testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
 		{"relation_4017808.osh.pbf.gz", "testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
 		{"relation_4017808.osh.pbf.bz2", "testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
+		// uncompressed blobs: `osmium cat relation_4017808.osh.pbf -f osh.pbf,pbf_compression=none`
+		{"relation_4017808.raw.osh.pbf", "testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
 		// osmium: nodes 2534, ways 370, relations 30; dD 68 (67 nodes, 1 way)
 		{"relation_2714790.osh.pbf", "annotate/testdata/relation_2714790.osm", counts{Nodes: 2534, Ways: 370, Relations: 30, Invisible: 68}},
 	}
@@ -347,4 +353,72 @@ func BenchmarkDecodeDelawareOsmpbf(b *testing.B) {
 		f.Close()
 	}
 	b.ReportMetric(float64(objects)/b.Elapsed().Seconds(), "objects/s")
+}
+
+// TestPBFBlobCompression covers the blob encodings osmium does not write as
+// zlib: zstd blobs (fileformat.proto Blob.zstd_data, field 7), made here by
+// recompressing the raw blobs of relation_4017808.raw.osh.pbf with
+// klauspost/compress/zstd, must read like the raw file; lz4 blobs (written by
+// `osmium cat relation_4017808.osh.pbf -f osh.pbf,pbf_compression=lz4`) are
+// refused with ErrFormat naming the block's byte offset.
+func TestPBFBlobCompression(t *testing.T) {
+	raw := readFile(t, "testdata/relation_4017808.raw.osh.pbf")
+	enc, err := zstd.NewWriter(nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer enc.Close()
+	var out []byte
+	r := &sliceReader{b: raw}
+	for {
+		typ, blob, _, err := readFileBlock(r)
+		if errors.Is(err, io.EOF) {
+			break
+		}
+		if err != nil {
+			t.Fatal(err)
+		}
+		var data []byte
+		for len(blob) > 0 {
+			var f field
+			if f, blob, err = nextField(blob); err != nil {
+				t.Fatal(err)
+			}
+			if f.num == 1 {
+				data = f.b
+			}
+		}
+		if data == nil {
+			t.Fatal("fixture block is not raw")
+		}
+		var nb []byte
+		nb = protowire.AppendTag(nb, 2, protowire.VarintType)
+		nb = protowire.AppendVarint(nb, uint64(len(data)))
+		nb = protowire.AppendTag(nb, 7, protowire.BytesType)
+		nb = protowire.AppendBytes(nb, enc.EncodeAll(data, nil))
+		var hdr []byte
+		hdr = protowire.AppendTag(hdr, 1, protowire.BytesType)
+		hdr = protowire.AppendString(hdr, typ)
+		hdr = protowire.AppendTag(hdr, 3, protowire.VarintType)
+		hdr = protowire.AppendVarint(hdr, uint64(len(nb)))
+		out = binary.BigEndian.AppendUint32(out, uint32(len(hdr)))
+		out = append(append(out, hdr...), nb...)
+	}
+	_, want := mustReadAll(t, "testdata/relation_4017808.raw.osh.pbf")
+	_, got := mustReadAll(t, writeTemp(t, "zstd.osh.pbf", out))
+	if len(got) != len(want) {
+		t.Fatalf("zstd: %d objects, raw: %d", len(got), len(want))
+	}
+	for i := range got {
+		if err := sameObject(got[i].Object, want[i].Object); err != nil {
+			t.Fatalf("zstd: %v", err)
+		}
+	}
+
+	_, _, err = readAll(t, "testdata/relation_4017808.lz4.osh.pbf")
+	var pe *ParseError
+	// osmium compresses the header block too, so the error is at byte 0.
+	if !errors.As(err, &pe) || !errors.Is(err, ErrFormat) || !strings.Contains(err.Error(), "lz4) is not supported") {
+		t.Errorf("lz4: error %v, want a ParseError wrapping ErrFormat saying lz4 is not supported", err)
+	}
 }
