@@ -721,3 +721,61 @@ func (a *Assessment) WriteMarkdown(w io.Writer) error {
 	_, err := io.WriteString(w, b.String())
 	return err
 }
+
+// PastAuditOptions configures AuditNearest.
+type PastAuditOptions struct {
+	Units     UnitIndex // spatial units of the past imports' studies
+	Audit     AuditOptions
+	Checklist ChecklistOptions
+	// Episodes are every detected import (their changesets are kept out of
+	// controls); nil means DetectImports with the rules.
+	Episodes []Episode
+}
+
+// AuditNearest audits each of the nearest past imports — RunAudit and the
+// checklist of the same study, as `loadwake audit` and `loadwake checklist`
+// do — and adds the results with AddPastAudits. An import that cannot be
+// audited (no controls, no pre-period, ...) is named in the notes and
+// skipped.
+func (a *Assessment) AuditNearest(ctx context.Context, src AssessSource, r *rules.RuleSet, opts PastAuditOptions) error {
+	if opts.Units == nil {
+		return fmt.Errorf("%w: no units for the past imports' studies", ErrStudy)
+	}
+	eps := opts.Episodes
+	if eps == nil {
+		var err error
+		if eps, err = DetectImports(ctx, src, r, DetectOptions{}); err != nil {
+			return fmt.Errorf("audit: assess: %w", err)
+		}
+	}
+	effects := map[string][]Effect{}
+	checklists := map[string]*Checklist{}
+	for _, m := range a.Nearest {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		ep := m.Episode
+		var others []Episode
+		for _, e := range eps {
+			if e.ID != ep.ID {
+				others = append(others, e)
+			}
+		}
+		rep, err := RunAudit(ctx, src, &ep, others, opts.Units, opts.Audit)
+		if err != nil {
+			a.Notes = append(a.Notes, fmt.Sprintf("past import %s not audited: %v", ep.ID, err))
+			continue
+		}
+		effects[ep.ID] = rep.Effects
+		co := opts.Checklist
+		co.OtherImports = append(slices.Clone(co.OtherImports), otherChangesets(ep.ID, eps)...)
+		cl, err := BuildChecklist(ctx, src, r, rep.Study, opts.Units, co)
+		if err != nil {
+			a.Notes = append(a.Notes, fmt.Sprintf("past import %s: no checklist: %v", ep.ID, err))
+			continue
+		}
+		checklists[ep.ID] = cl
+	}
+	a.AddPastAudits(effects, checklists)
+	return nil
+}

@@ -706,3 +706,28 @@ func MarkdownEscape(s string) string {
 	}
 	return b.String()
 }
+
+// RunChecklist is the whole checklist step for one detected import: the
+// study of ep over units (the changesets of the other detected imports kept
+// out of the controls and of the references) and its checklist.
+func RunChecklist(ctx context.Context, src Source, r *rules.RuleSet, ep *Episode, all []Episode, units UnitIndex, so StudyOptions, co ChecklistOptions) (*Checklist, error) {
+	others := otherChangesets(ep.ID, all)
+	so.OtherImports = append(slices.Clone(so.OtherImports), others...)
+	st, err := BuildStudy(ctx, src, ep.Ref(), units, so)
+	if err != nil {
+		return nil, fmt.Errorf("import %s: %w", ep.ID, err)
+	}
+	co.OtherImports = append(slices.Clone(co.OtherImports), others...)
+	return BuildChecklist(ctx, src, r, st, units, co)
+}
+
+// otherChangesets lists the changesets of every episode but the one with id.
+func otherChangesets(id string, eps []Episode) []osm.ChangesetID {
+	var out []osm.ChangesetID
+	for _, e := range eps {
+		if e.ID != id {
+			out = append(out, e.Changesets...)
+		}
+	}
+	return out
+}

@@ -53,6 +53,7 @@ the community's import guidelines and local review.`,
 		newImportsCommand(g),
 		newPanelCommand(g),
 		newAuditCommand(g),
+		newChecklistCommand(g), newAssessCommand(g),
 		newEstimateCommand(g),
 		newSimulateCommand(g),
 	)

@@ -1,0 +1,215 @@
+package main
+
+import (
+	"bufio"
+	"compress/gzip"
+	"context"
+	"errors"
+	"fmt"
+	"io"
+	"iter"
+	"os"
+
+	"github.com/paulmach/osm"
+	"github.com/spf13/cobra"
+
+	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/rules"
+)
+
+// assessOptions holds the flags of `loadwake assess`.
+type assessOptions struct {
+	rules    string
+	units    string
+	unitID   string
+	distance float64
+	nearest  int
+	noAudit  bool
+	draws    int
+	json     string
+	md       string
+}
+
+func newAssessCommand(g *globalOptions) *cobra.Command {
+	var o assessOptions
+	cmd := &cobra.Command{
+		Use:   "assess PROPOSAL [--units SPEC] [--distance 15] [--json FILE] [--md FILE]",
+		Short: "Assess a proposed import against the store and past imports",
+		Long: `assess reads a proposed import (OSM XML, OsmChange or GeoJSON with tags as
+properties) and reports:
+
+  - its profile: features by class, how complete each key is, points, line
+    lengths (m) and polygon areas (m²);
+  - its footprint in the spatial units and the share of the features there it
+    would make up (intensity), against the features alive in the store;
+  - likely duplicates: existing features of the same class within --distance
+    metres of a proposed point, or inside a proposed line's or polygon's
+    bounds grown by that distance;
+  - how many changesets it needs at the OSM API 0.6 limit of 10,000 changes;
+  - the past imports in the store nearest to it in class mix and tag
+    completeness, what followed them (the audit's effects, as a range per
+    layer) and the keys they neglected that the proposal also lacks.
+
+It ends with the review points of the community's import guidelines. The
+figures are a first screen for local review, not a conflation or a decision.`,
+		Args: exactArgs(1),
+		RunE: func(cmd *cobra.Command, args []string) error { return runAssess(cmd, g, &o, args[0]) },
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.rules, "rules", "", "rule file (default: the built-in rules)")
+	f.StringVar(&o.units, "units", "tiles:14", `spatial units: "tiles:Z" or a GeoJSON file of polygons`)
+	f.StringVar(&o.unitID, "unit-id", "id", "GeoJSON property holding each unit's id")
+	f.Float64Var(&o.distance, "distance", audit.DefaultDuplicateDistance, "metres within which an existing feature of the same class is a likely duplicate")
+	f.IntVar(&o.nearest, "nearest", audit.DefaultNearestImports, "past imports to compare with")
+	f.BoolVar(&o.noAudit, "no-audit", false, "do not audit the nearest past imports (faster; no expected effects or neglected keys)")
+	f.IntVar(&o.draws, "draws", 999, "bootstrap draws of the past imports' audits")
+	f.StringVar(&o.json, "json", "", "write the assessment as JSON to this file")
+	f.StringVar(&o.md, "md", "", "write the assessment as Markdown to this file")
+	return cmd
+}
+
+// exactArgs is cobra.ExactArgs with a usage error.
+func exactArgs(n int) cobra.PositionalArgs {
+	return func(_ *cobra.Command, args []string) error {
+		if len(args) != n {
+			return usagef("want %d argument(s), got %d", n, len(args))
+		}
+		return nil
+	}
+}
+
+func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path string) error {
+	switch {
+	case o.distance <= 0:
+		return usagef("--distance must be positive")
+	case o.nearest < 1:
+		return usagef("--nearest must be at least 1")
+	case o.draws < 99:
+		return usagef("--draws must be at least 99")
+	}
+	ctx := cmd.Context()
+	r, err := loadRules(o.rules)
+	if err != nil {
+		return err
+	}
+	p, err := readProposal(ctx, path, r)
+	if err != nil {
+		return err
+	}
+	st, err := openStore(g)
+	if err != nil {
+		return err
+	}
+	defer st.Close()
+	uo := audit.UnitOptions{IDProperty: o.unitID, Bound: p.Bound}
+	stats, err := st.Stats(ctx)
+	if err != nil {
+		return err
+	}
+	if stats.HasBBox {
+		uo.Bound = uo.Bound.Union(stats.BBox)
+	}
+	units, err := audit.ParseUnits(o.units, uo)
+	if err != nil {
+		return err
+	}
+	eps, err := audit.DetectImports(ctx, st, r, audit.DetectOptions{})
+	if err != nil {
+		return err
+	}
+	a, err := audit.Assess(ctx, st, r, p, audit.AssessOptions{Distance: o.distance, Units: units, Episodes: eps, Nearest: o.nearest})
+	if err != nil {
+		return err
+	}
+	if !o.noAudit && len(a.Nearest) > 0 {
+		eo := audit.DefaultEstimateOptions()
+		eo.Draws = o.draws
+		if err := a.AuditNearest(ctx, st, r, audit.PastAuditOptions{Units: units, Episodes: eps,
+			Audit: audit.AuditOptions{Estimate: eo, UnitSpec: o.units}}); err != nil {
+			return err
+		}
+	}
+	out := cmd.OutOrStdout()
+	if err := a.WriteMarkdown(out); err != nil {
+		return err
+	}
+	for _, w := range []struct {
+		path  string
+		write func(io.Writer) error
+	}{{o.json, a.WriteJSON}, {o.md, a.WriteMarkdown}} {
+		if w.path == "" {
+			continue
+		}
+		if err := writeFile(w.path, w.write); err != nil {
+			return err
+		}
+		fmt.Fprintln(out, "wrote", w.path)
+	}
+	return nil
+}
+
+// readProposal reads path as OSM XML, OsmChange or PBF through ingest's
+// readers, or as GeoJSON (plain or gzip'd) when its content starts with '{'.
+func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*audit.Proposal, error) {
+	_, format, err := ingest.DetectFile(path)
+	switch {
+	case err == nil && format == ingest.FormatChangesets:
+		return nil, fmt.Errorf("%s: changeset metadata, not a proposal of map data", path)
+	case err == nil:
+		rd, err := ingest.OpenFile(ctx, path, ingest.ReadOptions{})
+		if err != nil {
+			return nil, err
+		}
+		defer rd.Close()
+		return audit.ReadOSMProposal(ctx, path, objects(rd), r, audit.ProposalOptions{})
+	case !errors.Is(err, ingest.ErrUnknown):
+		return nil, err
+	}
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, err
+	}
+	defer f.Close()
+	br := bufio.NewReaderSize(f, 1<<16)
+	var src io.Reader = br
+	if magic, _ := br.Peek(2); len(magic) == 2 && magic[0] == 0x1f && magic[1] == 0x8b {
+		zr, err := gzip.NewReader(br)
+		if err != nil {
+			return nil, fmt.Errorf("%s: %w", path, err)
+		}
+		defer zr.Close()
+		src = bufio.NewReaderSize(zr, 1<<16)
+	}
+	bsrc := src.(*bufio.Reader)
+	for {
+		b, err := bsrc.Peek(1)
+		if err != nil {
+			return nil, fmt.Errorf("%s: empty or unreadable: %w", path, err)
+		}
+		if b[0] == ' ' || b[0] == '\n' || b[0] == '\r' || b[0] == '\t' || b[0] == 0xef || b[0] == 0xbb || b[0] == 0xbf {
+			bsrc.ReadByte()
+			continue
+		}
+		if b[0] != '{' {
+			return nil, fmt.Errorf("%s: neither OSM XML, OsmChange, PBF nor GeoJSON", path)
+		}
+		break
+	}
+	return audit.ReadGeoJSONProposal(ctx, path, bsrc, r, audit.ProposalOptions{})
+}
+
+// objects turns an ingest reader into the object sequence audit reads; the
+// reader's error (a *ingest.ParseError naming file and position) ends it.
+func objects(rd ingest.Reader) iter.Seq2[osm.Object, error] {
+	return func(yield func(osm.Object, error) bool) {
+		for rd.Scan() {
+			if it := rd.Item(); it.Object != nil && !yield(it.Object, nil) {
+				return
+			}
+		}
+		if err := rd.Err(); err != nil {
+			yield(nil, err)
+		}
+	}
+}
