@@ -49,10 +49,7 @@ func buildWorld(tb testing.TB, cfg sim.Config) *simWorld {
 	if _, err := ingest.Ingest(ctx, st, paths, ingest.IngestOptions{}); err != nil {
 		tb.Fatalf("ingest: %v", err)
 	}
-	r, err := rules.Parse("gap365", bytes.Replace(rules.DefaultYAML(), []byte("group_gap_days: 30"), []byte("group_gap_days: 365"), 1))
-	if err != nil {
-		tb.Fatal(err)
-	}
+	r := rules.Default()
 	if _, err := layers.Run(ctx, st, r, layers.Options{}); err != nil {
 		tb.Fatalf("classify: %v", err)
 	}

@@ -304,7 +304,7 @@ func TestHash(t *testing.T) {
 		{"spacing only", func(s string) string {
 			return strings.ReplaceAll(s, "{key: highway, detail: value}", "{ key: highway,   detail: value }")
 		}, false},
-		{"gap changed", func(s string) string { return strings.Replace(s, "group_gap_days: 30", "group_gap_days: 31", 1) }, true},
+		{"gap changed", func(s string) string { return strings.Replace(s, "group_gap_days: 365", "group_gap_days: 366", 1) }, true},
 		{"priority changed", func(s string) string {
 			s = strings.Replace(s, "    - {key: highway, detail: value}\n", "", 1)
 			return strings.Replace(s, "    - {key: route, detail: value}\n", "    - {key: route, detail: value}\n    - {key: highway, detail: value}\n", 1)

@@ -515,7 +515,10 @@ func (g *gen) runMonth(ctx context.Context, m int) error {
 		if m < 0 || d.start != m {
 			continue
 		}
-		acc := (d.cohort - 1 + di) % len(g.accounts)
+		// Each account loads a contiguous block of waves, as one import
+		// project working through its area does.
+		acc := (d.cohort - 1) * len(g.accounts) / max(cfg.Waves, 1)
+		acc = min(acc, len(g.accounts)-1)
 		g.accounts[acc].Districts = append(g.accounts[acc].Districts, d.id)
 		nb := int(math.Round(float64(cfg.ImportBuildings) * cfg.Scale))
 		np := int(math.Round(float64(cfg.ImportPOIs) * cfg.Scale))

@@ -41,7 +41,7 @@ func TestRulesShow(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !strings.Contains(out2, "sha256 "+rules.Default().Hash()) || !strings.Contains(out2, "group_gap_days: 30") {
+	if !strings.Contains(out2, "sha256 "+rules.Default().Hash()) || !strings.Contains(out2, "group_gap_days: 365") {
 		t.Errorf("rules show --file:\n%.300s", out2)
 	}
 }
