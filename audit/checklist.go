@@ -688,14 +688,15 @@ func refWords(ref string) string {
 // punctuation character that can start or end markup gets a backslash
 // (CommonMark 0.31, "Backslash escapes": any ASCII punctuation may be
 // escaped; here those of emphasis, code, links, HTML, entities, headings and
-// GFM tables and strikethrough), and line breaks become spaces so a value
+// GFM tables and strikethrough; a parenthesis needs none once brackets are
+// escaped), and line breaks become spaces so a value
 // cannot open a block.
 func MarkdownEscape(s string) string {
 	var b strings.Builder
 	b.Grow(len(s) + 8)
 	for _, r := range s {
 		switch r {
-		case '\\', '`', '*', '_', '{', '}', '[', ']', '<', '>', '(', ')', '#', '!', '|', '~', '&', '$':
+		case '\\', '`', '*', '_', '{', '}', '[', ']', '<', '>', '#', '!', '|', '~', '&', '$':
 			b.WriteByte('\\')
 			b.WriteRune(r)
 		case '\n', '\r', '\t':

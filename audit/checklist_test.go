@@ -327,7 +327,7 @@ func TestMarkdownEscape(t *testing.T) {
 		{"name:en", "name:en"},
 		{"*not emphasized*", `\*not emphasized\*`},
 		{"a_b", `a\_b`},
-		{"[link](x)", `\[link\]\(x\)`},
+		{"[link](x)", `\[link\](x)`},
 		{"<br/>", `\<br/\>`},
 		{"a|b", `a\|b`},
 		{"`code`", "\\`code\\`"},

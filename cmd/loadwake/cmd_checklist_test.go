@@ -1,0 +1,182 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/layers"
+	"github.com/loadwake/loadwake/rules"
+)
+
+func runChecklistRoot(t testing.TB, args ...string) (string, error) {
+	t.Helper()
+	root := newRootCommand(newGlobalOptions())
+	var out, errb bytes.Buffer
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs(args)
+	err := root.ExecuteContext(context.Background())
+	return out.String(), err
+}
+
+// simulatedStore generates a small invented world (audit/sim), ingests and
+// classifies it into a store on disk and returns the store's directory, the
+// world's folder and its truth.
+func simulatedStore(t testing.TB) (string, string, *sim.Truth) {
+	t.Helper()
+	ctx := context.Background()
+	cfg := sim.DefaultConfig()
+	cfg.Cols, cfg.Rows, cfg.Months, cfg.Treated, cfg.Waves = 5, 5, 16, 5, 2
+	cfg.ImportBuildings, cfg.ImportPOIs = 120, 10
+	world := t.TempDir()
+	tr, err := sim.Generate(ctx, cfg, world, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	dir := filepath.Join(t.TempDir(), "db")
+	st, err := ingest.Open(dir, ingest.DefaultOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = ingest.Ingest(ctx, st, []string{filepath.Join(world, sim.HistoryFile), filepath.Join(world, sim.ChangesetsFile)}, ingest.IngestOptions{})
+	if err == nil {
+		_, err = layers.Run(ctx, st, rules.Default(), layers.Options{})
+	}
+	if cerr := st.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		t.Fatal(err)
+	}
+	return dir, world, tr
+}
+
+func TestChecklistAndAssessCommands(t *testing.T) {
+	if testing.Short() {
+		t.Skip("simulated world: skipped with -short")
+	}
+	store, world, tr := simulatedStore(t)
+	districts := filepath.Join(world, sim.DistrictsFile)
+	tmp := t.TempDir()
+	csList := filepath.Join(tmp, "changesets.txt")
+	var ids []string
+	for _, id := range tr.ImportChangesets {
+		ids = append(ids, fmt.Sprint(id))
+	}
+	if err := os.WriteFile(csList, []byte(strings.Join(ids, "\n")), 0o644); err != nil {
+		t.Fatal(err)
+	}
+
+	t.Run("checklist", func(t *testing.T) {
+		js, md := filepath.Join(tmp, "cl.json"), filepath.Join(tmp, "cl.md")
+		out, err := runChecklistRoot(t, "--store", store, "checklist", "--units", districts, "--changesets", csList, "--json", js, "--md", md)
+		if err != nil {
+			t.Fatalf("checklist: %v\n%s", err, out)
+		}
+		// building:levels is planted as neglected on buildings (sim.DefaultConfig).
+		if !strings.Contains(out, "building:levels") || !strings.Contains(out, "caution:") {
+			t.Errorf("output lacks the planted key or the cautions:\n%s", out)
+		}
+		var back struct {
+			Rows []struct {
+				Key       string `json:"key"`
+				Neglected bool   `json:"neglected"`
+			} `json:"rows"`
+		}
+		data, err := os.ReadFile(js)
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := json.Unmarshal(data, &back); err != nil || len(back.Rows) == 0 {
+			t.Fatalf("JSON: %v, %d rows", err, len(back.Rows))
+		}
+		mdText, _ := os.ReadFile(md)
+		if !strings.Contains(string(mdText), "- [ ] **building:levels**") {
+			t.Errorf("markdown lacks the checklist line:\n%s", mdText)
+		}
+	})
+
+	t.Run("snapshot", func(t *testing.T) {
+		src := "source~" + tr.ImportAccounts[0].Dataset
+		out, err := runChecklistRoot(t, "--store", store, "checklist", "--provenance", src, "--types", "w")
+		if err != nil {
+			t.Fatalf("checklist --provenance: %v\n%s", err, out)
+		}
+		if !strings.Contains(out, "snapshot mode") || !strings.Contains(out, "without-provenance") {
+			t.Errorf("output:\n%s", out)
+		}
+	})
+
+	t.Run("assess", func(t *testing.T) {
+		// Three proposed benches: two at the corner of the invented region's
+		// grid, one far away.
+		lon, lat := tr.Region.OriginLon, tr.Region.OriginLat
+		gj := fmt.Sprintf(`{"type":"FeatureCollection","features":[
+			{"type":"Feature","geometry":{"type":"Point","coordinates":[%f,%f]},"properties":{"amenity":"bench","backrest":"yes"}},
+			{"type":"Feature","geometry":{"type":"Point","coordinates":[%f,%f]},"properties":{"amenity":"bench","seats":4}},
+			{"type":"Feature","geometry":{"type":"Point","coordinates":[%f,%f]},"properties":{"amenity":"bench"}}]}`,
+			lon+0.001, lat+0.001, lon+0.002, lat+0.002, lon+0.5, lat+0.5)
+		prop := filepath.Join(tmp, "benches.geojson")
+		if err := os.WriteFile(prop, []byte(gj), 0o644); err != nil {
+			t.Fatal(err)
+		}
+		js := filepath.Join(tmp, "assess.json")
+		out, err := runChecklistRoot(t, "--store", store, "assess", prop, "--units", districts, "--draws", "99", "--json", js)
+		if err != nil {
+			t.Fatalf("assess: %v\n%s", err, out)
+		}
+		for _, s := range []string{"3 features", "1 changeset(s)", "is a number", "ODbL", "imports mailing list", "Nearest past imports"} {
+			if !strings.Contains(out, s) {
+				t.Errorf("assessment lacks %q:\n%s", s, out)
+			}
+		}
+		var back map[string]any
+		data, _ := os.ReadFile(js)
+		if err := json.Unmarshal(data, &back); err != nil {
+			t.Fatal(err)
+		}
+		for _, k := range []string{"profile", "footprint", "duplicates", "nearest_imports", "expected_effects", "lacking_keys", "cautions"} {
+			if _, ok := back[k]; !ok {
+				t.Errorf("JSON lacks %q", k)
+			}
+		}
+	})
+
+	t.Run("errors", func(t *testing.T) {
+		empty := filepath.Join(tmp, "empty.geojson")
+		os.WriteFile(empty, []byte(`{"type":"FeatureCollection","features":[]}`), 0o644)
+		text := filepath.Join(tmp, "notes.txt")
+		os.WriteFile(text, []byte("just words\n"), 0o644)
+		cases := []struct {
+			name  string
+			args  []string
+			usage bool
+			has   string
+		}{
+			{"assess without proposal", []string{"assess"}, true, "argument"},
+			{"bad distance", []string{"assess", empty, "--distance", "0"}, true, "--distance"},
+			{"empty proposal", []string{"assess", empty}, false, "empty.geojson: no features"},
+			{"not a proposal", []string{"assess", text}, false, "notes.txt"},
+			{"checklist without units", []string{"checklist", "--changesets", csList}, true, "--units"},
+			{"bad provenance", []string{"checklist", "--provenance", "source~("}, true, "--provenance"},
+			{"bad types", []string{"checklist", "--provenance", "tiger:*", "--types", "x"}, true, "--types"},
+		}
+		for _, c := range cases {
+			t.Run(c.name, func(t *testing.T) {
+				_, err := runChecklistRoot(t, append([]string{"--store", store}, c.args...)...)
+				if err == nil || errors.As(err, new(usageError)) != c.usage || !strings.Contains(err.Error(), c.has) {
+					t.Errorf("err %v (usage %v); want usage=%v containing %q", err, errors.As(err, new(usageError)), c.usage, c.has)
+				}
+			})
+		}
+	})
+}
