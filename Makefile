@@ -32,8 +32,8 @@ bench:
 
 FUZZTIME ?= 30s
 fuzz:
-	$(GO) test -run '^$$' -fuzz FuzzXMLReader -fuzztime $(FUZZTIME) ./ingest
-	$(GO) test -run '^$$' -fuzz FuzzOsmChangeReader -fuzztime $(FUZZTIME) ./ingest
+	$(GO) test -run '^$$' -fuzz FuzzXMLReader -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
+	$(GO) test -run '^$$' -fuzz FuzzOsmChangeReader -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
 
 browser-test:
 	bash .ci/browser-test
