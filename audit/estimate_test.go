@@ -122,7 +122,7 @@ func TestEstimateFlagsPreTrends(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, est := range []string{EstimatorCS, EstimatorTWFELinear} {
+	for _, est := range []string{EstimatorCS, EstimatorTWFELinear, EstimatorPPML} {
 		e := effectOf(t, es, "layer0", est)
 		if e.PreTrendP == nil || *e.PreTrendP >= 0.05 {
 			t.Errorf("%s: pre-trend p %v, want < 0.05", est, e.PreTrendP)

@@ -22,7 +22,11 @@ import (
 //     clusters are fewer than FewTreatedClusters (30), where analytic cluster
 //     variances are known to be too small.
 //   - Multiplier bootstrap of influence functions clustered by cluster for the
-//     group-time estimator (Callaway & Sant'Anna 2021, section 4).
+//     group-time estimator (Callaway & Sant'Anna 2021, section 4), one set of
+//     draws shared by all aggregates of an outcome.
+//   - Wild score bootstrap for the Poisson fit (Kline & Santos 2012).
+//   - The linear event study (twfe-linear) always uses analytic CR1, with
+//     t(G-1) quantiles when treated clusters are few; its method field says so.
 //   - Joint Wald test of the leads of an event study (chi-square).
 //
 // Every random draw comes from a PCG generator seeded by EstimateOptions.Seed.

@@ -373,8 +373,10 @@ type stacked struct {
 }
 
 // stackPanel builds the stacked arrays: per cohort its units and the
-// never-treated controls over the cohort's window.
-func stackPanel(p *Panel, y []float64, cl []int, win Window) *stacked {
+// never-treated controls over the cohort's window. With shift > 0 it builds
+// the placebo design instead: months before the real start only, the
+// treated dummy switched on shift months early.
+func stackPanel(p *Panel, y []float64, cl []int, win Window, shift int) *stacked {
 	T := p.Months
 	cohorts := cohortsOf(p)
 	size, nCtl := map[int]int{}, 0
@@ -389,7 +391,7 @@ func stackPanel(p *Panel, y []float64, cl []int, win Window) *stacked {
 	}
 	rows, nb := 0, 0
 	for _, g := range cohorts {
-		rows += (size[g] + nCtl) * (min(T, g+win.Post) - max(0, g-win.Pre))
+		rows += (size[g] + nCtl) * max(0, min(T, g+win.Post)-max(0, g-win.Pre))
 		nb += size[g] + nCtl
 	}
 	yy, d, w := make([]float64, 0, rows), make([]float64, 0, rows), make([]float64, 0, rows)
@@ -400,7 +402,11 @@ func stackPanel(p *Panel, y []float64, cl []int, win Window) *stacked {
 	postSum, postN := 0.0, 0.0
 	for _, g := range cohorts {
 		lo, hi := max(0, g-win.Pre), min(T, g+win.Post)
-		if g-lo < 1 {
+		start := g
+		if shift > 0 {
+			hi, start = g, g-shift
+		}
+		if start-lo < 1 || hi <= start {
 			continue
 		}
 		for u, un := range p.Units {
@@ -412,7 +418,7 @@ func stackPanel(p *Panel, y []float64, cl []int, win Window) *stacked {
 			for t := lo; t < hi; t++ {
 				v := y[u*T+t]
 				yy = append(yy, v)
-				if tr && t >= g {
+				if tr && t >= start {
 					d = append(d, 1)
 					postSum += v
 					postN++
@@ -444,7 +450,7 @@ func stackPanel(p *Panel, y []float64, cl []int, win Window) *stacked {
 // and month fixed effects and one treated×post regressor (a "clean controls"
 // stacked design, as in Cengiz, Dube, Lindner & Zipperer 2019).
 func stackedPPML(p *Panel, y []float64, cl []int, G int, opts EstimateOptions, rng *rand.Rand) (*estimate, error) {
-	st := stackPanel(p, y, cl, opts.Window)
+	st := stackPanel(p, y, cl, opts.Window, 0)
 	tUnits, cUnits, tClusters, cohorts := st.tUnits, st.cUnits, st.tClusters, st.cohorts
 	postSum, postN := st.postSum, st.postN
 	if len(tUnits) < 2 || len(cUnits) < 2 {
@@ -481,6 +487,23 @@ func stackedPPML(p *Panel, y []float64, cl []int, G int, opts EstimateOptions, r
 		len(cohorts), opts.Window.Pre, opts.Window.Post, b)
 	if fit.dropped1 > 0 {
 		e.note += fmt.Sprintf("; %d stacked unit(s) with all-zero outcome dropped (no information under unit fixed effects)", fit.dropped1)
+	}
+	// pre-trend: the same model on months before the real starts, treated
+	// switched on PlaceboShift months early; a one-degree-of-freedom test.
+	if pl := stackPanel(p, y, cl, opts.Window, opts.PlaceboShift); len(pl.tUnits) >= 2 && len(pl.cUnits) >= 2 {
+		if pf, err := fitStackedPoisson(pl.y, pl.d, pl.w, pl.cl, G, pl.blocks, pl.n2); err == nil {
+			pse := math.Sqrt(pf.vcov.At(0, 0))
+			if pse > 0 {
+				ptc := len(pl.tClusters)
+				if opts.useBootstrap(ptc) {
+					_, e.preP = pf.scoreBootstrap(0, opts.Draws, rng)
+				} else {
+					e.preP = pTwoSided(pf.beta[0]/pse, ptc, pf.g)
+				}
+				e.hasPre = true
+				e.note += fmt.Sprintf("; pre_trend_p from the same model on pre-start months with starts %d months early", opts.PlaceboShift)
+			}
+		}
 	}
 	return e, nil
 }

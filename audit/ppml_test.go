@@ -101,7 +101,7 @@ func TestStackedPoissonMatchesDummyFit(t *testing.T) {
 			p.Units[u].Weight = 0.3 + float64(u%5)/4
 		}
 		cl, G := p.clusterIndex()
-		st := stackPanel(p, p.Y[0], cl, Window{Pre: 4, Post: 6})
+		st := stackPanel(p, p.Y[0], cl, Window{Pre: 4, Post: 6}, 0)
 		fast, err := fitStackedPoisson(st.y, st.d, st.w, st.cl, G, st.blocks, st.n2)
 		if err != nil {
 			t.Fatal(err)
