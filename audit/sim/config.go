@@ -172,8 +172,8 @@ func (c Config) Validate() error {
 	case c.Start.IsZero() || c.Start.Location() != time.UTC || c.Start.Day() != 1 ||
 		c.Start.Hour() != 0 || c.Start.Minute() != 0 || c.Start.Second() != 0 || c.Start.Nanosecond() != 0:
 		return bad("start must be the first instant of a month in UTC, got %v", c.Start)
-	case c.Start.Year() < 2006 || c.Start.Year() > 2100:
-		return bad("start year %d is outside 2006-2100", c.Start.Year())
+	case c.Start.Year() < 2006 || c.Start.AddDate(0, c.Months+1, 0).Year() >= 2130:
+		return bad("the months from %s must lie between 2006 and 2129", c.Start.Format("2006-01"))
 	case !finite(c.MeanActivity) || c.MeanActivity <= 0:
 		return bad("mean activity must be positive, got %v", c.MeanActivity)
 	case !finite(c.Dispersion) || c.Dispersion <= 0:

@@ -45,16 +45,31 @@ const (
 // runLimit is the size of rendered XML kept in memory before a sorted run is spilled.
 const runLimit = 48 << 20
 
+// Object state is kept compact: it is the only memory that grows with the
+// world. Times are seconds since epochBase in a uint32 (Validate keeps every
+// time before 2130); tags are interned.
+const epochBase = 946684800 // 2000-01-01T00:00:00Z
+
 type nodeRec struct {
 	lat, lon int32
 	ver      uint32
-	last     int64
+	last     uint32
 }
+
+func (n *nodeRec) lastAt() int64 { return int64(n.last) + epochBase }
 
 type wayRec struct {
 	ver   uint32
-	last  int64
+	last  uint32
 	nodes []uint32
+}
+
+func (w *wayRec) lastAt() int64 { return int64(w.last) + epochBase }
+
+// ctag is an interned tag: indexes into gen.keyNames and gen.vals.
+type ctag struct {
+	k uint16
+	v uint32
 }
 
 type feature struct {
@@ -63,7 +78,7 @@ type feature struct {
 	district int32
 	slot     int32 // index in district.live[kind]
 	id       uint32
-	tags     osm.Tags // class tag first
+	tags     []ctag // class tag first
 }
 
 type district struct {
@@ -115,6 +130,12 @@ type gen struct {
 	users     []user
 	cum       []float64 // cumulative activity weights of users, in join order
 	accounts  []Account
+
+	keyIdx   map[string]uint16
+	keyNames []string
+	valIdx   map[string]uint32
+	vals     []string
+	scratch  osm.Tags
 
 	out   runWriter
 	csOut *bufio.Writer
@@ -223,7 +244,7 @@ func prepareDir(dir string, force bool) error {
 
 func newGen(cfg Config) *gen {
 	src := rand.NewPCG(cfg.Seed, cfg.Seed^0x9e3779b97f4a7c15)
-	g := &gen{cfg: cfg, src: src, rng: rand.New(src)}
+	g := &gen{cfg: cfg, src: src, rng: rand.New(src), keyIdx: map[string]uint16{}, valIdx: map[string]uint32{}}
 	g.truth = &Truth{
 		Generator: "loadwake simulate",
 		Region: Region{
@@ -684,7 +705,7 @@ func (g *gen) head(id int64, ver uint32, t int64, visible bool) version {
 func (g *gen) writeNode(id uint32, t int64, visible bool, tags osm.Tags) {
 	n := &g.nodes[id-1]
 	n.ver++
-	n.last = t
+	n.last = uint32(t - epochBase)
 	start := len(g.out.buf)
 	g.out.buf = appendNode(g.out.buf, g.head(int64(id), n.ver, t, visible), n.lat, n.lon, tags)
 	g.out.add(sortKey(keyTypeNode, int64(id), int(n.ver)), start)
@@ -695,7 +716,7 @@ func (g *gen) writeNode(id uint32, t int64, visible bool, tags osm.Tags) {
 func (g *gen) writeWay(id uint32, t int64, visible bool, tags osm.Tags) {
 	w := &g.ways[id-1]
 	w.ver++
-	w.last = t
+	w.last = uint32(t - epochBase)
 	start := len(g.out.buf)
 	g.out.buf = appendWay(g.out.buf, g.head(int64(id), w.ver, t, visible), w.nodes, tags)
 	g.out.add(sortKey(keyTypeWay, int64(id), int(w.ver)), start)
@@ -781,12 +802,12 @@ func (g *gen) initialTags(d *district, kind uint8, imported bool) osm.Tags {
 func (g *gen) newFeature(d *district, kind uint8, t int64, imported bool) {
 	r := g.rng
 	f := feature{kind: kind, imported: imported, district: int32(d.id - 1)}
-	f.tags = g.initialTags(d, kind, imported)
+	f.tags = g.encode(g.initialTags(d, kind, imported))
 	switch kind {
 	case kindPOI:
 		lat, lon := d.randomPoint(r)
 		f.id = g.newNode(lat, lon)
-		g.writeNode(f.id, t, true, f.tags)
+		g.writeNode(f.id, t, true, g.tagsOf(&f))
 	case kindBuilding:
 		lat, lon := d.randomPoint(r)
 		h := 4 + r.Float64()*8
@@ -800,7 +821,7 @@ func (g *gen) newFeature(d *district, kind uint8, t int64, imported bool) {
 		ids = append(ids, ids[0])
 		g.ways = append(g.ways, wayRec{nodes: ids})
 		f.id = uint32(len(g.ways))
-		g.writeWay(f.id, t, true, f.tags)
+		g.writeWay(f.id, t, true, g.tagsOf(&f))
 	case kindRoad:
 		lat, lon := d.randomPoint(r)
 		k := 3 + r.IntN(4)
@@ -814,7 +835,7 @@ func (g *gen) newFeature(d *district, kind uint8, t int64, imported bool) {
 		}
 		g.ways = append(g.ways, wayRec{nodes: ids})
 		f.id = uint32(len(g.ways))
-		g.writeWay(f.id, t, true, f.tags)
+		g.writeWay(f.id, t, true, g.tagsOf(&f))
 	}
 	g.features = append(g.features, f)
 	g.addLive(d, int32(len(g.features)-1))
@@ -907,7 +928,7 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 			f := &g.features[g.randomLive(d, kindPOI)]
 			n := &g.nodes[f.id-1]
 			n.lat, n.lon = g.move(d, n.lat, n.lon, 2, 30)
-			g.writeNode(f.id, stamp(t, n.last), true, f.tags)
+			g.writeNode(f.id, stamp(t, n.lastAt()), true, g.tagsOf(f))
 			return true
 		case 1: // move an untagged way node
 			w := &g.ways[g.features[g.randomWay(d)].id-1]
@@ -917,7 +938,7 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 			}
 			n := &g.nodes[nid-1]
 			n.lat, n.lon = g.move(d, n.lat, n.lon, 1, 8)
-			g.writeNode(nid, stamp(t, n.last), true, nil)
+			g.writeNode(nid, stamp(t, n.lastAt()), true, nil)
 			return true
 		case 2: // insert a node into a way
 			fi := g.randomWay(d)
@@ -927,11 +948,11 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 			a, b := g.nodes[w.nodes[i]-1], g.nodes[w.nodes[i+1]-1]
 			lat, lon := g.offset((a.lat+b.lat)/2, (a.lon+b.lon)/2, 2*r.Float64())
 			lat, lon = d.clamp(lat, lon)
-			ts := stamp(t, w.last)
+			ts := stamp(t, w.lastAt())
 			id := g.newNode(lat, lon)
 			g.writeNode(id, ts, true, nil)
 			w.nodes = slices.Insert(w.nodes, i+1, id)
-			g.writeWay(f.id, ts, true, f.tags)
+			g.writeWay(f.id, ts, true, g.tagsOf(f))
 			return true
 		}
 		return false
@@ -942,14 +963,15 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 		}
 		f := &g.features[fi]
 		var missing, present []string
+		cur := g.tagsOf(f)
 		for _, k := range optionalKeys[f.kind] {
-			if f.tags.Find(k) == "" {
+			if cur.Find(k) == "" {
 				missing = append(missing, k)
 			} else {
 				present = append(present, k)
 			}
 		}
-		tags := slices.Clone(f.tags)
+		tags := slices.Clone(cur)
 		switch g.pickWeighted([]float64{has(0.5, len(missing)), has(0.35, len(present)), has(0.15, len(present))}) {
 		case 0:
 			k := missing[r.IntN(len(missing))]
@@ -975,7 +997,7 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 		default:
 			return false
 		}
-		f.tags = tags
+		f.tags = g.encode(tags)
 		g.rewrite(f, t)
 		return true
 	case layerBookkeeping:
@@ -985,7 +1007,7 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 		}
 		f := &g.features[fi]
 		k := provenanceKeys[r.IntN(len(provenanceKeys))]
-		tags := slices.Clone(f.tags)
+		tags := slices.Clone(g.tagsOf(f))
 		if old := tags.Find(k); old != "" {
 			if r.IntN(2) == 0 {
 				tags = slices.DeleteFunc(tags, func(t osm.Tag) bool { return t.Key == k })
@@ -1006,7 +1028,7 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 		} else {
 			tags = append(tags, osm.Tag{Key: k, Value: keyValue(r, k, d)})
 		}
-		f.tags = tags
+		f.tags = g.encode(tags)
 		g.rewrite(f, t)
 		return true
 	case layerDeletion:
@@ -1015,7 +1037,7 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 		case 0:
 			fi := g.randomLive(d, kindPOI)
 			f := &g.features[fi]
-			g.writeNode(f.id, stamp(t, g.nodes[f.id-1].last), false, nil)
+			g.writeNode(f.id, stamp(t, g.nodes[f.id-1].lastAt()), false, nil)
 			g.removeLive(d, fi)
 			return true
 		case 1, 2:
@@ -1026,9 +1048,9 @@ func (g *gen) organic(d *district, l layer, t int64) bool {
 			fi := g.randomLive(d, kind)
 			f := &g.features[fi]
 			w := &g.ways[f.id-1]
-			ts := stamp(t, w.last)
+			ts := stamp(t, w.lastAt())
 			for _, nid := range w.nodes {
-				ts = max(ts, g.nodes[nid-1].last+1)
+				ts = max(ts, g.nodes[nid-1].lastAt()+1)
 			}
 			g.writeWay(f.id, ts, false, nil)
 			seen := map[uint32]bool{}
@@ -1055,13 +1077,43 @@ func (g *gen) randomWay(d *district) int32 {
 	return d.live[kindRoad][i-nb]
 }
 
+// encode interns tags.
+func (g *gen) encode(tags osm.Tags) []ctag {
+	out := make([]ctag, len(tags))
+	for i, t := range tags {
+		k, ok := g.keyIdx[t.Key]
+		if !ok {
+			k = uint16(len(g.keyNames))
+			g.keyIdx[t.Key] = k
+			g.keyNames = append(g.keyNames, t.Key)
+		}
+		v, ok := g.valIdx[t.Value]
+		if !ok {
+			v = uint32(len(g.vals))
+			g.valIdx[t.Value] = v
+			g.vals = append(g.vals, t.Value)
+		}
+		out[i] = ctag{k: k, v: v}
+	}
+	return out
+}
+
+// tagsOf decodes f's tags into a scratch slice valid until the next call.
+func (g *gen) tagsOf(f *feature) osm.Tags {
+	g.scratch = g.scratch[:0]
+	for _, t := range f.tags {
+		g.scratch = append(g.scratch, osm.Tag{Key: g.keyNames[t.k], Value: g.vals[t.v]})
+	}
+	return g.scratch
+}
+
 // rewrite writes a new version of f with its current tags.
 func (g *gen) rewrite(f *feature, t int64) {
 	if f.kind == kindPOI {
-		g.writeNode(f.id, stamp(t, g.nodes[f.id-1].last), true, f.tags)
+		g.writeNode(f.id, stamp(t, g.nodes[f.id-1].lastAt()), true, g.tagsOf(f))
 		return
 	}
-	g.writeWay(f.id, stamp(t, g.ways[f.id-1].last), true, f.tags)
+	g.writeWay(f.id, stamp(t, g.ways[f.id-1].lastAt()), true, g.tagsOf(f))
 }
 
 func (g *gen) writeHistory(path string) error {
