@@ -52,10 +52,26 @@ func TestReadOSMProposalOsmChange(t *testing.T) {
 		t.Skipf("osm module testdata: %v", err)
 	}
 	defer rd.Close()
-	p, err := ReadOSMProposal(ctx, path, asObjects(rd), rules.Default(), ProposalOptions{})
+	viaIngest, err := ReadOSMProposal(ctx, path, asObjects(rd), rules.Default(), ProposalOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
+	f, err := os.Open(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer f.Close()
+	viaXML, err := ReadOSMProposal(ctx, path, OSMXMLObjects(ctx, path, f), rules.Default(), ProposalOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, p := range []*Proposal{viaIngest, viaXML} {
+		asCheckOsc(t, p)
+	}
+}
+
+func asCheckOsc(t *testing.T, p *Proposal) {
+	t.Helper()
 	pr := p.Profile()
 	if pr.Features != 27 || pr.Changes != 267 || pr.Changesets != 1 {
 		t.Errorf("features %d, changes %d, changesets %d; want 27, 267, 1 (osmium)", pr.Features, pr.Changes, pr.Changesets)
@@ -68,6 +84,47 @@ func TestReadOSMProposalOsmChange(t *testing.T) {
 	}
 	if missing != 10 {
 		t.Errorf("%d warnings about missing nodes, want 10 (osmium):\n%s", missing, strings.Join(p.Warnings, "\n"))
+	}
+}
+
+// TestOSMXMLObjectsEditorFile reads a proposal as editors save it (the JOSM
+// file format of the OSM wiki, "JOSM file format": negative ids for new
+// objects, no version, action="delete" for deletions) and checks a syntax
+// error is reported with its line.
+func TestOSMXMLObjectsEditorFile(t *testing.T) {
+	const doc = `<?xml version='1.0' encoding='UTF-8'?>
+<osm version='0.6' generator='an editor' upload='never'>
+  <node id='-1' lat='0.5' lon='0.5'><tag k='amenity' v='bench'/></node>
+  <node id='-2' lat='0.0' lon='0.0'/>
+  <node id='-3' lat='0.0' lon='0.001'/>
+  <node id='-4' lat='0.001' lon='0.001'/>
+  <node id='-5' lat='0.001' lon='0.0'/>
+  <way id='-6'><nd ref='-2'/><nd ref='-3'/><nd ref='-4'/><nd ref='-5'/><nd ref='-2'/><tag k='building' v='yes'/></way>
+  <way id='-7'><nd ref='-2'/><nd ref='-9'/><tag k='highway' v='service'/></way>
+  <node id='12' version='3' action='delete' lat='1' lon='1'/>
+</osm>`
+	ctx := context.Background()
+	p, err := ReadOSMProposal(ctx, "edit.osm", OSMXMLObjects(ctx, "edit.osm", strings.NewReader(doc)), rules.Default(), ProposalOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(p.Features) != 3 || p.Changes != 7 || p.Deletes != 1 {
+		t.Fatalf("features %d, changes %d, deletes %d; want 3, 7, 1", len(p.Features), p.Changes, p.Deletes)
+	}
+	kinds := map[string]GeomKind{}
+	for _, f := range p.Features {
+		kinds[f.ID] = f.Kind
+	}
+	if kinds["node/-1"] != KindPoint || kinds["way/-6"] != KindPolygon || kinds["way/-7"] != KindNone {
+		t.Errorf("kinds %v", kinds)
+	}
+	if !strings.Contains(strings.Join(p.Warnings, "\n"), "way/-7: 1 of its 2 nodes are not in the file") {
+		t.Errorf("warnings %q lack the missing node", p.Warnings)
+	}
+	bad := strings.Replace(doc, "<way id='-7'>", "<way id='-7'", 1)
+	_, err = ReadOSMProposal(ctx, "edit.osm", OSMXMLObjects(ctx, "edit.osm", strings.NewReader(bad)), rules.Default(), ProposalOptions{})
+	if !errors.Is(err, ErrProposal) || !strings.Contains(err.Error(), "edit.osm: line 9") {
+		t.Errorf("error %v; want ErrProposal at line 9", err)
 	}
 }
 

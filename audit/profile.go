@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"encoding/xml"
 	"errors"
 	"fmt"
 	"io"
@@ -773,4 +774,83 @@ func (pr *Profile) classShare(class, key string) (with, total int, ok bool) {
 		return 0, c.Features, true
 	}
 	return 0, 0, false
+}
+
+// OSMXMLObjects streams the nodes, ways and relations of an OSM XML or
+// OsmChange proposal, as editors write them: negative ids, no versions or
+// timestamps needed. An object is visible unless its element says
+// visible="false" or action="delete" (JOSM's files), or it lies in an
+// OsmChange <delete> block. Elements are decoded with the osm module's XML
+// mapping. A syntax error ends the sequence with a *ProposalError giving the
+// line and column.
+func OSMXMLObjects(ctx context.Context, name string, r io.Reader) iter.Seq2[osm.Object, error] {
+	return func(yield func(osm.Object, error) bool) {
+		dec := xml.NewDecoder(r)
+		fail := func(err error) {
+			line, col := dec.InputPos()
+			yield(nil, &ProposalError{File: name, Where: fmt.Sprintf("line %d, column %d", line, col), Err: err})
+		}
+		inDelete := false
+		n := 0
+		for {
+			if n++; n%ctxEvery == 0 && ctx.Err() != nil {
+				yield(nil, ctx.Err())
+				return
+			}
+			line, col := dec.InputPos()
+			tok, err := dec.Token()
+			if err == io.EOF {
+				return
+			}
+			if err != nil {
+				fail(err)
+				return
+			}
+			switch t := tok.(type) {
+			case xml.EndElement:
+				if t.Name.Local == "delete" {
+					inDelete = false
+				}
+			case xml.StartElement:
+				var o osm.Object
+				switch t.Name.Local {
+				case "delete":
+					inDelete = true
+					continue
+				case "node":
+					o = new(osm.Node)
+				case "way":
+					o = new(osm.Way)
+				case "relation":
+					o = new(osm.Relation)
+				default:
+					continue
+				}
+				if err := dec.DecodeElement(o, &t); err != nil {
+					yield(nil, &ProposalError{File: name, Where: fmt.Sprintf("line %d, column %d, %s", line, col, t.Name.Local), Err: err})
+					return
+				}
+				visible := !inDelete
+				for _, a := range t.Attr {
+					switch {
+					case a.Name.Local == "visible":
+						visible = visible && a.Value != "false"
+					case a.Name.Local == "action" && a.Value == "delete":
+						visible = false
+					}
+				}
+				switch v := o.(type) {
+				case *osm.Node:
+					v.Visible = visible
+				case *osm.Way:
+					v.Visible = visible
+				case *osm.Relation:
+					v.Visible = visible
+				}
+				if !yield(o, nil) {
+					return
+				}
+			}
+		}
+	}
 }

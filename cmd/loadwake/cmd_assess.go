@@ -2,6 +2,7 @@ package main
 
 import (
 	"bufio"
+	"compress/bzip2"
 	"compress/gzip"
 	"context"
 	"errors"
@@ -95,6 +96,14 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	}
 	p, err := readProposal(ctx, path, r)
 	if err != nil {
+		if p != nil && len(p.Features) > 0 {
+			// A partial profile of what was read before the problem.
+			pr := p.Profile()
+			fmt.Fprintf(cmd.OutOrStdout(), "partial profile of the first %d features read before the error:\n", pr.Features)
+			for _, c := range pr.Classes {
+				fmt.Fprintf(cmd.OutOrStdout(), "  %-28s %7d features (%d points, %d lines, %d polygons)\n", c.Class, c.Features, c.Points, c.Lines, c.Polygons)
+			}
+		}
 		return err
 	}
 	st, err := openStore(g)
@@ -149,21 +158,22 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	return nil
 }
 
-// readProposal reads path as OSM XML, OsmChange or PBF through ingest's
-// readers, or as GeoJSON (plain or gzip'd) when its content starts with '{'.
+// readProposal reads path as OSM XML or OsmChange (plain, gzip or bzip2;
+// versions not needed), PBF through ingest's reader, or GeoJSON when its
+// content starts with '{'.
 func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*audit.Proposal, error) {
 	_, format, err := ingest.DetectFile(path)
 	switch {
 	case err == nil && format == ingest.FormatChangesets:
 		return nil, fmt.Errorf("%s: changeset metadata, not a proposal of map data", path)
-	case err == nil:
+	case err == nil && format == ingest.FormatPBF:
 		rd, err := ingest.OpenFile(ctx, path, ingest.ReadOptions{})
 		if err != nil {
 			return nil, err
 		}
 		defer rd.Close()
 		return audit.ReadOSMProposal(ctx, path, objects(rd), r, audit.ProposalOptions{})
-	case !errors.Is(err, ingest.ErrUnknown):
+	case err != nil && !errors.Is(err, ingest.ErrUnknown):
 		return nil, err
 	}
 	f, err := os.Open(path)
@@ -172,16 +182,23 @@ func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*audit.Pr
 	}
 	defer f.Close()
 	br := bufio.NewReaderSize(f, 1<<16)
-	var src io.Reader = br
-	if magic, _ := br.Peek(2); len(magic) == 2 && magic[0] == 0x1f && magic[1] == 0x8b {
+	bsrc := br
+	magic, _ := br.Peek(3)
+	switch {
+	case len(magic) >= 2 && magic[0] == 0x1f && magic[1] == 0x8b:
 		zr, err := gzip.NewReader(br)
 		if err != nil {
 			return nil, fmt.Errorf("%s: %w", path, err)
 		}
 		defer zr.Close()
-		src = bufio.NewReaderSize(zr, 1<<16)
+		bsrc = bufio.NewReaderSize(zr, 1<<16)
+	case len(magic) == 3 && string(magic) == "BZh":
+		bsrc = bufio.NewReaderSize(bzip2.NewReader(br), 1<<16)
 	}
-	bsrc := src.(*bufio.Reader)
+	if format == ingest.FormatXML || format == ingest.FormatOsmChange {
+		// Editors' files have no versions: read them with the proposal reader.
+		return audit.ReadOSMProposal(ctx, path, audit.OSMXMLObjects(ctx, path, bsrc), r, audit.ProposalOptions{})
+	}
 	for {
 		b, err := bsrc.Peek(1)
 		if err != nil {

@@ -154,6 +154,8 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 	t.Run("errors", func(t *testing.T) {
 		empty := filepath.Join(tmp, "empty.geojson")
 		os.WriteFile(empty, []byte(`{"type":"FeatureCollection","features":[]}`), 0o644)
+		broken := filepath.Join(tmp, "broken.osm")
+		os.WriteFile(broken, []byte("<?xml version=\"1.0\"?>\n<osm version=\"0.6\">\n<node id=\"-1\" lat=\"1\" lon=\"2\"><tag k=\"amenity\" v=\"bench\"/></node>\n<node id=\"-2\" lat=\"x\" lon=\"2\"/>\n</osm>\n"), 0o644)
 		text := filepath.Join(tmp, "notes.txt")
 		os.WriteFile(text, []byte("just words\n"), 0o644)
 		cases := []struct {
@@ -166,6 +168,7 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 			{"bad distance", []string{"assess", empty, "--distance", "0"}, true, "--distance"},
 			{"empty proposal", []string{"assess", empty}, false, "empty.geojson: no features"},
 			{"not a proposal", []string{"assess", text}, false, "notes.txt"},
+			{"broken xml", []string{"assess", broken}, false, "broken.osm: line 4"},
 			{"checklist without units", []string{"checklist", "--changesets", csList}, true, "--units"},
 			{"bad provenance", []string{"checklist", "--provenance", "source~("}, true, "--provenance"},
 			{"bad types", []string{"checklist", "--provenance", "tiger:*", "--types", "x"}, true, "--types"},
