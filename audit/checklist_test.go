@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"flag"
 	"os"
 	"path/filepath"
 	"strings"
@@ -339,5 +340,61 @@ func TestMarkdownEscape(t *testing.T) {
 		if got := MarkdownEscape(c.in); got != c.want {
 			t.Errorf("MarkdownEscape(%q) = %q, want %q", c.in, got, c.want)
 		}
+	}
+}
+
+var clUpdate = flag.Bool("update-checklist", false, "rewrite the checklist golden files in testdata")
+
+// TestChecklistMarkdownGolden renders the snapshot checklist of the Delaware
+// counts (osmium tags-count figures of TestSnapshotChecklistDelaware:
+// tiger-tagged vs other highway=residential and highway=service ways) and
+// compares it with testdata/checklist_delaware.md.golden (regenerate with
+// -update-checklist; a mismatch is saved beside it as _got).
+func TestChecklistMarkdownGolden(t *testing.T) {
+	mk := func(total int, with map[string]int) tally {
+		return tally{total: total, with: with, gained: map[string]int{}}
+	}
+	counts := map[string]*[4]tally{
+		"highway=residential": {
+			grpImport:  mk(18721, map[string]int{"name": 16893, "oneway": 1069, "surface": 215, "lanes": 169, "access": 94, "maxspeed": 73}),
+			grpControl: mk(5598, map[string]int{"name": 4535, "oneway": 770, "surface": 246, "lanes": 104, "access": 20, "maxspeed": 18}),
+		},
+		"highway=service": {
+			grpImport:  mk(2135, map[string]int{"service": 353, "access": 1303, "name": 402, "oneway": 64, "lanes": 7, "surface": 5}),
+			grpControl: mk(10167, map[string]int{"service": 4568, "access": 1016, "name": 347, "oneway": 1163, "lanes": 158, "surface": 141}),
+		},
+	}
+	cl := &Checklist{Import: "tiger:*", Mode: "snapshot", Provenance: "tiger:*"}
+	opts := ChecklistOptions{MinShare: 0.01}.withDefaults()
+	if err := cl.fill(rules.Default(), counts, []refGroup{{RefWithoutProvenance, grpControl}}, opts, false, nil); err != nil {
+		t.Fatal(err)
+	}
+	var got bytes.Buffer
+	if err := cl.WriteMarkdown(&got); err != nil {
+		t.Fatal(err)
+	}
+	golden := filepath.Join("testdata", "checklist_delaware.md.golden")
+	if *clUpdate {
+		if err := os.WriteFile(golden, got.Bytes(), 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	want, err := os.ReadFile(golden)
+	if err != nil {
+		t.Fatalf("%v (run with -update-checklist to create it)", err)
+	}
+	if !bytes.Equal(got.Bytes(), want) {
+		os.WriteFile(golden+"_got", got.Bytes(), 0o644)
+		t.Errorf("markdown differs from %s; got saved as %s_got", golden, golden)
+	}
+	// surface on service roads: 5/2135 vs 141/10167 is lower and significant;
+	// name on residential roads: 90.2% vs 81.0% is higher and not flagged.
+	for _, r := range cl.Rows {
+		if r.Class == "highway=residential" && r.Key == "name" && r.Neglected {
+			t.Errorf("a higher share was flagged: %+v", r)
+		}
+	}
+	if len(cl.Neglected(RefWithoutProvenance)) == 0 {
+		t.Errorf("nothing flagged")
 	}
 }
