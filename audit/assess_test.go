@@ -129,7 +129,8 @@ func TestOSMXMLObjectsEditorFile(t *testing.T) {
 }
 
 // TestReadGeoJSONRFC7946 reads the example of RFC 7946 section 1.5 (kept in
-// testdata/units/rfc7946_example.geojson). The polygon is the 1°×1° cell
+// testdata/units/rfc7946_example.geojson, typed in from memory of the RFC
+// as its README says). The polygon is the 1°×1° cell
 // from (100°E, 0°) to (101°E, 1°N); on a sphere of radius R = 6,378,137 m
 // (orb.EarthRadius) a cell between longitudes λ1, λ2 and latitudes φ1, φ2
 // has area R²(λ2 − λ1)(sin φ2 − sin φ1) (the spherical zone formula, e.g.
