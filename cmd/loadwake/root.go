@@ -56,6 +56,7 @@ the community's import guidelines and local review.`,
 		newChecklistCommand(g), newAssessCommand(g),
 		newEstimateCommand(g),
 		newSimulateCommand(g),
+		newReportCommand(g), newDemoCommand(g),
 	)
 	return root
 }

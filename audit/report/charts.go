@@ -1,0 +1,491 @@
+package report
+
+import (
+	"bytes"
+	"fmt"
+	"image/color"
+	"math"
+	"regexp"
+	"sort"
+	"strings"
+
+	"github.com/paulmach/orb"
+	"gonum.org/v1/plot"
+	"gonum.org/v1/plot/font"
+	"gonum.org/v1/plot/plotter"
+	"gonum.org/v1/plot/vg"
+	"gonum.org/v1/plot/vg/draw"
+
+	"github.com/loadwake/loadwake/audit"
+)
+
+// Colours of the Okabe–Ito palette (Okabe & Ito 2008, "Color Universal
+// Design"), chosen so that readers with the common colour-vision
+// deficiencies can still tell the groups apart.
+var (
+	okBlack     = color.NRGBA{0x00, 0x00, 0x00, 0xff}
+	okOrange    = color.NRGBA{0xe6, 0x9f, 0x00, 0xff}
+	okSkyBlue   = color.NRGBA{0x56, 0xb4, 0xe9, 0xff}
+	okGreen     = color.NRGBA{0x00, 0x9e, 0x73, 0xff}
+	okBlue      = color.NRGBA{0x00, 0x72, 0xb2, 0xff}
+	okVermilion = color.NRGBA{0xd5, 0x5e, 0x00, 0xff}
+	okPurple    = color.NRGBA{0xcc, 0x79, 0xa7, 0xff}
+	okGrey      = color.NRGBA{0xbb, 0xbb, 0xbb, 0xff} // neutral, outside the palette
+	okBand      = color.NRGBA{0x56, 0xb4, 0xe9, 0x60} // sky blue, translucent
+)
+
+// statusColour is the map fill of each unit role.
+func statusColour(s audit.UnitStatus) color.Color {
+	switch s {
+	case audit.StatusTreated:
+		return okVermilion
+	case audit.StatusControl:
+		return okBlue
+	case audit.StatusDropped:
+		return okPurple
+	case audit.StatusExcluded:
+		return okOrange
+	}
+	return okGrey
+}
+
+// statusLabel is the legend text of each unit role.
+func statusLabel(s audit.UnitStatus) string {
+	switch s {
+	case audit.StatusTreated:
+		return "import area (treated)"
+	case audit.StatusControl:
+		return "matched comparison area"
+	case audit.StatusDropped:
+		return "import area left out (no match)"
+	case audit.StatusExcluded:
+		return "excluded (other or light import)"
+	}
+	return "unused untouched area"
+}
+
+// chartFont is the text face of every chart: Liberation Sans, which gonum/plot
+// embeds for measuring text and which is metric-compatible with Arial and
+// Helvetica, so the browser's fallback keeps the layout.
+func chartFont(size vg.Length) font.Font {
+	return font.Font{Typeface: "Liberation", Variant: "Sans", Size: size}
+}
+
+// newPlot returns a plot with the report's fonts and a light grid style.
+func newPlot(title string) *plot.Plot {
+	p := plot.New()
+	p.Title.Text = title
+	p.Title.TextStyle.Font = chartFont(12)
+	p.Title.Padding = vg.Points(6)
+	for _, a := range []*plot.Axis{&p.X, &p.Y} {
+		a.Label.TextStyle.Font = chartFont(10)
+		a.Tick.Label.Font = chartFont(9)
+		a.Color = color.NRGBA{0x55, 0x55, 0x55, 0xff}
+		a.Tick.Color = a.Color
+	}
+	p.Legend.TextStyle.Font = chartFont(9)
+	p.Legend.Top = true
+	return p
+}
+
+// fontFamily matches the font-family that gonum/plot's SVG canvas writes.
+var fontFamily = regexp.MustCompile(`font-family:([^;"]+)`)
+
+// renderSVG draws p at w×h points and returns SVG markup fit to be inlined in
+// HTML: no XML declaration or generator comment, a viewBox that scales, a
+// role and title for screen readers, and a local font stack, so text renders
+// without loading any font.
+func renderSVG(p *plot.Plot, w, h vg.Length, label string) ([]byte, error) {
+	wt, err := p.WriterTo(w, h, "svg")
+	if err != nil {
+		return nil, fmt.Errorf("report: chart %q: %w", label, err)
+	}
+	var buf bytes.Buffer
+	if _, err := wt.WriteTo(&buf); err != nil {
+		return nil, fmt.Errorf("report: chart %q: %w", label, err)
+	}
+	return tidySVG(buf.Bytes(), label), nil
+}
+
+func tidySVG(b []byte, label string) []byte {
+	s := string(b)
+	if i := strings.Index(s, "<svg"); i >= 0 {
+		s = s[i:]
+	}
+	s = fontFamily.ReplaceAllString(s, "font-family:'Liberation Sans',Arial,Helvetica,sans-serif")
+	// Width and height become CSS-scalable; the viewBox keeps the proportions.
+	title := "<title>" + htmlText(label) + "</title>"
+	s = strings.Replace(s, "<svg ", `<svg role="img" aria-label="`+htmlAttr(label)+`" class="chart" `, 1)
+	if i := strings.Index(s, ">"); i >= 0 {
+		s = s[:i+1] + "\n" + title + s[i+1:]
+	}
+	return []byte(strings.TrimSpace(s) + "\n")
+}
+
+func htmlText(s string) string {
+	r := strings.NewReplacer("&", "&amp;", "<", "&lt;", ">", "&gt;")
+	return r.Replace(s)
+}
+
+func htmlAttr(s string) string {
+	r := strings.NewReplacer("&", "&amp;", "<", "&lt;", ">", "&gt;", `"`, "&#34;", "'", "&#39;")
+	return r.Replace(s)
+}
+
+// chartEstimator picks the estimator whose event study a layer's chart shows:
+// the linear event study (it has a fixed reference month), else cs-att, else
+// whatever is there.
+func chartEstimator(rows []audit.EventStudyRow, layer string) string {
+	have := map[string]bool{}
+	for _, r := range rows {
+		if r.Layer == layer {
+			have[r.Estimator] = true
+		}
+	}
+	for _, e := range []string{"twfe-linear", "cs-att"} {
+		if have[e] {
+			return e
+		}
+	}
+	var names []string
+	for e := range have {
+		names = append(names, e)
+	}
+	sort.Strings(names)
+	if len(names) > 0 {
+		return names[0]
+	}
+	return ""
+}
+
+// EventStudySVG draws the event study of one layer: the estimate for each
+// month relative to the import's arrival, its 95% band, the zero line, a
+// vertical line where the import arrives (event time 0) and the reference
+// month marked. ok is false when the audit has no event-study rows for the
+// layer.
+func EventStudySVG(rows []audit.EventStudyRow, layer string) (svg []byte, ok bool, err error) {
+	est := chartEstimator(rows, layer)
+	if est == "" {
+		return nil, false, nil
+	}
+	var sel []audit.EventStudyRow
+	for _, r := range rows {
+		if r.Layer == layer && r.Estimator == est {
+			sel = append(sel, r)
+		}
+	}
+	sort.Slice(sel, func(i, j int) bool { return sel[i].EventTime < sel[j].EventTime })
+	p := newPlot(fmt.Sprintf("%s edits around the import (%s)", capital(strings.ReplaceAll(layer, "_", " ")), est))
+	p.X.Label.Text = "months since the import reached the area"
+	p.Y.Label.Text = "difference in edits per area-month"
+
+	pts := make(plotter.XYs, len(sel))
+	band := make(plotter.XYs, 0, 2*len(sel))
+	var refs plotter.XYs
+	lo, hi := 0.0, 0.0
+	for i, r := range sel {
+		pts[i] = plotter.XY{X: float64(r.EventTime), Y: r.Estimate}
+		band = append(band, plotter.XY{X: float64(r.EventTime), Y: r.CI95[0]})
+		if r.CI95 == [2]float64{0, 0} && r.Estimate == 0 {
+			refs = append(refs, pts[i])
+		}
+		lo, hi = math.Min(lo, r.CI95[0]), math.Max(hi, r.CI95[1])
+		lo, hi = math.Min(lo, r.Estimate), math.Max(hi, r.Estimate)
+	}
+	for i := len(sel) - 1; i >= 0; i-- {
+		band = append(band, plotter.XY{X: float64(sel[i].EventTime), Y: sel[i].CI95[1]})
+	}
+	poly, err := plotter.NewPolygon(band)
+	if err != nil {
+		return nil, false, err
+	}
+	poly.Color = okBand
+	poly.LineStyle.Width = 0
+	p.Add(poly)
+	p.Legend.Add("95% interval", poly)
+
+	xmin, xmax := pts[0].X, pts[len(pts)-1].X
+	zero, _ := plotter.NewLine(plotter.XYs{{X: xmin - 0.5, Y: 0}, {X: xmax + 0.5, Y: 0}})
+	zero.Color = okBlack
+	zero.Width = vg.Points(0.8)
+	p.Add(zero)
+	pad := 0.05 * (hi - lo)
+	if pad == 0 {
+		pad = 1
+	}
+	arrive, _ := plotter.NewLine(plotter.XYs{{X: -0.5, Y: lo - pad}, {X: -0.5, Y: hi + pad}})
+	arrive.Color = okVermilion
+	arrive.Width = vg.Points(1.2)
+	arrive.Dashes = []vg.Length{vg.Points(5), vg.Points(3)}
+	p.Add(arrive)
+	p.Legend.Add("import arrives", arrive)
+
+	line, dots, err := plotter.NewLinePoints(pts)
+	if err != nil {
+		return nil, false, err
+	}
+	line.Color = okBlue
+	line.Width = vg.Points(1.4)
+	dots.Color = okBlue
+	dots.Shape = draw.CircleGlyph{}
+	dots.Radius = vg.Points(2.2)
+	p.Add(line, dots)
+	p.Legend.Add("estimate", line, dots)
+	if len(refs) > 0 {
+		ref, _ := plotter.NewScatter(refs)
+		ref.Shape = draw.RingGlyph{}
+		ref.Radius = vg.Points(5)
+		ref.Color = okBlack
+		p.Add(ref)
+		p.Legend.Add("reference month (fixed at 0)", ref)
+	}
+	p.Legend.Left = true
+	p.X.Min, p.X.Max = xmin-0.5, xmax+0.5
+	p.Y.Min, p.Y.Max = lo-pad, hi+pad+0.35*(hi-lo+2*pad) // room for the legend
+	svg, err = renderSVG(p, 16*vg.Centimeter, 9*vg.Centimeter, "Event study of "+layer+" edits ("+est+")")
+	return svg, err == nil, err
+}
+
+// BalanceSVG draws the standardized mean difference of each covariate before
+// and after matching, with the ±0.1 lines (Austin 2009's rule of thumb).
+// ok is false when there are no balance rows.
+func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
+	if len(rows) == 0 {
+		return nil, false, nil
+	}
+	p := newPlot("Balance of the comparison areas")
+	p.X.Label.Text = "standardized mean difference (import areas minus comparison)"
+	names := make([]string, len(rows))
+	before := make(plotter.XYs, len(rows))
+	after := make(plotter.XYs, len(rows))
+	lim := 0.25
+	for i, r := range rows {
+		y := float64(len(rows) - 1 - i)
+		names[len(rows)-1-i] = r.Covariate
+		before[i] = plotter.XY{X: clampSMD(r.SMDBefore), Y: y}
+		after[i] = plotter.XY{X: clampSMD(r.SMDAfter), Y: y}
+		lim = math.Max(lim, math.Max(math.Abs(before[i].X), math.Abs(after[i].X)))
+	}
+	lim *= 1.1
+	top := float64(len(rows)) - 0.5 + 1.2 // room for the legend
+	for _, x := range []float64{-audit.BalanceThreshold, audit.BalanceThreshold} {
+		l, _ := plotter.NewLine(plotter.XYs{{X: x, Y: -0.5}, {X: x, Y: top}})
+		l.Color = okGreen
+		l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
+		l.Width = vg.Points(1)
+		p.Add(l)
+		if x > 0 {
+			p.Legend.Add("±0.1 (rule of thumb)", l)
+		}
+	}
+	zero, _ := plotter.NewLine(plotter.XYs{{X: 0, Y: -0.5}, {X: 0, Y: top}})
+	zero.Color = okBlack
+	zero.Width = vg.Points(0.6)
+	p.Add(zero)
+	// Thin connectors show each covariate's move.
+	for i := range rows {
+		c, _ := plotter.NewLine(plotter.XYs{before[i], after[i]})
+		c.Color = okGrey
+		c.Width = vg.Points(1)
+		p.Add(c)
+	}
+	sb, _ := plotter.NewScatter(before)
+	sb.Shape = draw.RingGlyph{}
+	sb.Radius = vg.Points(3.5)
+	sb.Color = okOrange
+	sa, _ := plotter.NewScatter(after)
+	sa.Shape = draw.CircleGlyph{}
+	sa.Radius = vg.Points(3.5)
+	sa.Color = okBlue
+	p.Add(sb, sa)
+	p.Legend.Add("before matching", sb)
+	p.Legend.Add("after matching", sa)
+	p.NominalY(names...)
+	p.Y.Min, p.Y.Max = -0.5, top
+	p.X.Min, p.X.Max = -lim, lim
+	h := vg.Length(3+0.7*float64(len(rows))) * vg.Centimeter
+	svg, err = renderSVG(p, 16*vg.Centimeter, h, "Standardized mean differences before and after matching")
+	return svg, err == nil, err
+}
+
+// clampSMD keeps an infinite or NaN SMD (a covariate constant in one group)
+// drawable at the chart's edge.
+func clampSMD(x float64) float64 {
+	switch {
+	case math.IsNaN(x):
+		return 0
+	case x > 5:
+		return 5
+	case x < -5:
+		return -5
+	}
+	return x
+}
+
+// Shapes are the unit geometries a map draws. *audit.Units meets it.
+type Shapes interface {
+	Len() int
+	ID(i int) string
+	Geometry(i int) orb.Geometry
+}
+
+// kmPerDegree is the length of one degree of a great circle on the sphere of
+// radius orb.EarthRadius (6,378,137 m), in kilometres.
+const kmPerDegree = orb.EarthRadius * math.Pi / 180 / 1000
+
+// projection is an equirectangular projection centred on latitude lat0:
+// x = longitude·cos(lat0), y = latitude, both in degrees of arc, so that one
+// unit is kmPerDegree in either direction near lat0.
+type projection struct{ cos float64 }
+
+func newProjection(lat0 float64) projection {
+	return projection{cos: math.Cos(lat0 * math.Pi / 180)}
+}
+
+func (pr projection) xy(p orb.Point) plotter.XY { return plotter.XY{X: p[0] * pr.cos, Y: p[1]} }
+
+// niceLength returns the largest 1, 2 or 5 × 10^k not above x (x > 0).
+func niceLength(x float64) float64 {
+	if x <= 0 || math.IsInf(x, 0) || math.IsNaN(x) {
+		return 0
+	}
+	e := math.Pow(10, math.Floor(math.Log10(x)))
+	for _, m := range []float64{5, 2, 1} {
+		if m*e <= x {
+			return m * e
+		}
+	}
+	return e
+}
+
+// scaleBar draws a bar of Km kilometres at the lower left of the map.
+type scaleBar struct {
+	X, Y float64 // left end, data coordinates
+	Km   float64
+}
+
+func (s scaleBar) Plot(c draw.Canvas, plt *plot.Plot) {
+	tx, ty := plt.Transforms(&c)
+	x0, y0 := tx(s.X), ty(s.Y)
+	x1 := tx(s.X + s.Km/kmPerDegree)
+	ls := draw.LineStyle{Color: okBlack, Width: vg.Points(2)}
+	c.StrokeLine2(ls, x0, y0, x1, y0)
+	for _, x := range []vg.Length{x0, x1} {
+		c.StrokeLine2(draw.LineStyle{Color: okBlack, Width: vg.Points(1)}, x, y0-vg.Points(3), x, y0+vg.Points(3))
+	}
+	ts := draw.TextStyle{Color: okBlack, Font: chartFont(9), Handler: plt.Title.TextStyle.Handler, XAlign: draw.XCenter}
+	ts.Font = chartFont(9)
+	c.FillText(ts, vg.Point{X: (x0 + x1) / 2, Y: y0 + vg.Points(5)}, kmText(s.Km))
+}
+
+func kmText(km float64) string {
+	if km < 1 {
+		return fmt.Sprintf("%.0f m", km*1000)
+	}
+	return fmt.Sprintf("%g km", km)
+}
+
+// MapSVG draws the units coloured by their role in the study, with a legend
+// and a scale bar in kilometres, in an equirectangular projection scaled by
+// the cosine of the mid latitude. ok is false when there is nothing to draw.
+func MapSVG(shapes Shapes, list []audit.UnitInfo) (svg []byte, ok bool, err error) {
+	if shapes == nil || shapes.Len() == 0 {
+		return nil, false, nil
+	}
+	status := make(map[string]audit.UnitStatus, len(list))
+	for _, u := range list {
+		status[u.ID] = u.Status
+	}
+	var b orb.Bound
+	first := true
+	for i := range shapes.Len() {
+		g := shapes.Geometry(i)
+		if g == nil {
+			continue
+		}
+		if first {
+			b, first = g.Bound(), false
+		} else {
+			b = b.Union(g.Bound())
+		}
+	}
+	if first {
+		return nil, false, nil
+	}
+	pr := newProjection((b.Min[1] + b.Max[1]) / 2)
+	p := newPlot("Areas in the study")
+	p.HideAxes()
+	seen := map[audit.UnitStatus]bool{}
+	for i := range shapes.Len() {
+		s := status[shapes.ID(i)]
+		for _, ring := range outerRings(shapes.Geometry(i)) {
+			xy := make(plotter.XYs, len(ring))
+			for k, pt := range ring {
+				xy[k] = pr.xy(pt)
+			}
+			poly, err := plotter.NewPolygon(xy)
+			if err != nil {
+				return nil, false, fmt.Errorf("report: map of unit %q: %w", shapes.ID(i), err)
+			}
+			poly.Color = statusColour(s)
+			poly.LineStyle = draw.LineStyle{Color: color.White, Width: vg.Points(0.6)}
+			p.Add(poly)
+			if !seen[s] {
+				seen[s] = true
+			}
+		}
+	}
+	for _, s := range []audit.UnitStatus{audit.StatusTreated, audit.StatusControl, audit.StatusCandidate, audit.StatusExcluded, audit.StatusDropped} {
+		if seen[s] {
+			th, _ := plotter.NewPolygon(plotter.XYs{{X: 0, Y: 0}, {X: 1, Y: 0}, {X: 1, Y: 1}})
+			th.Color = statusColour(s)
+			th.LineStyle.Width = 0
+			p.Legend.Add(statusLabel(s), th)
+		}
+	}
+	lo, hi := pr.xy(b.Min), pr.xy(b.Max)
+	w, h := hi.X-lo.X, hi.Y-lo.Y
+	if w <= 0 || h <= 0 {
+		return nil, false, nil
+	}
+	// Room on the right for the legend and below for the scale bar.
+	p.X.Min, p.X.Max = lo.X-0.02*w, hi.X+0.55*w
+	p.Y.Min, p.Y.Max = lo.Y-0.12*h, hi.Y+0.02*h
+	km := niceLength(w * kmPerDegree / 4)
+	p.Add(scaleBar{X: lo.X, Y: lo.Y - 0.08*h, Km: km})
+	width := 16 * vg.Centimeter
+	aspect := (p.Y.Max - p.Y.Min) / (p.X.Max - p.X.Min)
+	height := vg.Length(math.Min(math.Max(aspect, 0.3), 1.6)) * width
+	svg, err = renderSVG(p, width, height+vg.Centimeter, "Map of the study areas by role")
+	return svg, err == nil, err
+}
+
+// outerRings returns the outer rings of a polygonal geometry.
+func outerRings(g orb.Geometry) []orb.Ring {
+	switch g := g.(type) {
+	case orb.Polygon:
+		if len(g) > 0 {
+			return []orb.Ring{g[0]}
+		}
+	case orb.MultiPolygon:
+		var out []orb.Ring
+		for _, p := range g {
+			if len(p) > 0 {
+				out = append(out, p[0])
+			}
+		}
+		return out
+	case orb.Bound:
+		return []orb.Ring{g.ToRing()}
+	case orb.Ring:
+		return []orb.Ring{g}
+	}
+	return nil
+}
+
+func capital(s string) string {
+	if s == "" {
+		return s
+	}
+	return strings.ToUpper(s[:1]) + s[1:]
+}

@@ -1,0 +1,78 @@
+package report
+
+import (
+	"fmt"
+	"io"
+
+	"github.com/paulmach/orb/geojson"
+
+	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/layers"
+)
+
+// WriteUnitsGeoJSON writes every unit as an RFC 7946 Feature with the
+// properties id, status (treated, control, unmatched, dropped, excluded),
+// reason, intensity, first_month (null when the import never reached it),
+// weight, import_features and, per layer, cs_att_relative_LAYER: the import's
+// cs-att relative effect in that layer (the same for every unit; null when
+// not estimated), so a map can label import areas with it.
+func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.AuditReport) error {
+	if shapes == nil {
+		return fmt.Errorf("%w: no units", ErrInput)
+	}
+	info := map[string]audit.UnitInfo{}
+	if r != nil {
+		for _, u := range r.UnitList {
+			info[u.ID] = u
+		}
+	}
+	effects := map[string]any{}
+	for _, l := range layers.Layers {
+		effects["cs_att_relative_"+l.String()] = nil
+	}
+	if r != nil {
+		for _, e := range r.Effects {
+			if _, ok := layers.ParseLayer(e.Layer); ok && e.Estimator == headlineEstimator && e.RelativeEffect != nil {
+				effects["cs_att_relative_"+e.Layer] = *e.RelativeEffect
+			}
+		}
+	}
+	fc := geojson.NewFeatureCollection()
+	for i := range shapes.Len() {
+		id := shapes.ID(i)
+		g := shapes.Geometry(i)
+		if g == nil {
+			return fmt.Errorf("%w: unit %q has no geometry", ErrInput, id)
+		}
+		f := geojson.NewFeature(g)
+		u, ok := info[id]
+		if !ok {
+			u = audit.UnitInfo{ID: id, Status: audit.StatusCandidate}
+		}
+		f.Properties["id"] = id
+		f.Properties["status"] = u.Status.String()
+		if u.Reason != "" {
+			f.Properties["reason"] = u.Reason
+		}
+		f.Properties["intensity"] = u.Intensity
+		if u.FirstMonth != "" {
+			f.Properties["first_month"] = u.FirstMonth
+		} else {
+			f.Properties["first_month"] = nil
+		}
+		f.Properties["weight"] = u.Weight
+		f.Properties["import_features"] = u.ImportFeatures
+		for k, v := range effects {
+			f.Properties[k] = v
+		}
+		fc.Append(f)
+	}
+	b, err := fc.MarshalJSON()
+	if err != nil {
+		return err
+	}
+	if _, err := w.Write(append(b, '\n')); err != nil {
+		return err
+	}
+	return nil
+}

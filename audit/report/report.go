@@ -1,0 +1,182 @@
+package report
+
+import (
+	"bytes"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+
+	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/layers"
+)
+
+// ErrInput is the sentinel under errors about an unusable Input.
+var ErrInput = errors.New("report: invalid input")
+
+// Input is what a report is made of. Audit is required; the rest is optional
+// and adds sections when present.
+type Input struct {
+	// Audit is the audit of one import (audit.RunAudit). Its Study, when set,
+	// gives panel.csv.
+	Audit *audit.AuditReport
+	// Units are the study's spatial units, for the map and units.geojson.
+	// *audit.Units meets Shapes.
+	Units Shapes
+	// Checklist is the import's neglected-tag checklist.
+	Checklist *audit.Checklist
+	// Assessment is an assessment of a proposed import.
+	Assessment *audit.Assessment
+}
+
+func (in Input) check() error {
+	if in.Audit == nil {
+		return fmt.Errorf("%w: no audit", ErrInput)
+	}
+	return nil
+}
+
+// The files Write creates, by name.
+const (
+	FileMarkdown   = "report.md"
+	FileHTML       = "report.html"
+	FileJSON       = "report.json"
+	FileUnits      = "units.geojson"
+	FilePanel      = "panel.csv"
+	FileChecklist  = "checklist.json"
+	FileAssessment = "assessment.json"
+)
+
+// Files returns the names of the files Write creates for in, in writing order.
+func Files(in Input) []string {
+	out := []string{FileMarkdown, FileHTML, FileJSON}
+	if in.Units != nil {
+		out = append(out, FileUnits)
+	}
+	if in.Audit != nil && in.Audit.Study != nil && in.Audit.Study.Panel != nil {
+		out = append(out, FilePanel)
+	}
+	if in.Checklist != nil {
+		out = append(out, FileChecklist)
+	}
+	if in.Assessment != nil {
+		out = append(out, FileAssessment)
+	}
+	return out
+}
+
+// Write creates dir if needed and writes the report files into it (see
+// Files): report.md, report.html, report.json (AuditReport.WriteJSON),
+// units.geojson when Units are given, panel.csv (audit.WritePanelCSV) when
+// the audit carries its study, and checklist.json and assessment.json when
+// those are given. Existing files of those names are replaced; each is
+// written to a temporary name first and renamed, so a failed run leaves no
+// half-written file.
+func Write(dir string, in Input) error {
+	if err := in.check(); err != nil {
+		return err
+	}
+	if err := os.MkdirAll(dir, 0o755); err != nil {
+		return fmt.Errorf("report: %w", err)
+	}
+	charts, err := MakeCharts(in)
+	if err != nil {
+		return err
+	}
+	writers := map[string]func(io.Writer) error{
+		FileMarkdown: func(w io.Writer) error { return WriteMarkdown(w, in) },
+		FileHTML:     func(w io.Writer) error { return writeHTML(w, in, charts) },
+		FileJSON:     in.Audit.WriteJSON,
+		FileUnits:    func(w io.Writer) error { return WriteUnitsGeoJSON(w, in.Units, in.Audit) },
+		FilePanel:    func(w io.Writer) error { return audit.WritePanelCSV(w, in.Audit.Study.Panel) },
+	}
+	if in.Checklist != nil {
+		writers[FileChecklist] = in.Checklist.WriteJSON
+	}
+	if in.Assessment != nil {
+		writers[FileAssessment] = in.Assessment.WriteJSON
+	}
+	for _, name := range Files(in) {
+		if err := writeAtomic(filepath.Join(dir, name), writers[name]); err != nil {
+			return err
+		}
+	}
+	return nil
+}
+
+// writeAtomic writes path through a temporary file in the same folder.
+func writeAtomic(path string, write func(io.Writer) error) error {
+	var buf bytes.Buffer
+	if err := write(&buf); err != nil {
+		return fmt.Errorf("report: write %s: %w", path, err)
+	}
+	tmp := path + ".tmp"
+	if err := os.WriteFile(tmp, buf.Bytes(), 0o644); err != nil {
+		return fmt.Errorf("report: %w", err)
+	}
+	if err := os.Rename(tmp, path); err != nil {
+		os.Remove(tmp)
+		return fmt.Errorf("report: %w", err)
+	}
+	return nil
+}
+
+// Chart is one rendered chart.
+type Chart struct {
+	Name    string // file-safe name, e.g. "event-study-attribute"
+	Caption string // what the chart shows, in plain words
+	SVG     []byte // inline SVG markup
+}
+
+// MakeCharts renders the charts of a report: one event study per layer that
+// has event-study rows, the balance chart when there are balance rows, and the
+// map when units are given.
+func MakeCharts(in Input) ([]Chart, error) {
+	if err := in.check(); err != nil {
+		return nil, err
+	}
+	var out []Chart
+	for _, l := range layers.Layers {
+		svg, ok, err := EventStudySVG(in.Audit.EventStudy, l.String())
+		if err != nil {
+			return nil, err
+		}
+		if ok {
+			out = append(out, Chart{Name: "event-study-" + l.String(), SVG: svg,
+				Caption: fmt.Sprintf("Each dot is the estimated difference in %s per area and month between import areas and their comparison areas, by month relative to the import's arrival (dashed line). The shaded band is the 95%% interval. Before the line, dots near zero mean both groups moved alike; after it, they show the change that followed.", layerWords(l.String()))})
+		}
+	}
+	if svg, ok, err := BalanceSVG(in.Audit.Balance); err != nil {
+		return nil, err
+	} else if ok {
+		out = append(out, Chart{Name: "balance", SVG: svg,
+			Caption: "How far the import areas differed from the comparison areas before the import, for each trait used in matching, in standard deviations: open rings before matching, filled dots after. Dots inside the dashed ±0.1 lines count as well balanced."})
+	}
+	if in.Units != nil {
+		svg, ok, err := MapSVG(in.Units, in.Audit.UnitList)
+		if err != nil {
+			return nil, err
+		}
+		if ok {
+			out = append(out, Chart{Name: "map", SVG: svg,
+				Caption: "The study areas by role. Import areas are compared with the matched comparison areas only; unused, excluded and left-out areas do not enter the estimates."})
+		}
+	}
+	return out, nil
+}
+
+// layerWords describes a layer's edits in plain words.
+func layerWords(layer string) string {
+	switch layer {
+	case layers.Geometry.String():
+		return "edits that move or reshape existing features"
+	case layers.Attribute.String():
+		return "edits that change the tags of existing features"
+	case layers.NewFeature.String():
+		return "newly mapped features"
+	case layers.Deletion.String():
+		return "deleted features"
+	}
+	return layer + " counts"
+}

@@ -1,0 +1,232 @@
+package report
+
+import (
+	"fmt"
+	"math"
+	"strings"
+
+	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/layers"
+)
+
+// view is the content of a report as plain text, before escaping: the
+// Markdown and HTML writers render the same view.
+type view struct {
+	Title     string
+	Lead      []string // sentences describing the import and the panel
+	Warnings  []string
+	Headline  []headline
+	Glossary  []term
+	Areas     []string
+	Balance   []balanceRow
+	Estimates []estimateRow
+	Placebo   []placeboRow
+	Notes     []string
+	Cautions  []string
+}
+
+type headline struct {
+	Layer, Effect, Interval, PreTrend, Reading string
+}
+
+type term struct{ Name, Text string }
+
+type balanceRow struct {
+	Covariate, Treated, Control, Before, After, Flag string
+}
+
+type estimateRow struct {
+	Outcome, Estimator, Effect, Interval, ATT, P, PreTrend, Method, Units string
+}
+
+type placeboRow struct {
+	Outcome, Shift, ATT, Interval, P string
+}
+
+// pct formats a share as a signed percentage.
+func pct(x float64) string {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return "n/a"
+	}
+	return fmt.Sprintf("%+.1f%%", 100*x)
+}
+
+func num(x float64) string {
+	if math.IsNaN(x) || math.IsInf(x, 0) {
+		return "n/a"
+	}
+	return fmt.Sprintf("%+.3f", x)
+}
+
+func pval(p float64) string {
+	switch {
+	case math.IsNaN(p):
+		return "-"
+	case p < 0.001:
+		return "<0.001"
+	}
+	return fmt.Sprintf("%.3f", p)
+}
+
+func pptr(p *float64) string {
+	if p == nil {
+		return "-"
+	}
+	return pval(*p)
+}
+
+// headlineEstimator is the estimator each layer's headline is read from:
+// Callaway & Sant'Anna's group-time ATT against never-treated matched
+// controls, which stays valid with staggered imports.
+const headlineEstimator = "cs-att"
+
+// Reading returns a plain-words reading of one effect for a non-statistician.
+func Reading(e audit.Effect) string {
+	what := layerWords(e.Layer)
+	var b strings.Builder
+	if e.RelativeEffect != nil {
+		r := *e.RelativeEffect
+		dir := "more"
+		if r < 0 {
+			dir = "fewer"
+		}
+		fmt.Fprintf(&b, "Import areas saw about %.0f%% %s %s than they would have without the import, judged by the matched comparison areas", math.Abs(100*r), dir, what)
+		fmt.Fprintf(&b, " (95%% interval %s to %s).", pct(e.CI95[0]), pct(e.CI95[1]))
+	} else {
+		dir := "more"
+		if e.ATT < 0 {
+			dir = "fewer"
+		}
+		fmt.Fprintf(&b, "Import areas saw about %.2f %s %s per area and month than the comparison suggests (95%% interval %s to %s).", math.Abs(e.ATT), dir, what, num(e.CI95[0]), num(e.CI95[1]))
+	}
+	switch {
+	case e.CI95[0] <= 0 && e.CI95[1] >= 0:
+		b.WriteString(" The interval includes zero: the data are compatible with no change at all.")
+	case e.CI95[1] < 0:
+		b.WriteString(" The whole interval lies below zero: a drop is likely, though its size is uncertain.")
+	default:
+		b.WriteString(" The whole interval lies above zero: a rise is likely, though its size is uncertain.")
+	}
+	if e.PreTrendP != nil && *e.PreTrendP < 0.05 {
+		fmt.Fprintf(&b, " Caution: the pre-import test failed (p = %s), so import areas were already moving differently before the import and this figure may not be due to it.", pval(*e.PreTrendP))
+	}
+	return b.String()
+}
+
+func effectText(e audit.Effect) (effect, interval string) {
+	if e.RelativeEffect != nil {
+		return pct(*e.RelativeEffect), pct(e.CI95[0]) + " to " + pct(e.CI95[1])
+	}
+	return num(e.ATT) + "/month", num(e.CI95[0]) + " to " + num(e.CI95[1])
+}
+
+func preTrendText(p *float64) string {
+	switch {
+	case p == nil:
+		return "not available"
+	case *p < 0.05:
+		return "failed (p = " + pval(*p) + ")"
+	}
+	return "passed (p = " + pval(*p) + ")"
+}
+
+// newView builds the report's content from the input.
+func newView(in Input) view {
+	r := in.Audit
+	v := view{Title: "Follow-on editing after import " + r.Import.ID}
+	acc := "no named account"
+	if len(r.Import.Accounts) > 0 {
+		acc = strings.Join(r.Import.Accounts, ", ")
+	}
+	v.Lead = append(v.Lead,
+		fmt.Sprintf("Import %s was uploaded by %s in %d changesets from %s to %s: %d objects created, %d modified, %d deleted.",
+			r.Import.ID, acc, r.Import.Changesets, r.Import.FirstMonth, r.Import.LastMonth, r.Import.Created, r.Import.Modified, r.Import.Deleted),
+		fmt.Sprintf("Follow-on editing by other mappers is counted per area and month from %s to %s (%d months before the import, %d after), and compared between the areas the import reached and matched areas it did not touch.",
+			r.Window[0], r.Window[1], r.Before, r.After))
+	v.Warnings = append([]string{}, r.Warnings...)
+	if in.Assessment == nil && len(v.Warnings) == 0 {
+		v.Warnings = nil
+	}
+
+	for _, l := range layers.Layers {
+		for _, e := range r.Effects {
+			if e.Layer == l.String() && e.Estimator == headlineEstimator {
+				eff, iv := effectText(e)
+				v.Headline = append(v.Headline, headline{Layer: l.String(), Effect: eff, Interval: iv,
+					PreTrend: preTrendText(e.PreTrendP), Reading: Reading(e)})
+			}
+		}
+	}
+
+	v.Glossary = []term{
+		{"Import area (treated)", fmt.Sprintf("An area where the import's objects made up at least the chosen share of the features present when it arrived. Its 'treatment' starts in the month the import first edited there. %d areas count as import areas here.", r.Units.Treated)},
+		{"Comparison areas (matching)", fmt.Sprintf("Each import area was paired with the untouched areas most like it before the import (in size of the map and editing activity), so the comparison areas show what the import areas would likely have seen without the import. %d distinct areas were picked; the balance table shows how alike the two groups ended up.", r.Units.Controls)},
+		{"Relative effect", "The change in follow-on editing in import areas as a share of what they would have had without the import. -30% means about 30% fewer edits of that kind than expected; +20% means about 20% more."},
+		{"95% interval", "The range of effects the data support. Read it as the figure's uncertainty: an interval from -40% to -5% says 'fewer, by somewhere between 5% and 40%'. An interval that includes 0% means no change cannot be ruled out."},
+		{"Pre-import test (pre-trend)", "Checks whether import areas and comparison areas already moved differently before the import. If it fails (p below 0.05), the comparison is doubtful and the effect may reflect that earlier difference rather than the import."},
+		{"p-value", "How often a difference this large would show up by chance if the import had no effect. Small values (below 0.05) are conventionally called significant; they are not proof."},
+		{"Estimators", "cs-att compares each wave of import areas with never-imported comparison areas (Callaway and Sant'Anna's method, sound when imports arrive in waves); ppml-twfe fits counts with a Poisson model; twfe-linear gives the month-by-month chart; did-2x2 is the simple before/after, import/comparison difference. When they agree the result is sturdier."},
+	}
+
+	u := r.Units
+	v.Areas = append(v.Areas,
+		fmt.Sprintf("Units: %s, %d in all.", orDash(u.Spec), u.Total),
+		fmt.Sprintf("%d import areas, %d matched comparison areas, %d untouched areas not used, %d excluded (touched by another import, or too lightly by this one), %d import areas left out (no comparable area or no time before the import).",
+			u.Treated, u.Controls, u.Unmatched, u.Excluded, u.Dropped))
+	if u.Outside > 0 || u.Unlocated > 0 {
+		v.Areas = append(v.Areas, fmt.Sprintf("%d edits fell outside every area and %d had no known location; neither is counted.", u.Outside, u.Unlocated))
+	}
+
+	for _, b := range r.Balance {
+		flag := "ok"
+		if b.FlagAfter {
+			flag = "still differs"
+		}
+		v.Balance = append(v.Balance, balanceRow{Covariate: b.Covariate, Treated: fmt.Sprintf("%.3g", b.MeanTreated),
+			Control: fmt.Sprintf("%.3g", b.MatchedMeanControl), Before: num(b.SMDBefore), After: num(b.SMDAfter), Flag: flag})
+	}
+	for _, e := range r.LayerEffects() {
+		v.Estimates = append(v.Estimates, estimateRowOf(e))
+	}
+	for _, e := range r.Effects {
+		if _, ok := layers.ParseLayer(e.Layer); !ok {
+			v.Estimates = append(v.Estimates, estimateRowOf(e))
+		}
+	}
+	for _, p := range r.Placebo {
+		v.Placebo = append(v.Placebo, placeboRow{Outcome: p.Layer, Shift: fmt.Sprintf("%d months", p.ShiftMonths),
+			ATT: num(p.ATT), Interval: num(p.CI95[0]) + " to " + num(p.CI95[1]), P: pval(p.PValue)})
+	}
+	v.Notes = append([]string{}, r.Notes...)
+	v.Cautions = append([]string{
+		"These estimates are evidence, not proof: areas differ in ways no matching captures, and a change after an import can have other causes.",
+	}, r.Cautions...)
+	return v
+}
+
+func estimateRowOf(e audit.Effect) estimateRow {
+	eff, iv := effectText(e)
+	return estimateRow{Outcome: e.Layer, Estimator: e.Estimator, Effect: eff, Interval: iv, ATT: num(e.ATT),
+		P: pval(e.PValue), PreTrend: pptr(e.PreTrendP), Method: e.Method, Units: fmt.Sprintf("%d/%d", e.TreatedUnits, e.ControlUnits)}
+}
+
+func orDash(s string) string {
+	if s == "" {
+		return "-"
+	}
+	return s
+}
+
+// TopNeglected returns the highest-ranked neglected row of a checklist
+// (matched-controls reference first), ok false when none is flagged.
+func TopNeglected(cl *audit.Checklist) (audit.ChecklistRow, bool) {
+	if cl == nil {
+		return audit.ChecklistRow{}, false
+	}
+	for _, ref := range []string{audit.RefMatchedControls, audit.RefWithoutProvenance, audit.RefTreatedBefore} {
+		if rows := cl.Neglected(ref); len(rows) > 0 {
+			return rows[0], true
+		}
+	}
+	return audit.ChecklistRow{}, false
+}

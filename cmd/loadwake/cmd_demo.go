@@ -1,0 +1,281 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"io"
+	"math/rand/v2"
+	"os"
+	"path/filepath"
+	"time"
+
+	"github.com/paulmach/orb"
+	"github.com/paulmach/orb/geojson"
+	"github.com/spf13/cobra"
+
+	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/report"
+	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/layers"
+	"github.com/loadwake/loadwake/rules"
+)
+
+// demoOptions holds the flags of `loadwake demo`.
+type demoOptions struct {
+	out   string
+	force bool
+	seed  uint64
+	grid  int     // districts per side (0: the simulator's default)
+	scale float64 // activity and stock multiplier (0: the simulator's default)
+	draws int
+}
+
+func newDemoCommand(_ *globalOptions) *cobra.Command {
+	o := demoOptions{out: "demo-out", seed: 1, draws: 199}
+	cmd := &cobra.Command{
+		Use:   "demo [--out DIR] [--force] [--seed N]",
+		Short: "Run the whole job on an invented region and write the reports",
+		Long: `demo simulates an invented island region (Quorvesk Isle, with made-up accounts
+and agencies; its coordinates lie in open water) that received a staggered
+building import, then does what a reviewer would: ingests the history into an
+embedded store under DIR, classifies every edit, finds the imports, audits the
+largest one over the districts, builds its neglected-tag checklist, assesses an
+invented follow-up proposal in a few untouched districts, and writes the
+reports into DIR/report/.
+
+All data are invented: never upload them to OpenStreetMap.`,
+		Example: `  loadwake demo
+  loadwake demo --out /tmp/demo --force --seed 7`,
+		Args: noArgs,
+		RunE: func(cmd *cobra.Command, _ []string) error { return runDemo(cmd.Context(), cmd.OutOrStdout(), &o) },
+	}
+	f := cmd.Flags()
+	f.StringVar(&o.out, "out", o.out, "folder for the world, the store and the reports")
+	f.BoolVar(&o.force, "force", false, "replace what an earlier demo left in the folder")
+	f.Uint64Var(&o.seed, "seed", o.seed, "seed of the invented world")
+	f.IntVar(&o.grid, "grid", 0, "districts per side of the world (default: the simulator's 8)")
+	f.Float64Var(&o.scale, "scale", 0, "multiplier on activity and map size (default: the simulator's 1)")
+	f.IntVar(&o.draws, "draws", o.draws, "bootstrap draws of the estimators")
+	return cmd
+}
+
+// demoPaths are the places the demo writes.
+type demoPaths struct{ world, store, report, proposal string }
+
+func newDemoPaths(dir string) demoPaths {
+	return demoPaths{world: filepath.Join(dir, "world"), store: filepath.Join(dir, "loadwake.db"),
+		report: filepath.Join(dir, "report"), proposal: filepath.Join(dir, "proposal.geojson")}
+}
+
+func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
+	switch {
+	case o.out == "":
+		return usagef("--out must name a folder")
+	case o.grid != 0 && o.grid < 4:
+		return usagef("--grid must be at least 4")
+	case o.scale < 0:
+		return usagef("--scale must not be negative")
+	case o.draws < 99:
+		return usagef("--draws must be at least 99")
+	}
+	p := newDemoPaths(o.out)
+	if entries, err := os.ReadDir(o.out); err == nil && len(entries) > 0 && !o.force {
+		return fmt.Errorf("%s is not empty: pass --force to replace an earlier demo, or choose another --out", o.out)
+	}
+	// The store is rebuilt each time, so that a changed seed leaves no old history.
+	if err := os.RemoveAll(p.store); err != nil {
+		return err
+	}
+	start := time.Now()
+	cfg := sim.DefaultConfig()
+	cfg.Seed = o.seed
+	if o.grid > 0 {
+		cfg.Cols, cfg.Rows = o.grid, o.grid
+		cfg.Treated = max(4, o.grid*o.grid/4)
+	}
+	if o.scale > 0 {
+		cfg.Scale = o.scale
+	}
+	if _, err := sim.Generate(ctx, cfg, p.world, true); err != nil {
+		return err
+	}
+	st, err := ingest.Open(p.store, ingest.DefaultOptions())
+	if err != nil {
+		return err
+	}
+	defer st.Close()
+	if _, err := ingest.Ingest(ctx, st, []string{filepath.Join(p.world, sim.HistoryFile), filepath.Join(p.world, sim.ChangesetsFile)}, ingest.IngestOptions{}); err != nil {
+		return err
+	}
+	r := rules.Default()
+	if _, err := layers.Run(ctx, st, r, layers.Options{}); err != nil {
+		return err
+	}
+	eps, err := audit.DetectImports(ctx, st, r, audit.DetectOptions{})
+	if err != nil {
+		return err
+	}
+	ep := largestEpisode(eps)
+	if ep == nil {
+		return errors.New("demo: the simulated world holds no detected import")
+	}
+	unitFile := filepath.Join(p.world, sim.DistrictsFile)
+	units, err := audit.ParseUnits(unitFile, audit.UnitOptions{})
+	if err != nil {
+		return err
+	}
+	eo := audit.DefaultEstimateOptions()
+	eo.Draws = o.draws
+	rep, err := audit.RunAudit(ctx, st, ep, eps, units, audit.AuditOptions{Estimate: eo, UnitSpec: sim.DistrictsFile})
+	if err != nil {
+		return err
+	}
+	cl, err := audit.RunChecklist(ctx, st, r, ep, eps, units, audit.StudyOptions{}, audit.ChecklistOptions{})
+	if err != nil {
+		return fmt.Errorf("checklist: %w", err)
+	}
+	a, err := demoAssessment(ctx, st, r, p.proposal, units, rep, eps, eo, o.seed)
+	if err != nil {
+		return fmt.Errorf("assessment: %w", err)
+	}
+	if err := writeReports(io.Discard, p.report, reportInput(rep, units, cl, a)); err != nil {
+		return err
+	}
+	for _, line := range demoSummary(rep, cl, p.report) {
+		fmt.Fprintln(out, line)
+	}
+	fmt.Fprintf(out, "(invented data; world in %s, store in %s, %s)\n", p.world, p.store, time.Since(start).Round(100*time.Millisecond))
+	return nil
+}
+
+// largestEpisode picks the episode with the most changesets, then the most
+// versions.
+func largestEpisode(eps []audit.Episode) *audit.Episode {
+	var best *audit.Episode
+	for i := range eps {
+		e := &eps[i]
+		if best == nil || len(e.Changesets) > len(best.Changesets) ||
+			(len(e.Changesets) == len(best.Changesets) && e.Versions() > best.Versions()) {
+			best = e
+		}
+	}
+	return best
+}
+
+// demoSummary is the five lines the demo prints: the import, the units, the
+// headline effect per layer with its interval, the top neglected key and
+// where the report is.
+func demoSummary(rep *audit.AuditReport, cl *audit.Checklist, dir string) []string {
+	lines := []string{
+		fmt.Sprintf("import:    %s by %s, %d changesets, %s to %s, %d objects created", rep.Import.ID,
+			joinOr(rep.Import.Accounts, "no account"), rep.Import.Changesets, rep.Import.FirstMonth, rep.Import.LastMonth, rep.Import.Created),
+		fmt.Sprintf("units:     %d districts: %d import areas, %d matched comparison areas, %d excluded, %d left out",
+			rep.Units.Total, rep.Units.Treated, rep.Units.Controls, rep.Units.Excluded, rep.Units.Dropped),
+	}
+	eff := ""
+	for _, l := range layers.Layers {
+		for _, e := range rep.Effects {
+			if e.Layer == l.String() && e.Estimator == "cs-att" {
+				if eff != "" {
+					eff += "; "
+				}
+				if e.RelativeEffect != nil {
+					eff += fmt.Sprintf("%s %+.0f%% [%+.0f%%, %+.0f%%]", e.Layer, 100**e.RelativeEffect, 100*e.CI95[0], 100*e.CI95[1])
+				} else {
+					eff += fmt.Sprintf("%s ATT %+.2f [%+.2f, %+.2f]", e.Layer, e.ATT, e.CI95[0], e.CI95[1])
+				}
+			}
+		}
+	}
+	if eff == "" {
+		eff = "no cs-att estimate (see the warnings in the report)"
+	}
+	lines = append(lines, "effects:   cs-att, 95% interval: "+eff)
+	if row, ok := report.TopNeglected(cl); ok {
+		lines = append(lines, fmt.Sprintf("neglected: %s on %s: %.0f%% of imported features vs %.0f%% of comparable ones (%d without it)",
+			row.Key, row.Class, 100*row.ImportShare, 100*row.ReferenceShare, row.Affected))
+	} else {
+		lines = append(lines, "neglected: no key flagged")
+	}
+	lines = append(lines, "report:    "+filepath.Join(dir, report.FileHTML)+" (and report.md, report.json, units.geojson, panel.csv)")
+	return lines
+}
+
+// demoAssessment writes an invented follow-up proposal (buildings and a few
+// amenities of a made-up survey office, in three districts the import did
+// not reach) as GeoJSON and assesses it.
+func demoAssessment(ctx context.Context, st *ingest.Store, r *rules.RuleSet, path string, units *audit.Units,
+	rep *audit.AuditReport, eps []audit.Episode, eo audit.EstimateOptions, seed uint64) (*audit.Assessment, error) {
+	var picks []int
+	for _, u := range rep.UnitList {
+		if u.Status == audit.StatusCandidate || u.Status == audit.StatusControl {
+			if i, ok := units.Index(u.ID); ok {
+				picks = append(picks, i)
+			}
+		}
+		if len(picks) == 3 {
+			break
+		}
+	}
+	if len(picks) == 0 {
+		return nil, errors.New("no untouched district for the invented proposal")
+	}
+	rng := rand.New(rand.NewPCG(seed, 0x70726f706f73616c))
+	fc := geojson.NewFeatureCollection()
+	n := 0
+	for _, i := range picks {
+		b := units.Bound(i)
+		w, h := b.Max[0]-b.Min[0], b.Max[1]-b.Min[1]
+		for k := range 45 {
+			x := b.Min[0] + w*(0.1+0.8*rng.Float64())
+			y := b.Min[1] + h*(0.1+0.8*rng.Float64())
+			n++
+			if k%9 == 0 {
+				f := geojson.NewFeature(orb.Point{x, y})
+				f.ID = fmt.Sprintf("qsr-%d", n)
+				f.Properties["amenity"] = []string{"cafe", "library", "pharmacy"}[rng.IntN(3)]
+				f.Properties["name"] = fmt.Sprintf("Quorvesk Place %d", n)
+				f.Properties["source"] = "Quorvesk Survey Registry (invented)"
+				fc.Append(f)
+				continue
+			}
+			d := 0.00008
+			ring := orb.Ring{{x, y}, {x + d, y}, {x + d, y + d}, {x, y + d}, {x, y}}
+			f := geojson.NewFeature(orb.Polygon{ring})
+			f.ID = fmt.Sprintf("qsr-%d", n)
+			f.Properties["building"] = "yes"
+			f.Properties["source"] = "Quorvesk Survey Registry (invented)"
+			if rng.Float64() < 0.3 {
+				f.Properties["addr:housenumber"] = fmt.Sprint(1 + rng.IntN(120))
+				f.Properties["addr:street"] = "Harbour Lane"
+			}
+			fc.Append(f)
+		}
+	}
+	data, err := json.MarshalIndent(fc, "", " ")
+	if err != nil {
+		return nil, err
+	}
+	if err := os.WriteFile(path, append(data, '\n'), 0o644); err != nil {
+		return nil, err
+	}
+	p, err := audit.ReadGeoJSONProposal(ctx, path, bytes.NewReader(data), r, audit.ProposalOptions{})
+	if err != nil {
+		return nil, err
+	}
+	a, err := audit.Assess(ctx, st, r, p, audit.AssessOptions{Units: units, Episodes: eps})
+	if err != nil {
+		return nil, err
+	}
+	if len(a.Nearest) > 0 {
+		if err := a.AuditNearest(ctx, st, r, audit.PastAuditOptions{Units: units, Episodes: eps,
+			Audit: audit.AuditOptions{Estimate: eo, UnitSpec: sim.DistrictsFile}}); err != nil {
+			return nil, err
+		}
+	}
+	return a, nil
+}
