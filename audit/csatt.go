@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
@@ -387,10 +388,15 @@ func callawaySantAnna(p *Panel, y []float64, cl []int, G int, opts EstimateOptio
 		ev[e] = newAgg()
 	}
 	byCohort := map[int]float64{}
+	cohortAgg := map[int]*aggregator{}
 	for g, us := range cohorts {
 		ng := float64(len(us))
 		nPost := 0
 		sumPost := 0.0
+		nPostG := float64(min(win.Post, T-g))
+		if nPostG > 0 {
+			cohortAgg[g] = newAgg()
+		}
 		for e := -win.Pre; e < win.Post; e++ {
 			t := g + e
 			if t < 1 || t >= T {
@@ -404,6 +410,7 @@ func callawaySantAnna(p *Panel, y []float64, cl []int, G int, opts EstimateOptio
 			ev[e].add(ng/evW[e], c, us, r.controls)
 			if e >= 0 {
 				overall.add(ng/overallW, c, us, r.controls)
+				cohortAgg[g].add(1/nPostG, c, us, r.controls)
 				nPost++
 				sumPost += c.att
 				// treated observed mean in month t and its contributions
@@ -470,6 +477,16 @@ func callawaySantAnna(p *Panel, y []float64, cl []int, G int, opts EstimateOptio
 	e.note = fmt.Sprintf("%s group-time ATT, never-treated controls, varying base period, %d cohort(s), cohort-size weights over event months 0..%d",
 		method, len(cohorts), win.Post-1)
 	res.overall = e
+	gs := make([]int, 0, len(cohortAgg))
+	for g := range cohortAgg {
+		gs = append(gs, g)
+	}
+	slices.Sort(gs)
+	for _, g := range gs {
+		a := cohortAgg[g]
+		se, lo, hi, _ := infer(a.est, scale(clusterSums(a.phi, cl, G)))
+		e.cohorts = append(e.cohorts, cohortPoint{g: g, units: len(cohorts[g]), est: a.est, se: se, lo: lo, hi: hi})
+	}
 	// event study and pre-trend test
 	var preEst []float64
 	var preSums [][]float64

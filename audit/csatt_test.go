@@ -66,6 +66,15 @@ func TestCSHandExample(t *testing.T) {
 	check("relative", res.overall.rel, 0.9375)
 	check("cohort 1", res.byCohort[1], 2.5)
 	check("cohort 2", res.byCohort[2], 2.5)
+	if len(res.overall.cohorts) != 2 {
+		t.Fatalf("%d cohort rows, want 2", len(res.overall.cohorts))
+	}
+	for _, c := range res.overall.cohorts {
+		check("cohort row", c.est, 2.5)
+		if c.units != 2 || !(c.lo < c.est && c.est < c.hi) {
+			t.Errorf("cohort row %+v", c)
+		}
+	}
 	want := map[int]float64{-1: 0.25, 0: 2.625, 1: 2.25}
 	if len(res.events) != 3 {
 		t.Fatalf("%d event times, want 3", len(res.events))

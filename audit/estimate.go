@@ -119,6 +119,19 @@ type PlaceboRow struct {
 	PValue      float64    `json:"p_value"`
 }
 
+// CohortRow is the cs-att effect of one cohort (units first treated in
+// Cohort, YYYY-MM), the mean of its group-time ATTs over the post months of
+// the window, in outcome units.
+type CohortRow struct {
+	Layer     string     `json:"layer"`
+	Estimator string     `json:"estimator"`
+	Cohort    string     `json:"cohort"`
+	Units     int        `json:"units"`
+	ATT       float64    `json:"att"`
+	CI95      [2]float64 `json:"ci95"`
+	SE        float64    `json:"se"`
+}
+
 // Estimates is the result of Estimate.
 type Estimates struct {
 	Window     Window          `json:"window"`
@@ -126,6 +139,7 @@ type Estimates struct {
 	Seed       uint64          `json:"seed"`
 	Effects    []Effect        `json:"effects"`
 	EventStudy []EventStudyRow `json:"event_study"`
+	ByCohort   []CohortRow     `json:"by_cohort"`
 	Placebo    []PlaceboRow    `json:"placebo"`
 	Warnings   []string        `json:"warnings"`
 	Cautions   []string        `json:"cautions"`
@@ -147,6 +161,13 @@ type estimate struct {
 	treatedUnits, controlUnits int
 	method, note               string
 	events                     []eventPoint
+	cohorts                    []cohortPoint
+}
+
+// cohortPoint is the ATT of one cohort over its post months in the window.
+type cohortPoint struct {
+	g, units        int
+	est, se, lo, hi float64
 }
 
 type eventPoint struct {
@@ -185,7 +206,7 @@ func Estimate(ctx context.Context, p *Panel, opts EstimateOptions) (*Estimates, 
 		return nil, err
 	}
 	out := &Estimates{Window: opts.Window, Draws: opts.Draws, Seed: opts.Seed, Cautions: estimateCautions,
-		Effects: []Effect{}, EventStudy: []EventStudyRow{}, Placebo: []PlaceboRow{}, Warnings: []string{}}
+		Effects: []Effect{}, EventStudy: []EventStudyRow{}, ByCohort: []CohortRow{}, Placebo: []PlaceboRow{}, Warnings: []string{}}
 	cl, G := p.clusterIndex()
 	nT, nC, early := 0, 0, 0
 	for _, u := range p.Units {
@@ -247,6 +268,7 @@ func Estimate(ctx context.Context, p *Panel, opts EstimateOptions) (*Estimates, 
 	for _, r := range results {
 		out.Effects = append(out.Effects, r.effects...)
 		out.EventStudy = append(out.EventStudy, r.events...)
+		out.ByCohort = append(out.ByCohort, r.cohorts...)
 		out.Placebo = append(out.Placebo, r.placebo...)
 		out.Warnings = append(out.Warnings, r.warnings...)
 	}
@@ -256,6 +278,7 @@ func Estimate(ctx context.Context, p *Panel, opts EstimateOptions) (*Estimates, 
 type outcomeResult struct {
 	effects  []Effect
 	events   []EventStudyRow
+	cohorts  []CohortRow
 	placebo  []PlaceboRow
 	warnings []string
 }
@@ -314,6 +337,13 @@ func estimateOutcome(p *Panel, o int, cl []int, G int, opts EstimateOptions, des
 			}
 			if finite(row.Estimate) && finite(row.SE) && finite(row.CI95[0]) && finite(row.CI95[1]) {
 				r.events = append(r.events, row)
+			}
+		}
+		for _, c := range e.cohorts {
+			row := CohortRow{Layer: name, Estimator: est, Cohort: p.MonthTime(c.g).Format("2006-01"), Units: c.units,
+				ATT: c.est, CI95: [2]float64{c.lo, c.hi}, SE: c.se}
+			if finite(row.ATT) && finite(row.SE) && finite(row.CI95[0]) && finite(row.CI95[1]) {
+				r.cohorts = append(r.cohorts, row)
 			}
 		}
 	}

@@ -93,12 +93,13 @@ func TestEstimateCommand(t *testing.T) {
 	var es struct {
 		Effects []map[string]any `json:"effects"`
 		Events  []map[string]any `json:"event_study"`
+		Cohorts []map[string]any `json:"by_cohort"`
 	}
 	if err := json.Unmarshal(b, &es); err != nil {
 		t.Fatal(err)
 	}
-	if len(es.Effects) != 8 || len(es.Events) == 0 {
-		t.Fatalf("%d effects, %d event-study rows; want 8 and some", len(es.Effects), len(es.Events))
+	if len(es.Effects) != 8 || len(es.Events) == 0 || len(es.Cohorts) != 4 {
+		t.Fatalf("%d effects, %d event-study rows, %d cohort rows; want 8, some and 4", len(es.Effects), len(es.Events), len(es.Cohorts))
 	}
 	for _, k := range []string{"layer", "estimator", "att", "relative_effect", "ci95", "se", "p_value", "pre_trend_p", "treated_units", "control_units", "method", "note"} {
 		if _, ok := es.Effects[0][k]; !ok {
