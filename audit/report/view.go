@@ -159,8 +159,8 @@ func newView(in Input) view {
 	}
 
 	v.Glossary = []term{
-		{"Import area (treated)", fmt.Sprintf("An area where the import's objects made up at least the chosen share of the features present when it arrived. Its 'treatment' starts in the month the import first edited there. %d areas count as import areas here.", r.Units.Treated)},
-		{"Comparison areas (matching)", fmt.Sprintf("Each import area was paired with the untouched areas most like it before the import (in size of the map and editing activity), so the comparison areas show what the import areas would likely have seen without the import. %d distinct areas were picked; the balance table shows how alike the two groups ended up.", r.Units.Controls)},
+		{"Import area (treated)", fmt.Sprintf("An area where the import's objects made up at least the chosen share of the features present when it arrived. Its 'treatment' starts in the month the import first edited there. Import areas here: %d.", r.Units.Treated)},
+		{"Comparison areas (matching)", fmt.Sprintf("Each import area was paired with the untouched areas most like it before the import, on the traits listed in the balance table, so the comparison areas show what the import areas would likely have seen without the import. Comparison areas picked: %d; the balance table shows how alike the two groups ended up.", r.Units.Controls)},
 		{"Relative effect", "The change in follow-on editing in import areas as a share of what they would have had without the import. -30% means about 30% fewer edits of that kind than expected; +20% means about 20% more."},
 		{"95% interval", "The range of effects the data support. Read it as the figure's uncertainty: an interval from -40% to -5% says 'fewer, by somewhere between 5% and 40%'. An interval that includes 0% means no change cannot be ruled out."},
 		{"Pre-import test (pre-trend)", "Checks whether import areas and comparison areas already moved differently before the import. If it fails (p below 0.05), the comparison is doubtful and the effect may reflect that earlier difference rather than the import."},
