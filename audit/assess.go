@@ -2,7 +2,6 @@ package audit
 
 import (
 	"context"
-	"encoding/json"
 	"fmt"
 	"io"
 	"math"
@@ -622,11 +621,7 @@ func (a *Assessment) AddPastAudits(effects map[string][]Effect, checklists map[s
 }
 
 // WriteJSON writes the assessment as indented JSON.
-func (a *Assessment) WriteJSON(w io.Writer) error {
-	enc := json.NewEncoder(w)
-	enc.SetIndent("", "  ")
-	return enc.Encode(a)
-}
+func (a *Assessment) WriteJSON(w io.Writer) error { return writeIndentedJSON(w, a) }
 
 // WriteMarkdown writes the assessment as a Markdown report, every string
 // from the proposal or the store escaped, closing with the review points of

@@ -610,10 +610,13 @@ func (cl *Checklist) Neglected(ref string) []ChecklistRow {
 }
 
 // WriteJSON writes the checklist as indented JSON.
-func (cl *Checklist) WriteJSON(w io.Writer) error {
+func (cl *Checklist) WriteJSON(w io.Writer) error { return writeIndentedJSON(w, cl) }
+
+// writeIndentedJSON writes v as JSON indented by two spaces.
+func writeIndentedJSON(w io.Writer, v any) error {
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
-	return enc.Encode(cl)
+	return enc.Encode(v)
 }
 
 // primaryRef is the reference the Markdown checklist lists: matched controls

@@ -7,7 +7,6 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"io"
 	"iter"
 	"os"
 
@@ -143,19 +142,7 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	if err := a.WriteMarkdown(out); err != nil {
 		return err
 	}
-	for _, w := range []struct {
-		path  string
-		write func(io.Writer) error
-	}{{o.json, a.WriteJSON}, {o.md, a.WriteMarkdown}} {
-		if w.path == "" {
-			continue
-		}
-		if err := writeFile(w.path, w.write); err != nil {
-			return err
-		}
-		fmt.Fprintln(out, "wrote", w.path)
-	}
-	return nil
+	return writeOutputs(out, output{o.json, a.WriteJSON}, output{o.md, a.WriteMarkdown})
 }
 
 // readProposal reads path as OSM XML or OsmChange (plain, gzip or bzip2;

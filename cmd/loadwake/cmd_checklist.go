@@ -111,10 +111,18 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 	}
 	out := cmd.OutOrStdout()
 	writeChecklistText(out, cl)
-	for _, w := range []struct {
-		path  string
-		write func(io.Writer) error
-	}{{o.json, cl.WriteJSON}, {o.md, cl.WriteMarkdown}} {
+	return writeOutputs(out, output{o.json, cl.WriteJSON}, output{o.md, cl.WriteMarkdown})
+}
+
+// output is a file a command writes when its flag names one.
+type output struct {
+	path  string
+	write func(io.Writer) error
+}
+
+// writeOutputs writes each output with a path and says so on out.
+func writeOutputs(out io.Writer, outs ...output) error {
+	for _, w := range outs {
 		if w.path == "" {
 			continue
 		}
