@@ -14,6 +14,8 @@ import (
 type auditOptions struct {
 	study     studyFlags
 	json      string // write the audit JSON here
+	report    string // write the report folder here
+	md        string // write the report's Markdown here
 	draws     int
 	seed      uint64
 	inference string
@@ -49,6 +51,8 @@ The figures are evidence for the community's review, not a verdict.`,
 	o.study.addFlags(cmd.Flags())
 	f := cmd.Flags()
 	f.StringVar(&o.json, "json", "", "write the audit as JSON to this file")
+	f.StringVar(&o.report, "report", "", "write the report folder (Markdown, HTML with charts, JSON, GeoJSON, panel CSV) here")
+	f.StringVar(&o.md, "md", "", "write the report's Markdown to this file")
 	f.IntVar(&o.draws, "draws", 999, "bootstrap draws")
 	f.Uint64Var(&o.seed, "seed", 1, "seed of the bootstrap draws")
 	f.StringVar(&o.inference, "inference", "auto", "auto (bootstrap when treated units are few), analytic or bootstrap")
@@ -94,6 +98,17 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 			return err
 		}
 		fmt.Fprintln(out, "wrote", o.json)
+	}
+	if o.md != "" {
+		if err := writeReportMarkdown(o.md, reportInput(rep, in.units, nil, nil)); err != nil {
+			return err
+		}
+		fmt.Fprintln(out, "wrote", o.md)
+	}
+	if o.report != "" {
+		if err := writeReports(out, o.report, reportInput(rep, in.units, nil, nil)); err != nil {
+			return err
+		}
 	}
 	return nil
 }

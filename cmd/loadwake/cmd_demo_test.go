@@ -1,0 +1,130 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"encoding/json"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/loadwake/loadwake/audit/report"
+	"github.com/loadwake/loadwake/audit/sim"
+)
+
+func runRoot(t testing.TB, args ...string) (string, error) {
+	t.Helper()
+	root := newRootCommand(newGlobalOptions())
+	var out, errb bytes.Buffer
+	root.SetOut(&out)
+	root.SetErr(&errb)
+	root.SetArgs(args)
+	err := root.ExecuteContext(context.Background())
+	return out.String(), err
+}
+
+// TestDemoAndReport runs the demo on a small invented world, checks the files
+// and the summary, then runs `report` and `audit --report --md` on the store
+// the demo left.
+func TestDemoAndReport(t *testing.T) {
+	if testing.Short() {
+		t.Skip("simulates, ingests and audits a world")
+	}
+	dir := filepath.Join(t.TempDir(), "demo")
+	out, err := runRoot(t, "demo", "--out", dir, "--grid", "6", "--scale", "0.5", "--draws", "99", "--seed", "2")
+	if err != nil {
+		t.Fatalf("demo: %v\n%s", err, out)
+	}
+	lines := strings.Split(strings.TrimSpace(out), "\n")
+	if len(lines) != 6 {
+		t.Fatalf("demo printed %d lines, want five summary lines and a footer:\n%s", len(lines), out)
+	}
+	for i, prefix := range []string{"import:", "units:", "effects:", "neglected:", "report:"} {
+		if !strings.HasPrefix(lines[i], prefix) {
+			t.Errorf("line %d = %q, want it to start with %q", i+1, lines[i], prefix)
+		}
+	}
+	if !strings.Contains(lines[1], "36 districts") || !strings.Contains(out, "invented data") {
+		t.Errorf("summary does not describe the 6×6 invented world:\n%s", out)
+	}
+	rdir := filepath.Join(dir, "report")
+	for _, name := range []string{report.FileMarkdown, report.FileHTML, report.FileJSON, report.FileUnits, report.FilePanel, report.FileChecklist, report.FileAssessment} {
+		if fi, err := os.Stat(filepath.Join(rdir, name)); err != nil || fi.Size() == 0 {
+			t.Errorf("demo report %s: %v", name, err)
+		}
+	}
+	page, err := os.ReadFile(filepath.Join(rdir, report.FileHTML))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if n := strings.Count(string(page), "<svg "); n != 6 {
+		t.Errorf("report.html holds %d charts, want 6 (four event studies, balance, map)", n)
+	}
+	if !strings.Contains(string(page), "Proposed import") {
+		t.Error("report.html lacks the assessment of the invented proposal")
+	}
+	var units struct {
+		Features []json.RawMessage `json:"features"`
+	}
+	b, _ := os.ReadFile(filepath.Join(rdir, report.FileUnits))
+	if err := json.Unmarshal(b, &units); err != nil || len(units.Features) != 36 {
+		t.Errorf("units.geojson: %d features, err %v; want 36", len(units.Features), err)
+	}
+	if _, err := runRoot(t, "demo", "--out", dir); err == nil {
+		t.Error("a second demo into a full folder without --force should fail")
+	}
+
+	var rep struct {
+		Import struct {
+			ID string `json:"id"`
+		} `json:"import"`
+	}
+	b, _ = os.ReadFile(filepath.Join(rdir, report.FileJSON))
+	if err := json.Unmarshal(b, &rep); err != nil || rep.Import.ID == "" {
+		t.Fatalf("report.json: %v", err)
+	}
+	store := filepath.Join(dir, "loadwake.db")
+	districts := filepath.Join(dir, "world", sim.DistrictsFile)
+	out2 := filepath.Join(t.TempDir(), "review")
+	if out, err := runRoot(t, "--store", store, "report", "--units", districts, "--import", rep.Import.ID, "--out", out2, "--draws", "99"); err != nil {
+		t.Fatalf("report: %v\n%s", err, out)
+	}
+	for _, name := range []string{report.FileMarkdown, report.FileHTML, report.FileJSON, report.FileUnits, report.FilePanel, report.FileChecklist} {
+		if _, err := os.Stat(filepath.Join(out2, name)); err != nil {
+			t.Errorf("report command: %v", err)
+		}
+	}
+	md := filepath.Join(t.TempDir(), "audit.md")
+	out3 := filepath.Join(t.TempDir(), "audit-report")
+	if out, err := runRoot(t, "--store", store, "audit", "--units", districts, "--import", rep.Import.ID, "--draws", "99", "--md", md, "--report", out3); err != nil {
+		t.Fatalf("audit --md --report: %v\n%s", err, out)
+	}
+	if b, err := os.ReadFile(md); err != nil || !bytes.HasPrefix(b, []byte("# Follow-on editing after import ")) {
+		t.Errorf("audit --md: %v", err)
+	}
+	if _, err := os.Stat(filepath.Join(out3, report.FileHTML)); err != nil {
+		t.Errorf("audit --report: %v", err)
+	}
+}
+
+func TestReportUsage(t *testing.T) {
+	cases := []struct {
+		name string
+		args []string
+	}{
+		{"no out", []string{"report", "--units", "tiles:12"}},
+		{"no units", []string{"report", "--out", "x"}},
+		{"few draws", []string{"report", "--units", "tiles:12", "--out", "x", "--draws", "5"}},
+		{"demo bad grid", []string{"demo", "--out", "x", "--grid", "2"}},
+		{"demo bad draws", []string{"demo", "--out", "x", "--draws", "1"}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			_, err := runRoot(t, c.args...)
+			if _, ok := err.(usageError); !ok {
+				t.Errorf("%v: err = %v, want a usage error", c.args, err)
+			}
+		})
+	}
+}
