@@ -154,10 +154,12 @@ type writer struct {
 	s    *Store
 	opts IngestOptions
 
-	txn     *badger.Txn
-	entries int
-	size    int
-	arena   []byte // keys and values of the open transaction
+	txn        *badger.Txn
+	entries    int
+	size       int // estimated bytes of the open transaction
+	maxEntries int // hard limits of a transaction, from Badger's
+	maxBytes   int
+	arena      []byte // keys and values of the open transaction
 
 	totals Stats
 	// maxKey[i] is the largest version key of type i (node, way, relation)
@@ -189,7 +191,10 @@ func typeIndex(tb byte) int {
 }
 
 func newWriter(s *Store, opts IngestOptions) (*writer, error) {
-	w := &writer{s: s, opts: opts}
+	w := &writer{s: s, opts: opts,
+		maxEntries: int(min(int64(opts.BatchEntries)*2, s.db.MaxBatchCount()/2)),
+		maxBytes:   int(min(int64(opts.BatchBytes)*2, s.db.MaxBatchSize()/2)),
+	}
 	return w, w.load()
 }
 
@@ -255,21 +260,24 @@ func (w *writer) alloc(n int) []byte {
 	return b
 }
 
+// entryOverhead is a generous estimate of Badger's per-entry bookkeeping in a
+// transaction (timestamp, meta bytes, varint headers).
+const entryOverhead = 32
+
 // set adds one entry to the open transaction, committing first when the
-// transaction is full.
+// transaction would pass half of Badger's limits, which leaves room for the
+// totals and file record that commit adds.
 func (w *writer) set(key, val []byte) error {
-	err := w.txn.Set(key, val)
-	if errors.Is(err, badger.ErrTxnTooBig) {
+	if w.entries+1 >= w.maxEntries || w.size+len(key)+len(val)+entryOverhead >= w.maxBytes {
 		if err := w.commit(nil); err != nil {
 			return err
 		}
-		err = w.txn.Set(key, val)
 	}
-	if err != nil {
+	if err := w.txn.Set(key, val); err != nil {
 		return fmt.Errorf("%s: write: %w", w.s.name(), err)
 	}
 	w.entries++
-	w.size += len(key) + len(val)
+	w.size += len(key) + len(val) + entryOverhead
 	return nil
 }
 
@@ -442,6 +450,7 @@ func (w *writer) read(ctx context.Context, r Reader, fr *FileRecord) error {
 			return err
 		}
 		if w.entries >= w.opts.BatchEntries || w.size >= w.opts.BatchBytes {
+			// (set commits earlier when the store's own limits are lower)
 			if err := ctx.Err(); err != nil {
 				return err
 			}
@@ -489,13 +498,13 @@ func (w *writer) version(it Item, fr *FileRecord) error {
 	}
 
 	ti := typeIndex(tb)
-	newObject := false
+	newObject, fast := false, false
 	if maxk := w.maxKey[ti]; maxk == nil || bytes.Compare(key, maxk) > 0 {
 		// Larger than every key of the type: absent, and a new object
 		// unless the largest key belongs to the same id.
 		newObject = maxk == nil || !bytes.Equal(key[:objectPrefixLen], maxk[:objectPrefixLen])
 		w.maxKey[ti] = key
-		w.pendSorted[ti] = append(w.pendSorted[ti], key)
+		fast = true
 	} else {
 		old, found, err := w.get(key)
 		if err != nil {
@@ -510,10 +519,15 @@ func (w *writer) version(it Item, fr *FileRecord) error {
 			return nil
 		}
 		newObject = !w.hasObject(ti, key[:objectPrefixLen])
-		w.pendObj[[objectPrefixLen]byte(key)] = struct{}{}
 	}
 	if err := w.set(key, val); err != nil {
 		return err
+	}
+	// recorded after set, which may have committed and reset the bookkeeping
+	if fast {
+		w.pendSorted[ti] = append(w.pendSorted[ti], key)
+	} else {
+		w.pendObj[[objectPrefixLen]byte(key)] = struct{}{}
 	}
 	fr.Versions++
 	t := &w.totals

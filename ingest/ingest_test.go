@@ -610,3 +610,33 @@ func TestReopenKeepsData(t *testing.T) {
 		t.Errorf("after reopen %+v, before %+v", after, before)
 	}
 }
+
+// TestIngestTxnTooBig lets batches outgrow Badger's transaction limit (8 MiB
+// memtables, unbounded batches): set must commit early and the totals must
+// match those of an ordinary ingest.
+func TestIngestTxnTooBig(t *testing.T) {
+	ctx := context.Background()
+	var items []ingest.Item
+	for id := int64(1); id <= 40000; id++ {
+		items = append(items, node(id, 1, time.Duration(id)*time.Second, float64(id%90), float64(id%180), "k", "v"))
+	}
+	ff := newFakeFiles(t)
+	p := ff.add(t, "many", "many", items...)
+	run := func(opts ingest.Options, io ingest.IngestOptions) ingest.Stats {
+		s, err := ingest.OpenInMemory(opts)
+		if err != nil {
+			t.Fatal(err)
+		}
+		defer s.Close()
+		io.Open = ff.open
+		if _, err := ingest.Ingest(ctx, s, []string{p}, io); err != nil {
+			t.Fatal(err)
+		}
+		return checkTotals(t, s)
+	}
+	want := run(ingest.DefaultOptions(), ingest.IngestOptions{})
+	got := run(ingest.DefaultOptions().WithMemTableSize(8<<20), ingest.IngestOptions{BatchEntries: 1 << 30, BatchBytes: 1 << 30})
+	if got != want || want.NodeVersions != 40000 {
+		t.Errorf("with early commits %+v\nordinary %+v", got, want)
+	}
+}
