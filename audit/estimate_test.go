@@ -330,3 +330,43 @@ func TestEstimateSingularCovariates(t *testing.T) {
 		t.Errorf("note %q", e.Note)
 	}
 }
+
+// TestEstimateRandomPanelsNeverFail runs Estimate on small random panels
+// (few units, sparse counts, treatment anywhere including the first and last
+// month, zero weights, shared clusters, covariates) and checks that it never
+// panics, never errors on a valid panel, and always marshals to JSON.
+func TestEstimateRandomPanelsNeverFail(t *testing.T) {
+	for seed := range uint64(300) {
+		rng := rand.New(rand.NewPCG(seed, 5))
+		months := 2 + rng.IntN(10)
+		n := 2 + rng.IntN(12)
+		p := &Panel{Start: time.Date(2034, 1, 1, 0, 0, 0, 0, time.UTC), Months: months, Outcomes: []string{"a", "b"}}
+		cov := rng.IntN(2) == 0
+		for u := range n {
+			un := PanelUnit{ID: fmt.Sprint(u), FirstTreated: rng.IntN(months+1) - 1, Weight: float64(rng.IntN(3)) / 2, Cluster: fmt.Sprint(rng.IntN(n))}
+			if cov {
+				un.Covariates = []float64{rng.NormFloat64(), float64(rng.IntN(2))}
+			}
+			p.Units = append(p.Units, un)
+		}
+		for range p.Outcomes {
+			y := make([]float64, n*months)
+			for i := range y {
+				if rng.IntN(3) == 0 {
+					y[i] = float64(rng.IntN(4))
+				}
+			}
+			p.Y = append(p.Y, y)
+		}
+		opts := DefaultEstimateOptions()
+		opts.Window = Window{Pre: 1 + rng.IntN(4), Post: 1 + rng.IntN(4)}
+		opts.Draws = 99
+		es, err := Estimate(context.Background(), p, opts)
+		if err != nil {
+			t.Fatalf("seed %d: %v", seed, err)
+		}
+		if _, err := json.Marshal(es); err != nil {
+			t.Fatalf("seed %d: %v", seed, err)
+		}
+	}
+}
