@@ -10,13 +10,16 @@ import (
 
 // simScale sizes BenchmarkGenerate's world: 5 is some 1 million versions,
 // 50 some 10 million (run that one with -benchtime 1x).
-var simScale = flag.Float64("simscale", 5, "Scale of the world BenchmarkGenerate writes")
+var (
+	simScale  = flag.Float64("simscale", 5, "Scale of the world BenchmarkGenerate writes")
+	simMonths = flag.Int("simmonths", 48, "study months of the world BenchmarkGenerate writes")
+)
 
-// BenchmarkGenerate writes a default 8×8, 48-month world at -simscale and
+// BenchmarkGenerate writes a default 8×8 world of -simmonths months at -simscale and
 // reports versions written per second.
 func BenchmarkGenerate(b *testing.B) {
 	cfg := sim.DefaultConfig()
-	cfg.Scale = *simScale
+	cfg.Scale, cfg.Months = *simScale, *simMonths
 	b.ReportAllocs()
 	var versions int64
 	for b.Loop() {
