@@ -111,6 +111,7 @@ type AuditReport struct {
 	Units      UnitCounts      `json:"units"`
 	Effects    []Effect        `json:"effects"`
 	EventStudy []EventStudyRow `json:"event_study"`
+	ByCohort   []CohortRow     `json:"by_cohort"`
 	Placebo    []PlaceboRow    `json:"placebo"`
 	Balance    []BalanceJSON   `json:"balance"`
 	Estimation struct {
@@ -162,7 +163,7 @@ func RunAudit(ctx context.Context, src Source, ep *Episode, others []Episode, un
 
 func newAuditReport(ep *Episode, st *Study, est *Estimates, so StudyOptions, spec string) *AuditReport {
 	r := &AuditReport{Schema: SchemaAudit, Window: st.Window, Before: so.Before, After: so.After,
-		Effects: est.Effects, EventStudy: est.EventStudy, Placebo: est.Placebo, Study: st,
+		Effects: est.Effects, EventStudy: est.EventStudy, ByCohort: est.ByCohort, Placebo: est.Placebo, Study: st,
 		Warnings: []string{}, Notes: append([]string{}, st.Notes...), UnitList: st.Units}
 	r.Import = ImportSummary{ID: ep.ID, Changesets: len(ep.Changesets), FirstMonth: ep.FirstMonth,
 		LastMonth: ep.LastMonth, Created: ep.Created, Modified: ep.Modified, Deleted: ep.Deleted,
