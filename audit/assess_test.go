@@ -541,3 +541,22 @@ func BenchmarkAssess(b *testing.B) {
 	b.ReportMetric(float64(propN)*float64(b.N)/b.Elapsed().Seconds(), "features/s")
 	b.ReportMetric(float64(a.DuplicateCount), "duplicates")
 }
+
+// FuzzReadProposal feeds arbitrary bytes to both proposal readers: they
+// must return features or an error, never panic.
+func FuzzReadProposal(f *testing.F) {
+	f.Add([]byte(`{"type":"FeatureCollection","features":[{"type":"Feature","geometry":{"type":"Point","coordinates":[1,2]},"properties":{"amenity":"bench","n":1}}]}`))
+	f.Add([]byte(`{"type":"Feature","geometry":{"type":"Polygon","coordinates":[[[0,0],[1,0],[1,1],[0,0]]]},"properties":null}`))
+	f.Add([]byte(`<osm><node id="-1" lat="1" lon="2"><tag k="amenity" v="bench"/></node><way id="-2"><nd ref="-1"/><nd ref="-1"/><tag k="highway" v="path"/></way><relation id="-3"><member type="way" ref="-2" role="outer"/><tag k="type" v="multipolygon"/></relation></osm>`))
+	f.Add([]byte(`<osmChange><delete><node id="5" version="2" lat="1" lon="2"/></delete></osmChange>`))
+	r := rules.Default()
+	f.Fuzz(func(t *testing.T, data []byte) {
+		ctx := context.Background()
+		if p, err := ReadGeoJSONProposal(ctx, "fuzz.geojson", bytes.NewReader(data), r, ProposalOptions{MaxFeatures: 1000, MaxNodes: 10000}); err == nil {
+			p.Profile()
+		}
+		if p, err := ReadOSMProposal(ctx, "fuzz.osm", OSMXMLObjects(ctx, "fuzz.osm", bytes.NewReader(data)), r, ProposalOptions{MaxFeatures: 1000, MaxNodes: 10000}); err == nil {
+			p.Profile()
+		}
+	})
+}

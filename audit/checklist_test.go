@@ -5,6 +5,7 @@ import (
 	"context"
 	"encoding/json"
 	"flag"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
@@ -397,4 +398,20 @@ func TestChecklistMarkdownGolden(t *testing.T) {
 	if len(cl.Neglected(RefWithoutProvenance)) == 0 {
 		t.Errorf("nothing flagged")
 	}
+}
+
+func ExampleChangesetsNeeded() {
+	// A proposal of 24,500 OSM objects (way nodes included) at the OSM API
+	// 0.6 limit of 10,000 changes per changeset.
+	fmt.Println(ChangesetsNeeded(24500))
+	// Output: 3
+}
+
+func ExampleParseProvenance() {
+	p, _ := ParseProvenance("tiger:*")
+	fmt.Println(p.Match(osm.Tags{{Key: "highway", Value: "residential"}, {Key: "tiger:cfcc", Value: "A41"}}))
+	fmt.Println(p.Match(osm.Tags{{Key: "highway", Value: "residential"}, {Key: "source", Value: "survey"}}))
+	// Output:
+	// true
+	// false
 }
