@@ -115,7 +115,10 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	if err != nil {
 		return err
 	}
-	if stats.HasBBox {
+	switch {
+	case stats.HasBBox && p.Bound.IsZero():
+		uo.Bound = stats.BBox
+	case stats.HasBBox:
 		uo.Bound = uo.Bound.Union(stats.BBox)
 	}
 	units, err := audit.ParseUnits(o.units, uo)
