@@ -206,7 +206,7 @@ func Assess(ctx context.Context, src AssessSource, r *rules.RuleSet, p *Proposal
 		if err != nil {
 			return nil, err
 		}
-		a.Nearest = nearestImports(&a.Profile, eps, profiles, opts.Nearest)
+		a.Nearest = nearestImports(&a.Profile, eps, profiles, opts.Nearest, r)
 	} else {
 		a.Notes = append(a.Notes, "no past imports found in the store to compare with")
 	}
@@ -441,7 +441,7 @@ func importProfiles(ctx context.Context, src VersionScanner, r *rules.RuleSet, e
 			ip.classes[class]++
 			classKey, _, _ := strings.Cut(class, "=")
 			for _, tg := range tags {
-				if tg.Key == classKey || tg.Value == "" {
+				if tg.Key == classKey || tg.Value == "" || r.IsClassKey(tg.Key) {
 					continue
 				}
 				if _, prov := r.Family(tg.Key); prov {
@@ -466,11 +466,11 @@ func importProfiles(ctx context.Context, src VersionScanner, r *rules.RuleSet, e
 // shares of the proposal and of the import's created features, and K the
 // mean over keys k of |s_k − t_k|, the shares of all features carrying k,
 // taken over the keys either side carries on at least 10% of its features
-// (provenance keys and class keys left out). Both parts lie in [0, 1], so
+// (provenance keys and feature class keys left out). Both parts lie in [0, 1], so
 // does D: 0 for the same mix and completeness, 1 for disjoint classes and
 // opposite completeness. Imports that created no classed features are left
 // out.
-func nearestImports(pr *Profile, eps []Episode, ips []importProfile, n int) []ImportMatch {
+func nearestImports(pr *Profile, eps []Episode, ips []importProfile, n int, r *rules.RuleSet) []ImportMatch {
 	propClasses := map[string]float64{}
 	propKeys := map[string]float64{}
 	total := 0
@@ -486,6 +486,9 @@ func nearestImports(pr *Profile, eps []Episode, ips []importProfile, n int) []Im
 		}
 		propClasses[c.Class] = float64(c.Features) / float64(total)
 		for _, k := range c.Keys {
+			if _, prov := r.Family(k.Key); prov || r.IsClassKey(k.Key) {
+				continue
+			}
 			propKeys[k.Key] += float64(k.With) / float64(total)
 		}
 	}

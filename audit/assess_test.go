@@ -265,7 +265,8 @@ func TestChangesetsNeeded(t *testing.T) {
 // variation distance ½Σ|p−q| (the textbook definition) and the mean key gap.
 func TestNearestImportsDistance(t *testing.T) {
 	pr := &Profile{Classes: []ClassProfile{
-		{Class: "building=*", Features: 75, Keys: []KeyShare{{Key: "addr:street", With: 60}}},
+		// source is a provenance key: left out of the distance.
+		{Class: "building=*", Features: 75, Keys: []KeyShare{{Key: "addr:street", With: 60}, {Key: "source", With: 75}}},
 		{Class: "amenity=bench", Features: 25},
 	}}
 	eps := []Episode{{ID: "imp-1"}, {ID: "imp-2"}, {ID: "imp-3"}}
@@ -277,7 +278,7 @@ func TestNearestImportsDistance(t *testing.T) {
 		// Only buildings: TV = ½(|0.75−1| + |0.25−0|) = 0.25; addr:street 0.6 vs 0.3: K = 0.3; D = 0.275.
 		{features: 40, classes: map[string]int{"building=*": 40}, keys: map[string]int{"addr:street": 12}},
 	}
-	got := nearestImports(pr, eps, ips, 3)
+	got := nearestImports(pr, eps, ips, 3, rules.Default())
 	want := []struct {
 		id        string
 		d, tv, kd float64
