@@ -4,16 +4,20 @@ import (
 	"fmt"
 	"html/template"
 	"io"
+	"strings"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/layers"
 )
 
 // htmlPage is the data of the HTML template.
 type htmlPage struct {
 	view
-	Charts     []htmlChart
-	Checklist  *htmlChecklist
-	Assessment *htmlAssessment
+	MainWarnings  []string // general and per-layer warnings, shown open
+	OtherWarnings []string // about finer outcomes (key families, contributor groups), folded
+	Charts        []htmlChart
+	Checklist     *htmlChecklist
+	Assessment    *htmlAssessment
 }
 
 type htmlChart struct {
@@ -77,6 +81,7 @@ h3 { font-size: 1.05rem; margin: 1.5rem 0 .4rem; }
 p.lead { font-size: 1.05rem; }
 .warnings { border-left: 6px solid var(--warn); background: #fff4ea; padding: .6rem 1rem; margin: 1.25rem 0; }
 .warnings h2 { margin-top: .2rem; color: #8a3c00; }
+details summary { cursor: pointer; color: #8a3c00; margin: .3rem 0; }
 .ok { border-left: 6px solid #009e73; background: #eef8f4; padding: .6rem 1rem; }
 table { border-collapse: collapse; width: 100%; margin: .6rem 0 1rem; font-size: .92rem; background: #fff; }
 th, td { border-bottom: 1px solid var(--rule); padding: .35rem .5rem; text-align: left; vertical-align: top; }
@@ -86,9 +91,9 @@ td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowra
 dl.glossary dt { font-weight: 600; margin-top: .6rem; }
 dl.glossary dd { margin: .1rem 0 0 1.25rem; color: var(--muted); }
 figure { margin: 1.25rem 0 1.75rem; background: #fff; border: 1px solid var(--rule); padding: .75rem; }
-figure svg { display: block; width: 100%; height: auto; max-height: 34rem; }
+figure svg { display: block; width: 100%; height: auto; max-height: 40rem; }
 figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
-.charts { display: grid; grid-template-columns: repeat(auto-fit, minmax(26rem, 1fr)); gap: 0 1.25rem; }
+.charts { display: grid; grid-template-columns: 1fr; max-width: 48rem; }
 .cautions { border-top: 3px solid var(--ink); margin-top: 2.5rem; padding-top: .5rem; }
 .muted { color: var(--muted); }
 @media print { body { background: #fff; } figure { break-inside: avoid; } }
@@ -101,10 +106,16 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 {{end}}
 {{if .Warnings}}<section class="warnings" id="warnings">
 <h2>Warnings</h2>
-<ul>{{range .Warnings}}
+<ul>{{range .MainWarnings}}
 <li>{{.}}</li>{{end}}
 </ul>
-</section>
+{{if .OtherWarnings}}<details>
+<summary>{{len .OtherWarnings}} more about finer outcomes (key families, contributor groups)</summary>
+<ul>{{range .OtherWarnings}}
+<li>{{.}}</li>{{end}}
+</ul>
+</details>
+{{end}}</section>
 {{else}}<p class="ok" id="warnings">No warnings: the checks that run with every audit raised nothing.</p>
 {{end}}
 <section id="headline">
@@ -237,6 +248,7 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 		return err
 	}
 	pg := htmlPage{view: newView(in)}
+	pg.MainWarnings, pg.OtherWarnings = splitWarnings(pg.Warnings, in.Audit.Effects)
 	for _, c := range charts {
 		pg.Charts = append(pg.Charts, htmlChart{Name: c.Name, Caption: c.Caption, SVG: template.HTML(c.SVG)})
 	}
@@ -265,6 +277,26 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 		pg.Assessment = ha
 	}
 	return page.Execute(w, pg)
+}
+
+// splitWarnings puts the warnings about outcomes finer than the four layers
+// (those starting "OUTCOME: " for an outcome that is not a layer) apart.
+func splitWarnings(ws []string, effects []audit.Effect) (main, other []string) {
+	finer := map[string]bool{}
+	for _, e := range effects {
+		if _, ok := layers.ParseLayer(e.Layer); !ok {
+			finer[e.Layer] = true
+		}
+	}
+	for _, w := range ws {
+		head, _, ok := strings.Cut(w, ": ")
+		if ok && (finer[head] || strings.HasPrefix(head, audit.FamilyPrefix)) {
+			other = append(other, w)
+		} else {
+			main = append(main, w)
+		}
+	}
+	return main, other
 }
 
 func hasRef(cl *audit.Checklist, ref string) bool {

@@ -46,6 +46,7 @@ const (
 	FilePanel      = "panel.csv"
 	FileChecklist  = "checklist.json"
 	FileAssessment = "assessment.json"
+	DirCharts      = "charts" // one standalone SVG file per chart, NAME.svg
 )
 
 // Files returns the names of the files Write creates for in, in writing order.
@@ -70,7 +71,8 @@ func Files(in Input) []string {
 // Files): report.md, report.html, report.json (AuditReport.WriteJSON),
 // units.geojson when Units are given, panel.csv (audit.WritePanelCSV) when
 // the audit carries its study, and checklist.json and assessment.json when
-// those are given. Existing files of those names are replaced; each is
+// those are given, and each chart as a standalone SVG file under charts/
+// (for a wiki page or a README). Existing files of those names are replaced; each is
 // written to a temporary name first and renamed, so a failed run leaves no
 // half-written file.
 func Write(dir string, in Input) error {
@@ -99,6 +101,18 @@ func Write(dir string, in Input) error {
 	}
 	for _, name := range Files(in) {
 		if err := writeAtomic(filepath.Join(dir, name), writers[name]); err != nil {
+			return err
+		}
+	}
+	if err := os.MkdirAll(filepath.Join(dir, DirCharts), 0o755); err != nil {
+		return fmt.Errorf("report: %w", err)
+	}
+	for _, c := range charts {
+		svg := c.SVG
+		if err := writeAtomic(filepath.Join(dir, DirCharts, c.Name+".svg"), func(w io.Writer) error {
+			_, err := w.Write(svg)
+			return err
+		}); err != nil {
 			return err
 		}
 	}

@@ -281,6 +281,20 @@ func TestWriteFiles(t *testing.T) {
 			t.Errorf("%s: %v", name, err)
 		}
 	}
+	charts, err := os.ReadDir(filepath.Join(dir, DirCharts))
+	if err != nil || len(charts) != 6 {
+		t.Errorf("charts folder: %d files, err %v; want 6", len(charts), err)
+	}
+	for _, c := range charts {
+		b, err := os.ReadFile(filepath.Join(dir, DirCharts, c.Name()))
+		if err != nil {
+			t.Fatal(err)
+		}
+		var v struct{ XMLName xml.Name }
+		if err := xml.Unmarshal(b, &v); err != nil || v.XMLName.Space != "http://www.w3.org/2000/svg" {
+			t.Errorf("%s is not a standalone SVG document: %v (root %v)", c.Name(), err, v.XMLName)
+		}
+	}
 	// report.json is the audit contract.
 	data, err := os.ReadFile(filepath.Join(dir, FileJSON))
 	if err != nil {
@@ -404,6 +418,15 @@ func TestPalette(t *testing.T) {
 }
 
 func hexd(v uint32) byte { return "0123456789ABCDEF"[v&15] }
+
+func TestSplitWarnings(t *testing.T) {
+	effects := []audit.Effect{{Layer: "attribute"}, {Layer: "newcomers"}, {Layer: "attribute:names"}}
+	ws := []string{"poor balance after matching", "attribute: cs-att: pre-trend test fails", "newcomers: cs-att: x", "attribute:names: ppml-twfe: y", "attribute:roads: no estimate"}
+	main, other := splitWarnings(ws, effects)
+	if len(main) != 2 || len(other) != 3 || main[1] != ws[1] {
+		t.Errorf("main %q, other %q", main, other)
+	}
+}
 
 func TestChartsNeedData(t *testing.T) {
 	if _, ok, err := EventStudySVG(nil, "geometry"); ok || err != nil {
