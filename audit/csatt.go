@@ -515,7 +515,7 @@ func callawaySantAnna(p *Panel, y []float64, cl []int, G int, opts EstimateOptio
 				v.SetSym(a, b, sum)
 			}
 		}
-		if _, _, pv, ok := waldChi2(preEst, v); ok {
+		if pv, ok := leadTest(preEst, v, G); ok {
 			res.preP, res.hasPreP = pv, true
 		}
 	}

@@ -236,7 +236,7 @@ func twfeEventStudy(d *esDesign, y []float64, cl []int, G int, opts EstimateOpti
 				vl.SetSym(i, j, v.At(a, leads[j]))
 			}
 		}
-		if _, _, pv, ok := waldChi2(b, vl); ok {
+		if pv, ok := leadTest(b, vl, Gu); ok {
 			e.preP, e.hasPre = pv, true
 		}
 	}
