@@ -56,4 +56,20 @@
 // maxRelationDepth levels deep, each relation entered once). Deleted ways and
 // relations are placed as they stood a second before the deletion. Events that
 // cannot be placed have Located false and are counted in Summary.Unlocated.
+//
+// # Memory
+//
+// The pass holds one batch of events (Options.BatchSize), the per-account
+// first-edit times (one entry per account), a cache of at most 1024 way and
+// relation version lists, and the node table: positions of up to
+// Options.NodeTable node versions (24 bytes each, lowest ids first, filled by
+// the node scan), so that placing a way costs no store lookup per node. Nodes
+// beyond the table are looked up in the store, so memory stays bounded
+// whatever the size of the history.
+//
+// Finding the way an untagged vertex belonged to needs a node→way index. It is
+// written to the store (d|W|, batch by batch, one scan over all way versions)
+// rather than held in memory, because a history's way node lists can be far
+// larger than memory; and it is written only on the first vertex move, so a
+// snapshot (no earlier versions, nothing moves) never pays for it.
 package layers
