@@ -104,7 +104,7 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 <h1>{{.Title}}</h1>
 {{range .Lead}}<p class="lead">{{.}}</p>
 {{end}}
-{{if .Warnings}}<section class="warnings" id="warnings">
+{{if .HasAudit}}{{if .Warnings}}<section class="warnings" id="warnings">
 <h2>Warnings</h2>
 <ul>{{range .MainWarnings}}
 <li>{{.}}</li>{{end}}
@@ -156,7 +156,7 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 </table>
 <p class="muted">Differences are standardized mean differences: the gap between the group means in standard deviations. Within ±0.1 counts as alike.</p>
 {{end}}</section>
-{{if .Estimates}}<section id="estimates">
+{{end}}{{if .Estimates}}<section id="estimates">
 <h2>All estimates</h2>
 <table>
 <thead><tr><th>Outcome</th><th>Estimator</th><th>Effect</th><th>95% interval</th><th>ATT per area-month</th><th>p</th><th>Pre-import p</th><th>Method</th><th>Areas import/comparison</th></tr></thead>
@@ -248,7 +248,9 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 		return err
 	}
 	pg := htmlPage{view: newView(in)}
-	pg.MainWarnings, pg.OtherWarnings = splitWarnings(pg.Warnings, in.Audit.Effects)
+	if in.Audit != nil {
+		pg.MainWarnings, pg.OtherWarnings = splitWarnings(pg.Warnings, in.Audit.Effects)
+	}
 	for _, c := range charts {
 		pg.Charts = append(pg.Charts, htmlChart{Name: c.Name, Caption: c.Caption, SVG: template.HTML(c.SVG)})
 	}

@@ -44,60 +44,61 @@ func WriteMarkdown(w io.Writer, in Input) error {
 	for _, s := range v.Lead {
 		fmt.Fprintf(&b, "%s\n", e(s))
 	}
-	b.WriteString("\n## Warnings\n\n")
-	if len(v.Warnings) == 0 {
-		b.WriteString("None.\n")
-	}
-	for _, s := range v.Warnings {
-		fmt.Fprintf(&b, "- %s\n", e(s))
-	}
-
-	b.WriteString("\n## How follow-on editing changed\n\n")
-	if len(v.Headline) == 0 {
-		b.WriteString("No layer had a cs-att estimate; see the warnings and the table of all estimates.\n")
-	} else {
-		b.WriteString("| Layer | Relative effect | 95% interval | Pre-import test |\n|---|---:|---|---|\n")
-		for _, h := range v.Headline {
-			fmt.Fprintf(&b, "| %s | %s | %s | %s |\n", e(h.Layer), e(h.Effect), e(h.Interval), e(h.PreTrend))
+	if v.HasAudit {
+		b.WriteString("\n## Warnings\n\n")
+		if len(v.Warnings) == 0 {
+			b.WriteString("None.\n")
 		}
-		b.WriteString("\n")
-		for _, h := range v.Headline {
-			fmt.Fprintf(&b, "- **%s**: %s\n", e(h.Layer), e(h.Reading))
+		for _, s := range v.Warnings {
+			fmt.Fprintf(&b, "- %s\n", e(s))
+		}
+
+		b.WriteString("\n## How follow-on editing changed\n\n")
+		if len(v.Headline) == 0 {
+			b.WriteString("No layer had a cs-att estimate; see the warnings and the table of all estimates.\n")
+		} else {
+			b.WriteString("| Layer | Relative effect | 95% interval | Pre-import test |\n|---|---:|---|---|\n")
+			for _, h := range v.Headline {
+				fmt.Fprintf(&b, "| %s | %s | %s | %s |\n", e(h.Layer), e(h.Effect), e(h.Interval), e(h.PreTrend))
+			}
+			b.WriteString("\n")
+			for _, h := range v.Headline {
+				fmt.Fprintf(&b, "- **%s**: %s\n", e(h.Layer), e(h.Reading))
+			}
+		}
+
+		b.WriteString("\n## What the numbers mean\n\n")
+		for _, t := range v.Glossary {
+			fmt.Fprintf(&b, "- **%s**: %s\n", e(t.Name), e(t.Text))
+		}
+
+		b.WriteString("\n## Areas compared\n\n")
+		for _, s := range v.Areas {
+			fmt.Fprintf(&b, "%s\n", e(s))
+		}
+		if len(v.Balance) > 0 {
+			b.WriteString("\nBalance before and after matching (standardized mean differences; within ±0.1 counts as alike):\n\n")
+			b.WriteString("| Trait | Mean, import areas | Mean, comparison | Difference before | Difference after | After matching |\n|---|---:|---:|---:|---:|---|\n")
+			for _, r := range v.Balance {
+				fmt.Fprintf(&b, "| %s | %s | %s | %s | %s | %s |\n", e(r.Covariate), r.Treated, r.Control, r.Before, r.After, r.Flag)
+			}
+		}
+
+		if len(v.Estimates) > 0 {
+			b.WriteString("\n## All estimates\n\n")
+			b.WriteString("| Outcome | Estimator | Effect | 95% interval | ATT per area-month | p | Pre-import p | Method | Areas import/comparison |\n|---|---|---:|---|---:|---:|---:|---|---:|\n")
+			for _, r := range v.Estimates {
+				fmt.Fprintf(&b, "| %s | %s | %s | %s | %s | %s | %s | %s | %s |\n", e(r.Outcome), e(r.Estimator), e(r.Effect), e(r.Interval), r.ATT, e(r.P), e(r.PreTrend), e(r.Method), r.Units)
+			}
+		}
+		if len(v.Placebo) > 0 {
+			b.WriteString("\nPlacebo (start dates moved back into the time before the import; an effect here signals trouble):\n\n")
+			b.WriteString("| Outcome | Shift | ATT | 95% interval | p |\n|---|---|---:|---|---:|\n")
+			for _, r := range v.Placebo {
+				fmt.Fprintf(&b, "| %s | %s | %s | %s | %s |\n", e(r.Outcome), r.Shift, r.ATT, r.Interval, e(r.P))
+			}
 		}
 	}
-
-	b.WriteString("\n## What the numbers mean\n\n")
-	for _, t := range v.Glossary {
-		fmt.Fprintf(&b, "- **%s**: %s\n", e(t.Name), e(t.Text))
-	}
-
-	b.WriteString("\n## Areas compared\n\n")
-	for _, s := range v.Areas {
-		fmt.Fprintf(&b, "%s\n", e(s))
-	}
-	if len(v.Balance) > 0 {
-		b.WriteString("\nBalance before and after matching (standardized mean differences; within ±0.1 counts as alike):\n\n")
-		b.WriteString("| Trait | Mean, import areas | Mean, comparison | Difference before | Difference after | After matching |\n|---|---:|---:|---:|---:|---|\n")
-		for _, r := range v.Balance {
-			fmt.Fprintf(&b, "| %s | %s | %s | %s | %s | %s |\n", e(r.Covariate), r.Treated, r.Control, r.Before, r.After, r.Flag)
-		}
-	}
-
-	if len(v.Estimates) > 0 {
-		b.WriteString("\n## All estimates\n\n")
-		b.WriteString("| Outcome | Estimator | Effect | 95% interval | ATT per area-month | p | Pre-import p | Method | Areas import/comparison |\n|---|---|---:|---|---:|---:|---:|---|---:|\n")
-		for _, r := range v.Estimates {
-			fmt.Fprintf(&b, "| %s | %s | %s | %s | %s | %s | %s | %s | %s |\n", e(r.Outcome), e(r.Estimator), e(r.Effect), e(r.Interval), r.ATT, e(r.P), e(r.PreTrend), e(r.Method), r.Units)
-		}
-	}
-	if len(v.Placebo) > 0 {
-		b.WriteString("\nPlacebo (start dates moved back into the time before the import; an effect here signals trouble):\n\n")
-		b.WriteString("| Outcome | Shift | ATT | 95% interval | p |\n|---|---|---:|---|---:|\n")
-		for _, r := range v.Placebo {
-			fmt.Fprintf(&b, "| %s | %s | %s | %s | %s |\n", e(r.Outcome), r.Shift, r.ATT, r.Interval, e(r.P))
-		}
-	}
-
 	if in.Checklist != nil {
 		b.WriteString("\n")
 		if err := in.Checklist.WriteMarkdown(&b); err != nil {

@@ -15,8 +15,9 @@ import (
 // ErrInput is the sentinel under errors about an unusable Input.
 var ErrInput = errors.New("report: invalid input")
 
-// Input is what a report is made of. Audit is required; the rest is optional
-// and adds sections when present.
+// Input is what a report is made of. At least one of Audit, Checklist and
+// Assessment is required; each adds its sections. The charts, report.json,
+// units.geojson and panel.csv come from the audit.
 type Input struct {
 	// Audit is the audit of one import (audit.RunAudit). Its Study, when set,
 	// gives panel.csv.
@@ -31,8 +32,8 @@ type Input struct {
 }
 
 func (in Input) check() error {
-	if in.Audit == nil {
-		return fmt.Errorf("%w: no audit", ErrInput)
+	if in.Audit == nil && in.Checklist == nil && in.Assessment == nil {
+		return fmt.Errorf("%w: no audit, checklist or assessment", ErrInput)
 	}
 	return nil
 }
@@ -51,8 +52,11 @@ const (
 
 // Files returns the names of the files Write creates for in, in writing order.
 func Files(in Input) []string {
-	out := []string{FileMarkdown, FileHTML, FileJSON}
-	if in.Units != nil {
+	out := []string{FileMarkdown, FileHTML}
+	if in.Audit != nil {
+		out = append(out, FileJSON)
+	}
+	if in.Units != nil && in.Audit != nil {
 		out = append(out, FileUnits)
 	}
 	if in.Audit != nil && in.Audit.Study != nil && in.Audit.Study.Panel != nil {
@@ -89,9 +93,11 @@ func Write(dir string, in Input) error {
 	writers := map[string]func(io.Writer) error{
 		FileMarkdown: func(w io.Writer) error { return WriteMarkdown(w, in) },
 		FileHTML:     func(w io.Writer) error { return writeHTML(w, in, charts) },
-		FileJSON:     in.Audit.WriteJSON,
 		FileUnits:    func(w io.Writer) error { return WriteUnitsGeoJSON(w, in.Units, in.Audit) },
 		FilePanel:    func(w io.Writer) error { return audit.WritePanelCSV(w, in.Audit.Study.Panel) },
+	}
+	if in.Audit != nil {
+		writers[FileJSON] = in.Audit.WriteJSON
 	}
 	if in.Checklist != nil {
 		writers[FileChecklist] = in.Checklist.WriteJSON
@@ -145,12 +151,15 @@ type Chart struct {
 
 // MakeCharts renders the charts of a report: one event study per layer that
 // has event-study rows, the balance chart when there are balance rows, and the
-// map when units are given.
+// map when units are given; none without an audit.
 func MakeCharts(in Input) ([]Chart, error) {
 	if err := in.check(); err != nil {
 		return nil, err
 	}
 	var out []Chart
+	if in.Audit == nil {
+		return nil, nil
+	}
 	for _, l := range layers.Layers {
 		svg, ok, err := EventStudySVG(in.Audit.EventStudy, l.String())
 		if err != nil {

@@ -310,7 +310,34 @@ func TestWriteFiles(t *testing.T) {
 		t.Errorf("report.json: schema %q id %q err %v", back.Schema, back.Import.ID, err)
 	}
 	if err := Write(dir, Input{}); err == nil {
-		t.Error("Write without an audit should fail")
+		t.Error("Write without an audit, checklist or assessment should fail")
+	}
+}
+
+// TestWithoutAudit writes a checklist alone: no audit sections, no charts,
+// the checklist's rows and cautions, still escaped.
+func TestWithoutAudit(t *testing.T) {
+	in := hostile()
+	in.Audit = nil
+	dir := t.TempDir()
+	if err := Write(dir, in); err != nil {
+		t.Fatal(err)
+	}
+	if got := strings.Join(Files(in), ","); got != "report.md,report.html,checklist.json" {
+		t.Errorf("Files = %s", got)
+	}
+	page, _ := os.ReadFile(filepath.Join(dir, FileHTML))
+	md, _ := os.ReadFile(filepath.Join(dir, FileMarkdown))
+	for _, s := range []string{string(page), string(md)} {
+		if strings.Contains(s, "How follow-on editing changed") || strings.Contains(s, "<svg") {
+			t.Error("a checklist-only report should have no audit sections or charts")
+		}
+		if !strings.Contains(s, "check locally") || !strings.Contains(s, "import guidelines") {
+			t.Error("a checklist-only report should carry the checklist's cautions and the closing caution")
+		}
+	}
+	if strings.Contains(string(page), "<script") || !strings.Contains(string(page), "Neglected tags of import imp-&lt;i&gt;1&lt;/i&gt;") {
+		t.Error("checklist-only HTML is not escaped")
 	}
 }
 

@@ -12,6 +12,7 @@ import (
 // view is the content of a report as plain text, before escaping: the
 // Markdown and HTML writers render the same view.
 type view struct {
+	HasAudit  bool
 	Title     string
 	Lead      []string // sentences describing the import and the panel
 	Warnings  []string
@@ -133,7 +134,10 @@ func preTrendText(p *float64) string {
 // newView builds the report's content from the input.
 func newView(in Input) view {
 	r := in.Audit
-	v := view{Title: "Follow-on editing after import " + r.Import.ID}
+	if r == nil {
+		return partView(in)
+	}
+	v := view{HasAudit: true, Title: "Follow-on editing after import " + r.Import.ID}
 	acc := "no named account"
 	if len(r.Import.Accounts) > 0 {
 		acc = strings.Join(r.Import.Accounts, ", ")
@@ -201,6 +205,22 @@ func newView(in Input) view {
 	v.Cautions = append([]string{
 		"These estimates are evidence, not proof: areas differ in ways no matching captures, and a change after an import can have other causes.",
 	}, r.Cautions...)
+	return v
+}
+
+// partView is the view of a report without an audit: a checklist or an
+// assessment alone, whose own sections carry their content and cautions.
+func partView(in Input) view {
+	v := view{Title: "Import review"}
+	switch {
+	case in.Checklist != nil:
+		v.Title = "Neglected tags of import " + in.Checklist.Import
+	case in.Assessment != nil:
+		v.Title = "Assessment of a proposed import: " + in.Assessment.Proposal
+	}
+	v.Cautions = []string{
+		"These figures are evidence, not proof: read them with the local community, and follow the community's import guidelines and local review before any upload or bulk edit.",
+	}
 	return v
 }
 

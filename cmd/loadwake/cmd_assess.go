@@ -14,6 +14,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/report"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
 )
@@ -29,6 +30,7 @@ type assessOptions struct {
 	draws    int
 	json     string
 	md       string
+	report   string // write the report folder here
 }
 
 func newAssessCommand(g *globalOptions) *cobra.Command {
@@ -66,6 +68,7 @@ figures are a first screen for local review, not a conflation or a decision.`,
 	f.IntVar(&o.draws, "draws", 999, "bootstrap draws of the past imports' audits")
 	f.StringVar(&o.json, "json", "", "write the assessment as JSON to this file")
 	f.StringVar(&o.md, "md", "", "write the assessment as Markdown to this file")
+	f.StringVar(&o.report, "report", "", "write the report folder (Markdown and HTML to post) here")
 	return cmd
 }
 
@@ -145,7 +148,13 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	if err := a.WriteMarkdown(out); err != nil {
 		return err
 	}
-	return writeOutputs(out, output{o.json, a.WriteJSON}, output{o.md, a.WriteMarkdown})
+	if err := writeOutputs(out, output{o.json, a.WriteJSON}, output{o.md, a.WriteMarkdown}); err != nil {
+		return err
+	}
+	if o.report != "" {
+		return writeReports(out, o.report, report.Input{Assessment: a})
+	}
+	return nil
 }
 
 // readProposal reads path as OSM XML or OsmChange (plain, gzip or bzip2;

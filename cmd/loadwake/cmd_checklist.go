@@ -9,6 +9,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/report"
 )
 
 // checklistOptions holds the flags of `loadwake checklist`.
@@ -20,6 +21,7 @@ type checklistOptions struct {
 	minFeatures int
 	json        string
 	md          string
+	report      string // write the report folder here
 }
 
 func newChecklistCommand(g *globalOptions) *cobra.Command {
@@ -60,6 +62,7 @@ import guidelines before any follow-up edit.`,
 	f.IntVar(&o.minFeatures, "min-features", audit.DefaultMinFeatures, "least number of reference features carrying a key (and of reference features per class)")
 	f.StringVar(&o.json, "json", "", "write the checklist as JSON to this file")
 	f.StringVar(&o.md, "md", "", "write the checklist as Markdown to this file")
+	f.StringVar(&o.report, "report", "", "write the report folder (Markdown and HTML to post) here")
 	return cmd
 }
 
@@ -111,7 +114,13 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 	}
 	out := cmd.OutOrStdout()
 	writeChecklistText(out, cl)
-	return writeOutputs(out, output{o.json, cl.WriteJSON}, output{o.md, cl.WriteMarkdown})
+	if err := writeOutputs(out, output{o.json, cl.WriteJSON}, output{o.md, cl.WriteMarkdown}); err != nil {
+		return err
+	}
+	if o.report != "" {
+		return writeReports(out, o.report, report.Input{Checklist: cl})
+	}
+	return nil
 }
 
 // output is a file a command writes when its flag names one.

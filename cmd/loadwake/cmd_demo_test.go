@@ -106,6 +106,13 @@ func TestDemoAndReport(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(out3, report.FileHTML)); err != nil {
 		t.Errorf("audit --report: %v", err)
 	}
+	out4 := filepath.Join(t.TempDir(), "checklist-report")
+	if out, err := runRoot(t, "--store", store, "checklist", "--units", districts, "--import", rep.Import.ID, "--report", out4); err != nil {
+		t.Fatalf("checklist --report: %v\n%s", err, out)
+	}
+	if b, err := os.ReadFile(filepath.Join(out4, report.FileMarkdown)); err != nil || !bytes.Contains(b, []byte("Neglected tags")) {
+		t.Errorf("checklist --report: %v", err)
+	}
 }
 
 func TestReportUsage(t *testing.T) {
