@@ -5,7 +5,7 @@ STORE   ?= demo-out/loadwake.db
 OUT     ?= demo-out
 COUNT   ?= 5
 
-.PHONY: all build test vet fmt demo bench fuzz browser-test clean
+.PHONY: all build test vet fmt demo docs-chart bench fuzz browser-test clean
 
 all: build
 
@@ -25,6 +25,10 @@ test: vet
 # demo runs the whole job end to end on an invented region with an embedded store.
 demo: build
 	./bin/loadwake demo --out $(OUT) --force
+
+# docs-chart regenerates the chart the README shows from the demo's report.
+docs-chart: demo
+	cp $(OUT)/report/charts/event-study-attribute.svg docs/event-study-attribute.svg
 
 # bench runs every benchmark COUNT times; compare medians (benchstat works well).
 bench:
