@@ -134,7 +134,7 @@ func history() *fakeHistory {
 }
 
 func TestDetectImports(t *testing.T) {
-	eps, err := DetectImports(context.Background(), history(), rules.Default(), DetectOptions{})
+	eps, err := DetectImports(context.Background(), history(), gapRules(t, "30"), DetectOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -356,7 +356,7 @@ func TestReadChangesetIDs(t *testing.T) {
 }
 
 func TestWriteEpisodes(t *testing.T) {
-	eps, err := DetectImports(context.Background(), history(), rules.Default(), DetectOptions{})
+	eps, err := DetectImports(context.Background(), history(), gapRules(t, "30"), DetectOptions{})
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -544,8 +544,15 @@ func BenchmarkDetectImports(b *testing.B) {
 
 func ExampleDetectImports() {
 	// history() is an in-memory HistorySource with invented accounts; a
-	// *ingest.Store is the usual one.
-	eps, err := DetectImports(context.Background(), history(), rules.Default(), DetectOptions{})
+	// *ingest.Store is the usual one. The rules group changesets at most 30
+	// days apart (the default is a year).
+	src := strings.Replace(string(rules.DefaultYAML()), "group_gap_days: 365", "group_gap_days: 30", 1)
+	r, err := rules.Parse("gap30.yaml", []byte(src))
+	if err != nil {
+		fmt.Println(err)
+		return
+	}
+	eps, err := DetectImports(context.Background(), history(), r, DetectOptions{})
 	if err != nil {
 		fmt.Println(err)
 		return
