@@ -86,6 +86,7 @@ details summary { cursor: pointer; color: #8a3c00; margin: .3rem 0; }
 table { border-collapse: collapse; width: 100%; margin: .6rem 0 1rem; font-size: .92rem; background: #fff; }
 th, td { border-bottom: 1px solid var(--rule); padding: .35rem .5rem; text-align: left; vertical-align: top; }
 th { background: #eef1f4; font-weight: 600; }
+th.n { text-align: right; }
 td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowrap; }
 .headline td.n { font-size: 1.05rem; font-weight: 600; }
 dl.glossary dt { font-weight: 600; margin-top: .6rem; }
@@ -121,7 +122,7 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 <section id="headline">
 <h2>How follow-on editing changed</h2>
 {{if .Headline}}<table class="headline">
-<thead><tr><th>Layer</th><th>Relative effect</th><th>95% interval</th><th>Pre-import test</th></tr></thead>
+<thead><tr><th>Layer</th><th class="n">Relative effect</th><th class="n">95% interval</th><th>Pre-import test</th></tr></thead>
 <tbody>{{range .Headline}}
 <tr><td>{{.Layer}}</td><td class="n">{{.Effect}}</td><td class="n">{{.Interval}}</td><td>{{.PreTrend}}</td></tr>{{end}}
 </tbody>
@@ -190,8 +191,9 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 </section>
 {{end}}{{with .Assessment}}<section id="assessment">
 <h2>Proposed import: {{.Proposal}}</h2>
-<p>{{.Features}} proposed features, needing at least {{.Changesets}} changesets at the API limit. They reach {{.Footprint}} areas, {{.Treated}} of which they would make import areas; {{.Duplicates}} proposed features have an existing feature of the same class within {{f2 .Distance}} m (likely duplicates to check).</p>
+<p>{{.Features}} proposed features, needing at least {{.Changesets}} changeset(s) at the API limit of 10,000 changes each. They reach {{.Footprint}} areas, {{.Treated}} of which they would make import areas; {{.Duplicates}} proposed features have an existing feature of the same class within {{f2 .Distance}} m (likely duplicates to check).</p>
 {{if .Nearest}}<h3>Most similar past imports</h3>
+<p class="muted">Distance compares the mix of feature classes and how completely keys are filled in: 0 is the same profile, 1 nothing in common.</p>
 <ul>{{range .Nearest}}
 <li>{{.Episode.ID}}: distance {{f2 .Distance}} ({{.Features}} features created)</li>{{end}}
 </ul>
