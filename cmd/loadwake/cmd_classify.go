@@ -1,9 +1,7 @@
 package main
 
 import (
-	"errors"
 	"fmt"
-	"io/fs"
 	"os"
 
 	"github.com/loadwake/loadwake/ingest"
@@ -42,21 +40,24 @@ run, unless --force.`,
 }
 
 func runClassify(cmd *cobra.Command, g *globalOptions, o *classifyOptions) error {
-	r := rules.Default()
-	if o.rules != "" {
-		var err error
-		if r, err = rules.Load(o.rules); err != nil {
-			return err
-		}
-	}
-	if _, err := os.Stat(g.store); errors.Is(err, fs.ErrNotExist) {
-		return fmt.Errorf("no store at %s: run loadwake ingest first, or pass --store", g.store)
-	}
-	st, err := ingest.Open(g.store, ingest.DefaultOptions())
+	r, err := loadRules(o.rules)
 	if err != nil {
 		return err
 	}
-	opts := layers.Options{Force: o.force}
+	st, err := openStore(g)
+	if err != nil {
+		return err
+	}
+	err = classifyStore(cmd, g, st, r, o.force)
+	if cerr := st.Close(); err == nil {
+		err = cerr
+	}
+	return err
+}
+
+// classifyStore runs the classification pass over st and prints its summary.
+func classifyStore(cmd *cobra.Command, g *globalOptions, st *ingest.Store, r *rules.RuleSet, force bool) error {
+	opts := layers.Options{Force: force}
 	errw := cmd.ErrOrStderr()
 	f, isFile := errw.(*os.File)
 	tty := isFile && term.IsTerminal(int(f.Fd()))
@@ -66,9 +67,6 @@ func runClassify(cmd *cobra.Command, g *globalOptions, o *classifyOptions) error
 	sum, err := layers.Run(cmd.Context(), st, r, opts)
 	if opts.Progress != nil {
 		fmt.Fprint(errw, "\r\033[K")
-	}
-	if cerr := st.Close(); err == nil {
-		err = cerr
 	}
 	if err != nil {
 		return err

@@ -1,13 +1,10 @@
 package main
 
 import (
-	"errors"
 	"fmt"
-	"io/fs"
 	"os"
 
 	"github.com/loadwake/loadwake/audit"
-	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
 	"github.com/spf13/cobra"
 )
@@ -85,10 +82,7 @@ func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
 			return err
 		}
 	}
-	if _, err := os.Stat(g.store); errors.Is(err, fs.ErrNotExist) {
-		return fmt.Errorf("no store at %s: run loadwake ingest first, or pass --store", g.store)
-	}
-	st, err := ingest.Open(g.store, ingest.DefaultOptions())
+	st, err := openStore(g)
 	if err != nil {
 		return err
 	}

@@ -14,9 +14,8 @@ import (
 
 // ingestOptions holds the flags of `loadwake ingest`.
 type ingestOptions struct {
-	// noClassify is read by the classification pass that follows ingest; the
-	// pass is run by `loadwake classify` and skips nothing here yet.
-	noClassify bool
+	noClassify bool   // skip the classification pass after the ingest
+	rules      string // rule file for the classification pass
 }
 
 func newIngestCommand(g *globalOptions) *cobra.Command {
@@ -36,8 +35,9 @@ A file with malformed content is abandoned at the error, which names the file
 and position; what was stored before stays consistent and a rerun after the
 fix completes without duplicates. Ctrl-C stops between batches likewise.
 
---no-classify is for the classification pass (loadwake classify), which is run
-separately for now.
+After the files, the classification pass (loadwake classify) turns the new
+versions into edit events with the built-in rules or --rules; --no-classify
+leaves that for a later loadwake classify.
 
 OpenStreetMap data is licensed under the ODbL: keep its attribution in
 whatever you derive from the store.`,
@@ -51,11 +51,16 @@ whatever you derive from the store.`,
 			return runIngest(cmd, g, &o, args)
 		},
 	}
-	cmd.Flags().BoolVar(&o.noClassify, "no-classify", false, "do not classify the new edits (used by the classification pass)")
+	cmd.Flags().BoolVar(&o.noClassify, "no-classify", false, "do not classify the edits after ingesting (run loadwake classify later)")
+	cmd.Flags().StringVar(&o.rules, "rules", "", "rule file for the classification pass (default: the built-in rules)")
 	return cmd
 }
 
-func runIngest(cmd *cobra.Command, g *globalOptions, _ *ingestOptions, paths []string) error {
+func runIngest(cmd *cobra.Command, g *globalOptions, o *ingestOptions, paths []string) error {
+	r, err := loadRules(o.rules)
+	if err != nil {
+		return err
+	}
 	for _, p := range paths {
 		if st, err := os.Stat(p); err != nil {
 			return fmt.Errorf("ingest: %w", err)
@@ -74,6 +79,12 @@ func runIngest(cmd *cobra.Command, g *globalOptions, _ *ingestOptions, paths []s
 	}
 	rep, err := ingest.Ingest(cmd.Context(), s, paths, opts)
 	printIngestReport(cmd.OutOrStdout(), errw, rep)
+	switch {
+	case err != nil && !o.noClassify:
+		fmt.Fprintln(errw, "not classified: fix the file named above and rerun ingest (what was stored is kept)")
+	case err == nil && !o.noClassify:
+		err = classifyStore(cmd, g, s, r, false)
+	}
 	if cerr := s.Close(); err == nil {
 		err = cerr
 	}

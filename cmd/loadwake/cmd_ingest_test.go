@@ -93,6 +93,11 @@ func TestIngestAndStatsCommands(t *testing.T) {
 	if err := json.Unmarshal([]byte(out), &got); err != nil {
 		t.Fatalf("stats --json: %v\n%s", err, out)
 	}
+	// ingest ran the classification pass: the way's five versions became
+	// events (layers' own tests work that history out by hand).
+	if got.Layers == nil || got.Layers.Versions["way"] != 5 || got.Layers.Events["new_feature"] < 1 {
+		t.Errorf("classification after ingest: %+v", got.Layers)
+	}
 	if got.Versions != versions || got.Nodes != nodes || got.Ways != ways || got.Relations != 0 || len(got.Files) != 1 {
 		t.Errorf("stats %+v; reference decoder: %d versions, %d nodes, %d ways", got, versions, nodes, ways)
 	}
@@ -106,7 +111,7 @@ func TestIngestAndStatsCommands(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, re := range []string{`(?m)^ways\s+1\s+5$`, `(?m)^files\s+1$`, `(?m)^time range\s+2007-09-17T06:27:00Z \.\. 2016-07-25T18:57:02Z$`, `way_6394949\.osm  osm-xml`} {
+	for _, re := range []string{`(?m)^ways\s+1\s+5$`, `(?m)^files\s+1$`, `(?m)^time range\s+2007-09-17T06:27:00Z \.\. 2016-07-25T18:57:02Z$`, `way_6394949\.osm  osm-xml`, `(?m)^events per layer$`} {
 		if !regexp.MustCompile(re).MatchString(out) {
 			t.Errorf("stats output lacks %s:\n%s", re, out)
 		}

@@ -5,14 +5,13 @@ import (
 	"errors"
 	"fmt"
 	"io"
-	"io/fs"
-	"os"
 	"path/filepath"
 	"text/tabwriter"
 	"time"
 
 	"github.com/dustin/go-humanize"
 	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/layers"
 	"github.com/spf13/cobra"
 )
 
@@ -57,17 +56,25 @@ type statsJSON struct {
 	LastEdit         *time.Time          `json:"last_edit"`
 	BBox             []float64           `json:"bbox"`
 	Files            []ingest.FileRecord `json:"files"`
+	Layers           *layers.Summary     `json:"classification"` // null before classification
 }
 
 func runStats(cmd *cobra.Command, g *globalOptions, o *statsOptions) error {
-	if _, err := os.Stat(g.store); errors.Is(err, fs.ErrNotExist) {
-		return fmt.Errorf("no store at %s: run loadwake ingest first, or pass --store", g.store)
-	}
-	s, err := ingest.Open(g.store, ingest.DefaultOptions())
+	s, err := openStore(g)
 	if err != nil {
 		return err
 	}
 	m, err := s.Meta(cmd.Context())
+	var sum *layers.Summary
+	if err == nil {
+		ls, serr := layers.Summarize(cmd.Context(), s)
+		switch {
+		case serr == nil:
+			sum = &ls
+		case !errors.Is(serr, layers.ErrNotClassified):
+			err = serr
+		}
+	}
 	if cerr := s.Close(); err == nil {
 		err = cerr
 	}
@@ -75,18 +82,22 @@ func runStats(cmd *cobra.Command, g *globalOptions, o *statsOptions) error {
 		return err
 	}
 	if o.json {
-		return printStatsJSON(cmd.OutOrStdout(), g.store, m)
+		return printStatsJSON(cmd.OutOrStdout(), g.store, m, sum)
 	}
 	printStats(cmd.OutOrStdout(), g.store, m)
-	return nil
+	if sum == nil {
+		fmt.Fprintln(cmd.OutOrStdout(), "not classified yet: run loadwake classify")
+		return nil
+	}
+	return layers.WriteSummary(cmd.OutOrStdout(), *sum)
 }
 
-func printStatsJSON(w io.Writer, store string, m ingest.Meta) error {
+func printStatsJSON(w io.Writer, store string, m ingest.Meta, sum *layers.Summary) error {
 	t := m.Totals
 	v := statsJSON{Store: store, Schema: m.Schema, Nodes: t.Nodes, Ways: t.Ways, Relations: t.Relations,
 		NodeVersions: t.NodeVersions, WayVersions: t.WayVersions, RelationVersions: t.RelationVersions,
 		Versions: t.Versions(), DeletedVersions: t.DeletedVersions, Changesets: t.Changesets, Users: t.Users,
-		Files: m.Files}
+		Files: m.Files, Layers: sum}
 	if v.Files == nil {
 		v.Files = []ingest.FileRecord{}
 	}
