@@ -6,6 +6,7 @@ import (
 	"image/color"
 	"math"
 	"regexp"
+	"slices"
 	"sort"
 	"strings"
 
@@ -416,14 +417,27 @@ func MapSVG(shapes Shapes, list []audit.UnitInfo) (svg []byte, ok bool, err erro
 	p := newPlot("Areas in the study")
 	p.HideAxes()
 	seen := map[audit.UnitStatus]bool{}
-	for i := range shapes.Len() {
+	// Import areas are drawn last, so that overlapping units never hide them.
+	rank := map[audit.UnitStatus]int{audit.StatusCandidate: 0, audit.StatusExcluded: 1, audit.StatusDropped: 2, audit.StatusControl: 3, audit.StatusTreated: 4}
+	order := make([]int, shapes.Len())
+	for i := range order {
+		order[i] = i
+	}
+	sort.SliceStable(order, func(a, b int) bool {
+		return rank[status[shapes.ID(order[a])]] < rank[status[shapes.ID(order[b])]]
+	})
+	for _, i := range order {
 		s := status[shapes.ID(i)]
-		for _, ring := range outerRings(shapes.Geometry(i)) {
-			xy := make(plotter.XYs, len(ring))
-			for k, pt := range ring {
-				xy[k] = pr.xy(pt)
+		for _, rings := range polygonRings(shapes.Geometry(i)) {
+			xys := make([]plotter.XYer, len(rings))
+			for r, ring := range rings {
+				xy := make(plotter.XYs, len(ring))
+				for k, pt := range ring {
+					xy[k] = pr.xy(pt)
+				}
+				xys[r] = xy
 			}
-			poly, err := plotter.NewPolygon(xy)
+			poly, err := plotter.NewPolygon(xys...)
 			if err != nil {
 				return nil, false, fmt.Errorf("report: map of unit %q: %w", shapes.ID(i), err)
 			}
@@ -460,25 +474,43 @@ func MapSVG(shapes Shapes, list []audit.UnitInfo) (svg []byte, ok bool, err erro
 	return svg, err == nil, err
 }
 
-// outerRings returns the outer rings of a polygonal geometry.
-func outerRings(g orb.Geometry) []orb.Ring {
+// polygonRings returns the rings of each polygon of a polygonal geometry,
+// the outer ring first. Inner rings are turned to wind against the outer ring
+// whatever the file did (RFC 7946 only recommends it), so that the SVG's
+// nonzero fill leaves the holes empty.
+func polygonRings(g orb.Geometry) [][]orb.Ring {
+	one := func(p orb.Polygon) []orb.Ring {
+		if len(p) == 0 {
+			return nil
+		}
+		out := []orb.Ring{p[0]}
+		o := p[0].Orientation()
+		for _, in := range p[1:] {
+			if in.Orientation() == o {
+				in = slices.Clone(in)
+				in.Reverse()
+			}
+			out = append(out, in)
+		}
+		return out
+	}
 	switch g := g.(type) {
 	case orb.Polygon:
-		if len(g) > 0 {
-			return []orb.Ring{g[0]}
+		if r := one(g); r != nil {
+			return [][]orb.Ring{r}
 		}
 	case orb.MultiPolygon:
-		var out []orb.Ring
+		var out [][]orb.Ring
 		for _, p := range g {
-			if len(p) > 0 {
-				out = append(out, p[0])
+			if r := one(p); r != nil {
+				out = append(out, r)
 			}
 		}
 		return out
 	case orb.Bound:
-		return []orb.Ring{g.ToRing()}
+		return [][]orb.Ring{{g.ToRing()}}
 	case orb.Ring:
-		return []orb.Ring{g}
+		return [][]orb.Ring{{g}}
 	}
 	return nil
 }

@@ -455,6 +455,25 @@ func TestSplitWarnings(t *testing.T) {
 	}
 }
 
+// TestPolygonRings: the hole of RFC 7946 appendix A.3 winds against its outer
+// ring, whichever way the file wrote it.
+func TestPolygonRings(t *testing.T) {
+	outer := orb.Ring{{100, 0}, {101, 0}, {101, 1}, {100, 1}, {100, 0}}                    // counter-clockwise
+	hole := orb.Ring{{100.2, 0.2}, {100.8, 0.2}, {100.8, 0.8}, {100.2, 0.8}, {100.2, 0.2}} // also counter-clockwise
+	for _, g := range []orb.Geometry{orb.Polygon{outer, hole}, orb.MultiPolygon{{outer, hole}}} {
+		rs := polygonRings(g)
+		if len(rs) != 1 || len(rs[0]) != 2 {
+			t.Fatalf("%T: rings %v", g, rs)
+		}
+		if rs[0][0].Orientation() == rs[0][1].Orientation() {
+			t.Errorf("%T: the hole winds like the outer ring", g)
+		}
+	}
+	if hole.Orientation() != outer.Orientation() {
+		t.Error("the input hole was modified")
+	}
+}
+
 func TestChartsNeedData(t *testing.T) {
 	if _, ok, err := EventStudySVG(nil, "geometry"); ok || err != nil {
 		t.Errorf("event study of no rows: ok %v err %v", ok, err)
