@@ -455,6 +455,54 @@ func TestSplitWarnings(t *testing.T) {
 	}
 }
 
+func TestChartContent(t *testing.T) {
+	r := fixedAudit()
+	es, ok, err := EventStudySVG(r.EventStudy, "attribute")
+	if err != nil || !ok {
+		t.Fatal(ok, err)
+	}
+	m, ok, err := MapSVG(appendixUnits(t), r.UnitList)
+	if err != nil || !ok {
+		t.Fatal(ok, err)
+	}
+	bal, ok, err := BalanceSVG(r.Balance)
+	if err != nil || !ok {
+		t.Fatal(ok, err)
+	}
+	cases := []struct {
+		name string
+		svg  []byte
+		want []string
+	}{
+		{"event study", es, []string{"Attribute edits around the import (twfe-linear)", "95% interval", "import arrives", "reference month (fixed at 0)",
+			"months since the import reached the area", "#0072B2", "#D55E00"}},
+		// The fixture spans 100–103°E at 0–3°N: 3° of longitude × cos(1.5°)
+		// is 333.8 km, a quarter of it 83 km, so the bar is 50 km.
+		{"map", m, []string{"Areas in the study", "import area (treated)", "matched comparison area", "50 km", "#D55E00", "#0072B2"}},
+		{"balance", bal, []string{"before matching", "after matching", "±0.1 (rule of thumb)", "features_at_start", "edits_per_month", "#E69F00"}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			for _, w := range c.want {
+				if !bytes.Contains(c.svg, []byte(w)) {
+					t.Errorf("SVG lacks %q", w)
+				}
+			}
+		})
+	}
+	// No reference month without a fixed zero row.
+	var rows []audit.EventStudyRow
+	for _, x := range r.EventStudy {
+		if x.EventTime != -1 {
+			rows = append(rows, x)
+		}
+	}
+	es, _, _ = EventStudySVG(rows, "attribute")
+	if bytes.Contains(es, []byte("reference month")) {
+		t.Error("a chart without a fixed reference row marks one")
+	}
+}
+
 // TestPolygonRings: the hole of RFC 7946 appendix A.3 winds against its outer
 // ring, whichever way the file wrote it.
 func TestPolygonRings(t *testing.T) {
