@@ -284,3 +284,23 @@ func DetectAndFind(ctx context.Context, src HistorySource, r *rules.RuleSet, opt
 	}
 	return all, ep, nil
 }
+
+// HeadlineEstimator is the estimator reports lead with. Edit counts are skewed
+// counts whose trends are multiplicative (busy areas gain and lose in
+// proportion), so a comparison in levels can fail parallel trends where one in
+// ratios holds; Poisson pseudo-maximum-likelihood with unit and month fixed
+// effects, each cohort stacked with clean controls, estimates the ratio
+// directly (Santos Silva & Tenreyro 2006; Wooldridge 1999) and recovers the
+// simulator's planted effects (TestAuditRecoversPlantedEffects). The other
+// estimators stay in every report as checks.
+const HeadlineEstimator = "ppml-twfe"
+
+// Headline returns the headline estimator's effect for a layer or outcome.
+func (r *AuditReport) Headline(layer string) (Effect, bool) {
+	for _, e := range r.Effects {
+		if e.Layer == layer && e.Estimator == HeadlineEstimator {
+			return e, true
+		}
+	}
+	return Effect{}, false
+}
