@@ -5,6 +5,7 @@ import (
 	"context"
 	"sort"
 	"strings"
+	"sync"
 	"testing"
 	"time"
 
@@ -16,6 +17,7 @@ import (
 // and version, and a derived area kept as a map.
 type memSource struct {
 	objs    map[osm.Type][]osm.Object
+	mu      sync.Mutex // guards derived and puts: the pass writes from another goroutine
 	derived map[string][]byte
 	puts    int // PutDerived calls
 }
@@ -78,14 +80,20 @@ func (m *memSource) NodeAt(_ context.Context, id osm.NodeID, at time.Time) (orb.
 }
 
 func (m *memSource) PutDerived(_ context.Context, fill func(put func(key, value []byte) error) error) error {
+	m.mu.Lock()
 	m.puts++
+	m.mu.Unlock()
 	return fill(func(k, v []byte) error {
+		m.mu.Lock()
+		defer m.mu.Unlock()
 		m.derived[string(k)] = bytes.Clone(v)
 		return nil
 	})
 }
 
 func (m *memSource) keys(prefix []byte) []string {
+	m.mu.Lock()
+	defer m.mu.Unlock()
 	var ks []string
 	for k := range m.derived {
 		if strings.HasPrefix(k, string(prefix)) {
@@ -101,7 +109,13 @@ func (m *memSource) ScanDerived(ctx context.Context, prefix []byte, fn func(key,
 		if err := ctx.Err(); err != nil {
 			return err
 		}
-		if err := fn([]byte(k), m.derived[k]); err != nil {
+		m.mu.Lock()
+		v, ok := m.derived[k]
+		m.mu.Unlock()
+		if !ok {
+			continue
+		}
+		if err := fn([]byte(k), v); err != nil {
 			return err
 		}
 	}
@@ -109,13 +123,17 @@ func (m *memSource) ScanDerived(ctx context.Context, prefix []byte, fn func(key,
 }
 
 func (m *memSource) GetDerived(_ context.Context, key []byte) ([]byte, bool, error) {
+	m.mu.Lock()
+	defer m.mu.Unlock()
 	v, ok := m.derived[string(key)]
 	return v, ok, nil
 }
 
 func (m *memSource) DropDerived(_ context.Context, prefix []byte) error {
 	for _, k := range m.keys(prefix) {
+		m.mu.Lock()
 		delete(m.derived, k)
+		m.mu.Unlock()
 	}
 	return nil
 }

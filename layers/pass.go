@@ -6,6 +6,7 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"sync/atomic"
 	"time"
 
 	"github.com/paulmach/orb"
@@ -15,7 +16,7 @@ import (
 // Source is the history store as the classification pass sees it;
 // *ingest.Store meets it. Reads may be made from inside ScanVersions' and
 // ScanDerived's callbacks, and PutDerived may be called from inside
-// ScanVersions' callback.
+// ScanVersions' callback and from another goroutine while reads go on.
 type Source interface {
 	// ScanVersions calls fn for every version of type t, id ascending, then
 	// version ascending. fn may keep o.
@@ -47,7 +48,7 @@ type Options struct {
 	// node; 0 means DefaultNodeTable, a negative value none. Nodes beyond it
 	// are looked up in the store.
 	NodeTable int
-	// Progress, when set, is called after each written batch with the object
+	// Progress, when set, is called after each batch of events with the object
 	// type being scanned and the versions of that type scanned so far.
 	Progress func(t osm.Type, versions int64)
 }
@@ -162,10 +163,15 @@ func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error
 	case opts.NodeTable > 0:
 		p.loc.table = newNodeTable(opts.NodeTable)
 	}
+	p.startWriter()
 	for _, t := range scanTypes {
 		if err := p.scan(t); err != nil {
+			p.stopWriter()
 			return Summary{}, err
 		}
+	}
+	if err := p.stopWriter(); err != nil {
+		return Summary{}, fmt.Errorf("classify: %w", err)
 	}
 	if err := p.writeFirstEdits(); err != nil {
 		return Summary{}, err
@@ -193,8 +199,15 @@ type pass struct {
 	fp    fingerprint
 	first map[osm.UserID]int64 // earliest version per account, unix seconds
 	sum   Summary
-	buf   []Event
-	kbuf  []byte
+	buf   []Event // batch being filled
+
+	// The writer goroutine writes full batches while the scan goes on; at
+	// most three batches exist at once (filling, queued, being written).
+	queue chan []Event
+	free  chan []Event
+	done  chan error
+	werr  atomic.Pointer[error] // first write error, seen by flush
+	kbuf  []byte                // writer's key and value buffers
 	vbuf  []byte
 }
 
@@ -206,7 +219,11 @@ func (p *pass) scan(t osm.Type) error {
 			prev = nil
 		}
 		p.fp.add(o)
-		n++
+		if n++; n%4096 == 0 {
+			if err := p.ctx.Err(); err != nil {
+				return err
+			}
+		}
 		if nd, ok := o.(*osm.Node); ok && p.loc.table != nil {
 			p.loc.table.add(nd)
 		}
@@ -259,32 +276,17 @@ func editor(o osm.Object) (osm.UserID, time.Time) {
 	return 0, time.Time{}
 }
 
-// flush writes the buffered events under their time and changeset keys and
-// counts them into the summary.
+// flush hands the buffered events to the writer and counts them into the
+// summary. It returns the writer's first error, if any.
 func (p *pass) flush() error {
 	if err := p.ctx.Err(); err != nil {
 		return err
 	}
+	if e := p.werr.Load(); e != nil {
+		return *e
+	}
 	if len(p.buf) == 0 {
 		return nil
-	}
-	err := p.src.PutDerived(p.ctx, func(put func(k, v []byte) error) error {
-		for i := range p.buf {
-			e := &p.buf[i]
-			p.vbuf = encodeValue(p.vbuf[:0], e)
-			p.kbuf = eventKey(p.kbuf[:0], e)
-			if err := put(p.kbuf, p.vbuf); err != nil {
-				return err
-			}
-			p.kbuf = changesetKey(p.kbuf[:0], e)
-			if err := put(p.kbuf, nil); err != nil {
-				return err
-			}
-		}
-		return nil
-	})
-	if err != nil {
-		return fmt.Errorf("write events: %w", err)
 	}
 	for i := range p.buf {
 		e := &p.buf[i]
@@ -301,8 +303,63 @@ func (p *pass) flush() error {
 			}
 		}
 	}
-	clear(p.buf)
-	p.buf = p.buf[:0]
+	p.queue <- p.buf
+	p.buf = <-p.free
+	return nil
+}
+
+func (p *pass) startWriter() {
+	p.queue = make(chan []Event, 1)
+	p.free = make(chan []Event, 2)
+	p.done = make(chan error, 1)
+	p.free <- nil
+	queue := p.queue
+	go func() {
+		var err error
+		for b := range queue {
+			if err == nil {
+				if err = p.write(b); err != nil {
+					p.werr.Store(&err)
+				}
+			}
+			clear(b)
+			p.free <- b[:0]
+		}
+		p.done <- err
+	}()
+}
+
+// stopWriter waits for the queued batches to be written and returns the first
+// write error.
+func (p *pass) stopWriter() error {
+	if p.queue == nil {
+		return nil
+	}
+	close(p.queue)
+	p.queue = nil
+	return <-p.done
+}
+
+// write stores one batch of events under their time and changeset keys.
+func (p *pass) write(evs []Event) error {
+	err := p.src.PutDerived(p.ctx, func(put func(k, v []byte) error) error {
+		for i := range evs {
+			e := &evs[i]
+			p.vbuf = encodeValue(p.vbuf[:0], e)
+			p.kbuf = eventKey(p.kbuf[:0], e)
+			if err := put(p.kbuf, p.vbuf); err != nil {
+				return err
+			}
+			p.kbuf = changesetKey(p.kbuf[:0], e)
+			if err := put(p.kbuf, nil); err != nil {
+				return err
+			}
+		}
+		return nil
+	})
+	if err != nil {
+		return fmt.Errorf("write events: %w", err)
+	}
 	return nil
 }
 
