@@ -3,6 +3,8 @@ package report
 import (
 	"fmt"
 	"io"
+	"slices"
+	"strings"
 
 	"github.com/paulmach/orb/geojson"
 
@@ -13,9 +15,11 @@ import (
 // WriteUnitsGeoJSON writes every unit as an RFC 7946 Feature with the
 // properties id, status (treated, control, unmatched, dropped, excluded),
 // reason, intensity, first_month (null when the import never reached it),
-// weight, import_features and, per layer, cs_att_relative_LAYER: the import's
-// cs-att relative effect in that layer (the same for every unit; null when
-// not estimated), so a map can label import areas with it.
+// weight, import_features and, per layer, ESTIMATOR_relative_LAYER for the
+// headline estimator (ppml_twfe_relative_attribute, ...) and for cs-att
+// (cs_att_relative_attribute, ...): the import's relative effect in that layer
+// (the same for every unit; null when not estimated), so a map can label
+// import areas with it.
 func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.AuditReport) error {
 	if shapes == nil {
 		return fmt.Errorf("%w: no units", ErrInput)
@@ -26,14 +30,18 @@ func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.AuditReport) error {
 			info[u.ID] = u
 		}
 	}
+	ests := []string{headlineEstimator, "cs-att"}
+	prop := func(est, layer string) string { return strings.ReplaceAll(est, "-", "_") + "_relative_" + layer }
 	effects := map[string]any{}
-	for _, l := range layers.Layers {
-		effects["cs_att_relative_"+l.String()] = nil
+	for _, est := range ests {
+		for _, l := range layers.Layers {
+			effects[prop(est, l.String())] = nil
+		}
 	}
 	if r != nil {
 		for _, e := range r.Effects {
-			if _, ok := layers.ParseLayer(e.Layer); ok && e.Estimator == headlineEstimator && e.RelativeEffect != nil {
-				effects["cs_att_relative_"+e.Layer] = *e.RelativeEffect
+			if _, ok := layers.ParseLayer(e.Layer); ok && slices.Contains(ests, e.Estimator) && e.RelativeEffect != nil {
+				effects[prop(e.Estimator, e.Layer)] = *e.RelativeEffect
 			}
 		}
 	}

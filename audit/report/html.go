@@ -122,7 +122,7 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 <section id="headline">
 <h2>How follow-on editing changed</h2>
 {{if .Headline}}<table class="headline">
-<thead><tr><th>Layer</th><th class="n">Relative effect</th><th class="n">95% interval</th><th>Pre-import test</th></tr></thead>
+<thead><tr><th>Layer</th><th class="n">Relative effect ({{.Estimator}})</th><th class="n">95% interval</th><th>Pre-import test</th></tr></thead>
 <tbody>{{range .Headline}}
 <tr><td>{{.Layer}}</td><td class="n">{{.Effect}}</td><td class="n">{{.Interval}}</td><td>{{.PreTrend}}</td></tr>{{end}}
 </tbody>
@@ -130,7 +130,7 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 <ul>{{range .Headline}}
 <li><strong>{{.Layer}}</strong>: {{.Reading}}</li>{{end}}
 </ul>
-{{else}}<p>No layer had a cs-att estimate; see the warnings and the table of all estimates.</p>
+{{else}}<p>No layer had a headline estimate; see the warnings and the table of all estimates.</p>
 {{end}}</section>
 <section id="charts">
 <h2>Charts</h2>

@@ -55,9 +55,9 @@ func WriteMarkdown(w io.Writer, in Input) error {
 
 		b.WriteString("\n## How follow-on editing changed\n\n")
 		if len(v.Headline) == 0 {
-			b.WriteString("No layer had a cs-att estimate; see the warnings and the table of all estimates.\n")
+			b.WriteString("No layer had a headline estimate; see the warnings and the table of all estimates.\n")
 		} else {
-			b.WriteString("| Layer | Relative effect | 95% interval | Pre-import test |\n|---|---:|---|---|\n")
+			fmt.Fprintf(&b, "| Layer | Relative effect (%s) | 95%% interval | Pre-import test |\n|---|---:|---|---|\n", e(v.Estimator))
 			for _, h := range v.Headline {
 				fmt.Fprintf(&b, "| %s | %s | %s | %s |\n", e(h.Layer), e(h.Effect), e(h.Interval), e(h.PreTrend))
 			}

@@ -44,6 +44,8 @@ func fixedAudit() *audit.AuditReport {
 	r.Effects = []audit.Effect{
 		{Layer: "geometry", Estimator: "cs-att", ATT: -0.4, RelativeEffect: f64(-0.12), CI95: [2]float64{-0.31, 0.07}, PValue: 0.21, PreTrendP: f64(0.64), TreatedUnits: 8, ControlUnits: 19, Method: "cluster-robust"},
 		{Layer: "attribute", Estimator: "cs-att", ATT: -2.1, RelativeEffect: f64(-0.38), CI95: [2]float64{-0.47, -0.29}, PValue: 0.0004, PreTrendP: f64(0.02), TreatedUnits: 8, ControlUnits: 19, Method: "wild-bootstrap"},
+		{Layer: "attribute", Estimator: "ppml-twfe", ATT: -2.0, RelativeEffect: f64(-0.33), CI95: [2]float64{-0.42, -0.22}, PValue: 0.0002, PreTrendP: f64(0.02), TreatedUnits: 8, ControlUnits: 19, Method: "wild-score-bootstrap"},
+		{Layer: "geometry", Estimator: "ppml-twfe", ATT: -0.3, RelativeEffect: f64(-0.1), CI95: [2]float64{-0.28, 0.09}, PValue: 0.3, PreTrendP: f64(0.7), TreatedUnits: 8, ControlUnits: 19, Method: "wild-score-bootstrap"},
 		{Layer: "attribute", Estimator: "did-2x2", ATT: -1.9, CI95: [2]float64{-2.5, -1.3}, PValue: 0.003, TreatedUnits: 8, ControlUnits: 19, Method: "cluster-robust"},
 		{Layer: "newcomers", Estimator: "cs-att", ATT: 0.2, RelativeEffect: f64(0.05), CI95: [2]float64{-0.1, 0.2}, PValue: 0.5, TreatedUnits: 8, ControlUnits: 19, Method: "cluster-robust"},
 	}
@@ -374,8 +376,9 @@ func TestUnitsGeoJSONRFC7946(t *testing.T) {
 	if props["id"] != "A.3" || props["status"] != "treated" || props["first_month"] != "2021-02" || props["weight"] != 1.0 || props["intensity"] != 0.9 {
 		t.Errorf("A.3 properties = %v", props)
 	}
-	if props["cs_att_relative_attribute"] != -0.38 || props["cs_att_relative_new_feature"] != nil {
-		t.Errorf("A.3 effects: attribute %v, new_feature %v", props["cs_att_relative_attribute"], props["cs_att_relative_new_feature"])
+	if props["cs_att_relative_attribute"] != -0.38 || props["cs_att_relative_new_feature"] != nil || props["ppml_twfe_relative_attribute"] != -0.33 {
+		t.Errorf("A.3 effects: cs-att attribute %v, new_feature %v, ppml-twfe attribute %v", props["cs_att_relative_attribute"],
+			props["cs_att_relative_new_feature"], props["ppml_twfe_relative_attribute"])
 	}
 	if p := fc.Features[1].Properties; p["status"] != "control" || p["first_month"] != nil {
 		t.Errorf("A.6 properties = %v", p)

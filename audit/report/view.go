@@ -13,6 +13,7 @@ import (
 // Markdown and HTML writers render the same view.
 type view struct {
 	HasAudit  bool
+	Estimator string // the headline estimator
 	Title     string
 	Lead      []string // sentences describing the import and the panel
 	Warnings  []string
@@ -76,10 +77,9 @@ func pptr(p *float64) string {
 	return pval(*p)
 }
 
-// headlineEstimator is the estimator each layer's headline is read from:
-// Callaway & Sant'Anna's group-time ATT against never-treated matched
-// controls, which stays valid with staggered imports.
-const headlineEstimator = "cs-att"
+// headlineEstimator is the estimator each layer's headline is read from
+// (audit.HeadlineEstimator); the others are listed as checks.
+const headlineEstimator = audit.HeadlineEstimator
 
 // Reading returns a plain-words reading of one effect for a non-statistician.
 func Reading(e audit.Effect) string {
@@ -137,7 +137,7 @@ func newView(in Input) view {
 	if r == nil {
 		return partView(in)
 	}
-	v := view{HasAudit: true, Title: "Follow-on editing after import " + r.Import.ID}
+	v := view{HasAudit: true, Estimator: headlineEstimator, Title: "Follow-on editing after import " + r.Import.ID}
 	acc := "no named account"
 	if len(r.Import.Accounts) > 0 {
 		acc = strings.Join(r.Import.Accounts, ", ")
@@ -169,7 +169,7 @@ func newView(in Input) view {
 		{"95% interval", "The range of effects the data support. Read it as the figure's uncertainty: an interval from -40% to -5% says 'fewer, by somewhere between 5% and 40%'. An interval that includes 0% means no change cannot be ruled out."},
 		{"Pre-import test (pre-trend)", "Checks whether import areas and comparison areas already moved differently before the import. If it fails (p below 0.05), the comparison is doubtful and the effect may reflect that earlier difference rather than the import."},
 		{"p-value", "How often a difference this large would show up by chance if the import had no effect. Small values (below 0.05) are conventionally called significant; they are not proof."},
-		{"Estimators", "cs-att compares each wave of import areas with never-imported comparison areas (Callaway and Sant'Anna's method, sound when imports arrive in waves); ppml-twfe fits counts with a Poisson model; twfe-linear gives the month-by-month chart; did-2x2 is the simple before/after, import/comparison difference. When they agree the result is sturdier."},
+		{"Estimators", "The headline comes from " + headlineEstimator + ". ppml-twfe fits the counts with a Poisson model, comparing each wave of import areas only with clean comparison areas, and reads the change as a ratio, which suits edit counts that grow and shrink in proportion; cs-att compares each wave with never-imported comparison areas (Callaway and Sant'Anna's method) in edit counts; twfe-linear gives the month-by-month chart; did-2x2 is the simple before/after, import/comparison difference. When they agree the result is sturdier."},
 	}
 
 	u := r.Units

@@ -179,7 +179,7 @@ func demoSummary(rep *audit.AuditReport, cl *audit.Checklist, dir string) []stri
 	eff := ""
 	for _, l := range layers.Layers {
 		for _, e := range rep.Effects {
-			if e.Layer == l.String() && e.Estimator == "cs-att" {
+			if e.Layer == l.String() && e.Estimator == audit.HeadlineEstimator {
 				if eff != "" {
 					eff += "; "
 				}
@@ -192,9 +192,9 @@ func demoSummary(rep *audit.AuditReport, cl *audit.Checklist, dir string) []stri
 		}
 	}
 	if eff == "" {
-		eff = "no cs-att estimate (see the warnings in the report)"
+		eff = "no " + audit.HeadlineEstimator + " estimate (see the warnings in the report)"
 	}
-	lines = append(lines, "effects:   cs-att, 95% interval: "+eff)
+	lines = append(lines, "effects:   "+audit.HeadlineEstimator+", 95% interval: "+eff)
 	if row, ok := report.TopNeglected(cl); ok {
 		lines = append(lines, fmt.Sprintf("neglected: %s on %s: %.0f%% of imported features vs %.0f%% of comparable ones (%d without it)",
 			row.Key, row.Class, 100*row.ImportShare, 100*row.ReferenceShare, row.Affected))
