@@ -226,11 +226,7 @@ func classifyWay(prev, cur *osm.Way, r Rules, loc Locator) []Event {
 	}
 	out, done := common(prevTags, cur.Tags, prev != nil && prev.Visible, cur.Visible, prev != nil, ev, r)
 	if !done && !sameWayNodes(prev.Nodes, cur.Nodes) {
-		g := ev
-		g.Layer = Geometry
-		g.Geometry = WayNodesChanged
-		g.Class = r.Class(cur.Tags)
-		out = append(out, g)
+		out = withGeometry(out, ev, WayNodesChanged, r.Class(cur.Tags))
 	}
 	if len(out) == 0 {
 		return nil
@@ -244,10 +240,7 @@ func classifyWay(prev, cur *osm.Way, r Rules, loc Locator) []Event {
 		// deleted way where its last version stood a second before.
 		p, ok, _ = wayCentre(prev.Nodes, cur.Timestamp.Add(-time.Second), loc)
 	}
-	for i := range out {
-		out[i].Location, out[i].Located = p, ok
-	}
-	return out
+	return placeAll(out, p, ok)
 }
 
 func sameWayNodes(a, b osm.WayNodes) bool {
@@ -273,11 +266,7 @@ func classifyRelation(prev, cur *osm.Relation, r Rules, loc Locator) []Event {
 	}
 	out, done := common(prevTags, cur.Tags, prev != nil && prev.Visible, cur.Visible, prev != nil, ev, r)
 	if !done && !sameMembers(prev.Members, cur.Members) {
-		g := ev
-		g.Layer = Geometry
-		g.Geometry = MembersChanged
-		g.Class = r.Class(cur.Tags)
-		out = append(out, g)
+		out = withGeometry(out, ev, MembersChanged, r.Class(cur.Tags))
 	}
 	if len(out) == 0 {
 		return nil
@@ -287,10 +276,7 @@ func classifyRelation(prev, cur *osm.Relation, r Rules, loc Locator) []Event {
 		rel, at = prev, cur.Timestamp.Add(-time.Second)
 	}
 	p, ok := relationPlace(rel, at, loc)
-	for i := range out {
-		out[i].Location, out[i].Located = p, ok
-	}
-	return out
+	return placeAll(out, p, ok)
 }
 
 func sameMembers(a, b osm.Members) bool {
@@ -303,4 +289,18 @@ func sameMembers(a, b osm.Members) bool {
 		}
 	}
 	return true
+}
+
+// withGeometry appends a Geometry event of the given kind and class.
+func withGeometry(out []Event, ev Event, g GeometryChange, class string) []Event {
+	ev.Layer, ev.Geometry, ev.Class = Geometry, g, class
+	return append(out, ev)
+}
+
+// placeAll gives every event of a version the same location.
+func placeAll(out []Event, p orb.Point, ok bool) []Event {
+	for i := range out {
+		out[i].Location, out[i].Located = p, ok
+	}
+	return out
 }
