@@ -113,6 +113,13 @@ func TestDemoAndReport(t *testing.T) {
 	if b, err := os.ReadFile(filepath.Join(out4, report.FileMarkdown)); err != nil || !bytes.Contains(b, []byte("Neglected tags")) {
 		t.Errorf("checklist --report: %v", err)
 	}
+	out5 := filepath.Join(t.TempDir(), "assess-report")
+	if out, err := runRoot(t, "--store", store, "assess", filepath.Join(dir, "proposal.geojson"), "--units", districts, "--draws", "99", "--report", out5); err != nil {
+		t.Fatalf("assess --report: %v\n%s", err, out)
+	}
+	if b, err := os.ReadFile(filepath.Join(out5, report.FileHTML)); err != nil || !bytes.Contains(b, []byte("Proposed import")) {
+		t.Errorf("assess --report: %v", err)
+	}
 }
 
 func TestReportUsage(t *testing.T) {
