@@ -3,6 +3,7 @@ package report
 import (
 	"bytes"
 	"fmt"
+	"html"
 	"image/color"
 	"math"
 	"regexp"
@@ -115,22 +116,12 @@ func tidySVG(b []byte, label string) []byte {
 	}
 	s = fontFamily.ReplaceAllString(s, "font-family:'Liberation Sans',Arial,Helvetica,sans-serif")
 	// Width and height become CSS-scalable; the viewBox keeps the proportions.
-	title := "<title>" + htmlText(label) + "</title>"
-	s = strings.Replace(s, "<svg ", `<svg role="img" aria-label="`+htmlAttr(label)+`" class="chart" `, 1)
+	title := "<title>" + html.EscapeString(label) + "</title>"
+	s = strings.Replace(s, "<svg ", `<svg role="img" aria-label="`+html.EscapeString(label)+`" class="chart" `, 1)
 	if i := strings.Index(s, ">"); i >= 0 {
 		s = s[:i+1] + "\n" + title + s[i+1:]
 	}
 	return []byte(strings.TrimSpace(s) + "\n")
-}
-
-func htmlText(s string) string {
-	r := strings.NewReplacer("&", "&amp;", "<", "&lt;", ">", "&gt;")
-	return r.Replace(s)
-}
-
-func htmlAttr(s string) string {
-	r := strings.NewReplacer("&", "&amp;", "<", "&lt;", ">", "&gt;", `"`, "&#34;", "'", "&#39;")
-	return r.Replace(s)
 }
 
 // chartEstimator picks the estimator whose event study a layer's chart shows:
