@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"context"
 	"encoding/json"
 	"errors"
@@ -16,17 +15,6 @@ import (
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
 )
-
-func runChecklistRoot(t testing.TB, args ...string) (string, error) {
-	t.Helper()
-	root := newRootCommand(newGlobalOptions())
-	var out, errb bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&errb)
-	root.SetArgs(args)
-	err := root.ExecuteContext(context.Background())
-	return out.String(), err
-}
 
 // simulatedStore generates a small invented world (audit/sim), ingests and
 // classifies it into a store on disk and returns the store's directory, the
@@ -78,7 +66,7 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 
 	t.Run("checklist", func(t *testing.T) {
 		js, md := filepath.Join(tmp, "cl.json"), filepath.Join(tmp, "cl.md")
-		out, err := runChecklistRoot(t, "--store", store, "checklist", "--units", districts, "--changesets", csList, "--json", js, "--md", md)
+		out, err := execRootOut(t, "--store", store, "checklist", "--units", districts, "--changesets", csList, "--json", js, "--md", md)
 		if err != nil {
 			t.Fatalf("checklist: %v\n%s", err, out)
 		}
@@ -107,7 +95,7 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 
 	t.Run("snapshot", func(t *testing.T) {
 		src := "source~" + tr.ImportAccounts[0].Dataset
-		out, err := runChecklistRoot(t, "--store", store, "checklist", "--provenance", src, "--types", "w")
+		out, err := execRootOut(t, "--store", store, "checklist", "--provenance", src, "--types", "w")
 		if err != nil {
 			t.Fatalf("checklist --provenance: %v\n%s", err, out)
 		}
@@ -130,7 +118,7 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 			t.Fatal(err)
 		}
 		js := filepath.Join(tmp, "assess.json")
-		out, err := runChecklistRoot(t, "--store", store, "assess", prop, "--units", districts, "--draws", "99", "--json", js)
+		out, err := execRootOut(t, "--store", store, "assess", prop, "--units", districts, "--draws", "99", "--json", js)
 		if err != nil {
 			t.Fatalf("assess: %v\n%s", err, out)
 		}
@@ -175,7 +163,7 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 		}
 		for _, c := range cases {
 			t.Run(c.name, func(t *testing.T) {
-				_, err := runChecklistRoot(t, append([]string{"--store", store}, c.args...)...)
+				_, err := execRootOut(t, append([]string{"--store", store}, c.args...)...)
 				if err == nil || errors.As(err, new(usageError)) != c.usage || !strings.Contains(err.Error(), c.has) {
 					t.Errorf("err %v (usage %v); want usage=%v containing %q", err, errors.As(err, new(usageError)), c.usage, c.has)
 				}

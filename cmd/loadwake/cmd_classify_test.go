@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"context"
 	"errors"
 	"os"
@@ -12,17 +11,6 @@ import (
 
 	"github.com/loadwake/loadwake/ingest"
 )
-
-func runClassifyRoot(t testing.TB, args ...string) (string, string, error) {
-	t.Helper()
-	root := newRootCommand(newGlobalOptions())
-	var out, errb bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&errb)
-	root.SetArgs(args)
-	err := root.ExecuteContext(context.Background())
-	return out.String(), errb.String(), err
-}
 
 // TestClassifyCommand ingests a real way history (way 6394949 with all its
 // node versions, from the osm module's testdata copied to ingest/testdata)
@@ -44,7 +32,7 @@ func TestClassifyCommand(t *testing.T) {
 		t.Fatal(err)
 	}
 
-	out, _, err := runClassifyRoot(t, "--store", store, "classify")
+	out, _, err := execRoot(t, "--store", store, "classify")
 	if err != nil {
 		t.Fatalf("classify: %v", err)
 	}
@@ -53,11 +41,11 @@ func TestClassifyCommand(t *testing.T) {
 			t.Errorf("classify output lacks %s:\n%s", re, out)
 		}
 	}
-	out2, _, err := runClassifyRoot(t, "--store", store, "classify")
+	out2, _, err := execRoot(t, "--store", store, "classify")
 	if err != nil || !strings.Contains(out2, "up to date") {
 		t.Errorf("second classify: err %v, output:\n%s", err, out2)
 	}
-	out3, _, err := runClassifyRoot(t, "--store", store, "-q", "classify", "--force")
+	out3, _, err := execRoot(t, "--store", store, "-q", "classify", "--force")
 	if err != nil || strings.Contains(out3, "up to date") || !strings.Contains(out3, "new_feature") {
 		t.Errorf("classify --force: err %v, output:\n%s", err, out3)
 	}
@@ -66,13 +54,13 @@ func TestClassifyCommand(t *testing.T) {
 	if err := os.WriteFile(bad, []byte("feature_classes: [\n"), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	if _, _, err := runClassifyRoot(t, "--store", store, "classify", "--rules", bad); err == nil || !strings.Contains(err.Error(), "bad.yaml") {
+	if _, _, err := execRoot(t, "--store", store, "classify", "--rules", bad); err == nil || !strings.Contains(err.Error(), "bad.yaml") {
 		t.Errorf("bad rule file: err %v, want one naming the file", err)
 	}
-	if _, _, err := runClassifyRoot(t, "--store", filepath.Join(t.TempDir(), "none"), "classify"); err == nil || !strings.Contains(err.Error(), "no store") {
+	if _, _, err := execRoot(t, "--store", filepath.Join(t.TempDir(), "none"), "classify"); err == nil || !strings.Contains(err.Error(), "no store") {
 		t.Errorf("missing store: err %v", err)
 	}
-	if _, _, err := runClassifyRoot(t, "--store", store, "classify", "extra"); !errors.As(err, new(usageError)) {
+	if _, _, err := execRoot(t, "--store", store, "classify", "extra"); !errors.As(err, new(usageError)) {
 		t.Errorf("extra argument: err %v, want a usage error", err)
 	}
 }

@@ -2,7 +2,6 @@ package main
 
 import (
 	"bytes"
-	"context"
 	"encoding/json"
 	"os"
 	"path/filepath"
@@ -13,17 +12,6 @@ import (
 	"github.com/loadwake/loadwake/audit/sim"
 )
 
-func runRoot(t testing.TB, args ...string) (string, error) {
-	t.Helper()
-	root := newRootCommand(newGlobalOptions())
-	var out, errb bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&errb)
-	root.SetArgs(args)
-	err := root.ExecuteContext(context.Background())
-	return out.String(), err
-}
-
 // TestDemoAndReport runs the demo on a small invented world, checks the files
 // and the summary, then runs `report` and `audit --report --md` on the store
 // the demo left.
@@ -32,7 +20,7 @@ func TestDemoAndReport(t *testing.T) {
 		t.Skip("simulates, ingests and audits a world")
 	}
 	dir := filepath.Join(t.TempDir(), "demo")
-	out, err := runRoot(t, "demo", "--out", dir, "--grid", "6", "--scale", "0.5", "--draws", "99", "--seed", "2")
+	out, err := execRootOut(t, "demo", "--out", dir, "--grid", "6", "--scale", "0.5", "--draws", "99", "--seed", "2")
 	if err != nil {
 		t.Fatalf("demo: %v\n%s", err, out)
 	}
@@ -71,7 +59,7 @@ func TestDemoAndReport(t *testing.T) {
 	if err := json.Unmarshal(b, &units); err != nil || len(units.Features) != 36 {
 		t.Errorf("units.geojson: %d features, err %v; want 36", len(units.Features), err)
 	}
-	if _, err := runRoot(t, "demo", "--out", dir); err == nil {
+	if _, err := execRootOut(t, "demo", "--out", dir); err == nil {
 		t.Error("a second demo into a full folder without --force should fail")
 	}
 
@@ -87,7 +75,7 @@ func TestDemoAndReport(t *testing.T) {
 	store := filepath.Join(dir, "loadwake.db")
 	districts := filepath.Join(dir, "world", sim.DistrictsFile)
 	out2 := filepath.Join(t.TempDir(), "review")
-	if out, err := runRoot(t, "--store", store, "report", "--units", districts, "--import", rep.Import.ID, "--out", out2, "--draws", "99"); err != nil {
+	if out, err := execRootOut(t, "--store", store, "report", "--units", districts, "--import", rep.Import.ID, "--out", out2, "--draws", "99"); err != nil {
 		t.Fatalf("report: %v\n%s", err, out)
 	}
 	for _, name := range []string{report.FileMarkdown, report.FileHTML, report.FileJSON, report.FileUnits, report.FilePanel, report.FileChecklist} {
@@ -97,7 +85,7 @@ func TestDemoAndReport(t *testing.T) {
 	}
 	md := filepath.Join(t.TempDir(), "audit.md")
 	out3 := filepath.Join(t.TempDir(), "audit-report")
-	if out, err := runRoot(t, "--store", store, "audit", "--units", districts, "--import", rep.Import.ID, "--draws", "99", "--md", md, "--report", out3); err != nil {
+	if out, err := execRootOut(t, "--store", store, "audit", "--units", districts, "--import", rep.Import.ID, "--draws", "99", "--md", md, "--report", out3); err != nil {
 		t.Fatalf("audit --md --report: %v\n%s", err, out)
 	}
 	if b, err := os.ReadFile(md); err != nil || !bytes.HasPrefix(b, []byte("# Follow-on editing after import ")) {
@@ -107,14 +95,14 @@ func TestDemoAndReport(t *testing.T) {
 		t.Errorf("audit --report: %v", err)
 	}
 	out4 := filepath.Join(t.TempDir(), "checklist-report")
-	if out, err := runRoot(t, "--store", store, "checklist", "--units", districts, "--import", rep.Import.ID, "--report", out4); err != nil {
+	if out, err := execRootOut(t, "--store", store, "checklist", "--units", districts, "--import", rep.Import.ID, "--report", out4); err != nil {
 		t.Fatalf("checklist --report: %v\n%s", err, out)
 	}
 	if b, err := os.ReadFile(filepath.Join(out4, report.FileMarkdown)); err != nil || !bytes.Contains(b, []byte("Neglected tags")) {
 		t.Errorf("checklist --report: %v", err)
 	}
 	out5 := filepath.Join(t.TempDir(), "assess-report")
-	if out, err := runRoot(t, "--store", store, "assess", filepath.Join(dir, "proposal.geojson"), "--units", districts, "--draws", "99", "--report", out5); err != nil {
+	if out, err := execRootOut(t, "--store", store, "assess", filepath.Join(dir, "proposal.geojson"), "--units", districts, "--draws", "99", "--report", out5); err != nil {
 		t.Fatalf("assess --report: %v\n%s", err, out)
 	}
 	if b, err := os.ReadFile(filepath.Join(out5, report.FileHTML)); err != nil || !bytes.Contains(b, []byte("Proposed import")) {
@@ -135,7 +123,7 @@ func TestReportUsage(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			_, err := runRoot(t, c.args...)
+			_, err := execRootOut(t, c.args...)
 			if _, ok := err.(usageError); !ok {
 				t.Errorf("%v: err = %v, want a usage error", c.args, err)
 			}

@@ -62,21 +62,10 @@ func writeInventedPanel(t testing.TB) string {
 	return f
 }
 
-func runEstimateRoot(t testing.TB, args ...string) (string, string, error) {
-	t.Helper()
-	root := newRootCommand(newGlobalOptions())
-	var out, errb bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&errb)
-	root.SetArgs(args)
-	err := root.Execute()
-	return out.String(), errb.String(), err
-}
-
 func TestEstimateCommand(t *testing.T) {
 	panel := writeInventedPanel(t)
 	js := filepath.Join(t.TempDir(), "est.json")
-	out, _, err := runEstimateRoot(t, "estimate", "--panel", panel, "--outcome", "geometry,deletion", "--cluster", "cluster",
+	out, _, err := execRoot(t, "estimate", "--panel", panel, "--outcome", "geometry,deletion", "--cluster", "cluster",
 		"--weight", "weight", "--window-pre", "6", "--window-post", "10", "--draws", "199", "--json", js)
 	if err != nil {
 		t.Fatal(err)
@@ -135,7 +124,7 @@ func TestEstimateCommandErrors(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			_, _, err := runEstimateRoot(t, c.args...)
+			_, _, err := execRoot(t, c.args...)
 			if err == nil || !strings.Contains(err.Error(), c.want) {
 				t.Fatalf("error %v, want %q", err, c.want)
 			}

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"context"
 	"encoding/json"
 	"errors"
@@ -16,17 +15,6 @@ import (
 	"github.com/loadwake/loadwake/rules"
 	"github.com/paulmach/osm"
 )
-
-func runImportsRoot(t testing.TB, args ...string) (string, string, error) {
-	t.Helper()
-	root := newRootCommand(newGlobalOptions())
-	var out, errb bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&errb)
-	root.SetArgs(args)
-	err := root.ExecuteContext(context.Background())
-	return out.String(), errb.String(), err
-}
 
 // TestImportsCommand runs `loadwake imports` on a real way history (way
 // 6394949 with its node versions, from the osm module's testdata, copied to
@@ -78,7 +66,7 @@ func TestImportsCommand(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			out, _, err := runImportsRoot(t, append([]string{"--store", store}, tt.args...)...)
+			out, _, err := execRoot(t, append([]string{"--store", store}, tt.args...)...)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -110,24 +98,24 @@ func TestImportsCommand(t *testing.T) {
 		})
 	}
 
-	out, _, err := runImportsRoot(t, "--store", store, "imports")
+	out, _, err := execRoot(t, "--store", store, "imports")
 	if err != nil || !strings.Contains(out, "no import episodes found") || !strings.Contains(out, "import guidelines") {
 		t.Errorf("built-in rules: err %v, output:\n%s", err, out)
 	}
-	out, _, err = runImportsRoot(t, "--store", store, "imports", "--rules", tiger)
+	out, _, err = execRoot(t, "--store", store, "imports", "--rules", tiger)
 	if err != nil || !strings.Contains(out, "imp-448153") || !strings.Contains(out, "highway=residential 1") {
 		t.Errorf("table: err %v, output:\n%s", err, out)
 	}
-	if _, _, err := runImportsRoot(t, "--store", store, "imports", "--changesets", badIDs); err == nil || !strings.Contains(err.Error(), "bad.txt:1:8") {
+	if _, _, err := execRoot(t, "--store", store, "imports", "--changesets", badIDs); err == nil || !strings.Contains(err.Error(), "bad.txt:1:8") {
 		t.Errorf("bad id list: err %v, want one naming bad.txt:1:8", err)
 	}
-	if _, _, err := runImportsRoot(t, "--store", store, "imports", "--account", "nobody"); !errors.Is(err, audit.ErrNoImport) {
+	if _, _, err := execRoot(t, "--store", store, "imports", "--account", "nobody"); !errors.Is(err, audit.ErrNoImport) {
 		t.Errorf("unknown account: err %v, want ErrNoImport", err)
 	}
-	if _, _, err := runImportsRoot(t, "--store", filepath.Join(dir, "none"), "imports"); err == nil || !strings.Contains(err.Error(), "no store") {
+	if _, _, err := execRoot(t, "--store", filepath.Join(dir, "none"), "imports"); err == nil || !strings.Contains(err.Error(), "no store") {
 		t.Errorf("missing store: err %v", err)
 	}
-	if _, _, err := runImportsRoot(t, "--store", store, "imports", "extra"); !errors.As(err, new(usageError)) {
+	if _, _, err := execRoot(t, "--store", store, "imports", "extra"); !errors.As(err, new(usageError)) {
 		t.Errorf("extra argument: err %v, want a usage error", err)
 	}
 }

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"context"
 	"encoding/json"
 	"errors"
@@ -14,17 +13,6 @@ import (
 	"github.com/paulmach/osm"
 	"github.com/paulmach/osm/osmxml"
 )
-
-func runIngestRoot(t testing.TB, args ...string) (string, string, error) {
-	t.Helper()
-	root := newRootCommand(newGlobalOptions())
-	var out, errb bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&errb)
-	root.SetArgs(args)
-	err := root.ExecuteContext(context.Background())
-	return out.String(), errb.String(), err
-}
 
 // refCounts reads an OSM XML history with the reference decoder
 // github.com/paulmach/osm/osmxml v0.8.0 and counts versions and objects.
@@ -70,7 +58,7 @@ func TestIngestAndStatsCommands(t *testing.T) {
 	file := filepath.Join("..", "..", "ingest", "testdata", "way_6394949.osm")
 	versions, nodes, ways := refCounts(t, file)
 
-	out, errOut, err := runIngestRoot(t, "--store", store, "ingest", file)
+	out, errOut, err := execRoot(t, "--store", store, "ingest", file)
 	if err != nil {
 		t.Fatalf("ingest: %v\n%s", err, errOut)
 	}
@@ -80,12 +68,12 @@ func TestIngestAndStatsCommands(t *testing.T) {
 	if !strings.Contains(out, "way_6394949.osm: osm-xml") || !regexp.MustCompile(`ingested 1 files: \d+ new versions, 0 conflicts`).MatchString(out) {
 		t.Errorf("ingest output:\n%s", out)
 	}
-	out, _, err = runIngestRoot(t, "--store", store, "ingest", file)
+	out, _, err = execRoot(t, "--store", store, "ingest", file)
 	if err != nil || !strings.Contains(out, "already ingested") {
 		t.Errorf("second ingest: %v\n%s", err, out)
 	}
 
-	out, _, err = runIngestRoot(t, "--store", store, "stats", "--json")
+	out, _, err = execRoot(t, "--store", store, "stats", "--json")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -107,7 +95,7 @@ func TestIngestAndStatsCommands(t *testing.T) {
 	}
 
 	// time range: the earliest and latest timestamp attributes in the file (sort of grep -o 'timestamp="[^"]*"').
-	out, _, err = runIngestRoot(t, "--store", store, "stats")
+	out, _, err = execRoot(t, "--store", store, "stats")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -139,7 +127,7 @@ func TestIngestCommandErrors(t *testing.T) {
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			_, _, err := runIngestRoot(t, tc.args...)
+			_, _, err := execRoot(t, tc.args...)
 			if err == nil {
 				t.Fatal("no error")
 			}

@@ -1,7 +1,6 @@
 package main
 
 import (
-	"bytes"
 	"errors"
 	"os"
 	"path/filepath"
@@ -12,19 +11,8 @@ import (
 )
 
 // runRoot executes the root command with args and returns stdout, stderr and the error.
-func runRulesRoot(t testing.TB, args ...string) (string, string, error) {
-	t.Helper()
-	root := newRootCommand(newGlobalOptions())
-	var out, errb bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&errb)
-	root.SetArgs(args)
-	err := root.Execute()
-	return out.String(), errb.String(), err
-}
-
 func TestRulesShow(t *testing.T) {
-	out, _, err := runRulesRoot(t, "rules", "show")
+	out, _, err := execRoot(t, "rules", "show")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -37,7 +25,7 @@ func TestRulesShow(t *testing.T) {
 	if err := os.WriteFile(f, []byte(out), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	out2, _, err := runRulesRoot(t, "rules", "show", "--file", f)
+	out2, _, err := execRoot(t, "rules", "show", "--file", f)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -76,7 +64,7 @@ func TestRulesCheck(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
-			out, _, err := runRulesRoot(t, tt.args...)
+			out, _, err := execRoot(t, tt.args...)
 			if tt.wantErr == "" && err != nil || tt.wantErr != "" && (err == nil || !strings.Contains(err.Error(), tt.wantErr)) {
 				t.Fatalf("err = %v, want %q", err, tt.wantErr)
 			}

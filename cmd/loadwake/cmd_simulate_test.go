@@ -1,8 +1,6 @@
 package main
 
 import (
-	"bytes"
-	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -14,20 +12,9 @@ import (
 	"github.com/loadwake/loadwake/audit/sim"
 )
 
-func runSimulateRoot(t testing.TB, args ...string) (string, error) {
-	t.Helper()
-	root := newRootCommand(newGlobalOptions())
-	var out, errb bytes.Buffer
-	root.SetOut(&out)
-	root.SetErr(&errb)
-	root.SetArgs(append([]string{"simulate"}, args...))
-	err := root.ExecuteContext(context.Background())
-	return out.String(), err
-}
-
 func TestSimulateCommand(t *testing.T) {
 	dir := filepath.Join(t.TempDir(), "world")
-	out, err := runSimulateRoot(t, "--out", dir, "--seed", "3", "--cols", "4", "--rows", "3", "--months", "10",
+	out, err := execRootOut(t, "simulate", "--out", dir, "--seed", "3", "--cols", "4", "--rows", "3", "--months", "10",
 		"--treated", "4", "--cohorts", "2", "--effect-attribute", "0.6", "--dynamic", "--ramp", "4", "--diverging-pretrend")
 	if err != nil {
 		t.Fatalf("simulate: %v", err)
@@ -61,10 +48,10 @@ func TestSimulateCommand(t *testing.T) {
 		}
 	}
 	// Second run into the same folder: refused without --force, done with it.
-	if _, err := runSimulateRoot(t, "--out", dir, "--months", "3", "--treated", "1"); !errors.As(err, new(usageError)) {
+	if _, err := execRootOut(t, "simulate", "--out", dir, "--months", "3", "--treated", "1"); !errors.As(err, new(usageError)) {
 		t.Errorf("rerun without --force: %v, want a usage error", err)
 	}
-	if _, err := runSimulateRoot(t, "--out", dir, "--months", "3", "--treated", "1", "--force"); err != nil {
+	if _, err := execRootOut(t, "simulate", "--out", dir, "--months", "3", "--treated", "1", "--force"); err != nil {
 		t.Errorf("rerun with --force: %v", err)
 	}
 }
@@ -91,7 +78,7 @@ func TestSimulateBadFlags(t *testing.T) {
 			if c.name != "no out" {
 				args = append([]string{"--out", dir}, args...)
 			}
-			_, err := runSimulateRoot(t, args...)
+			_, err := execRootOut(t, append([]string{"simulate"}, args...)...)
 			if !errors.As(err, new(usageError)) {
 				t.Fatalf("err = %v, want a usage error", err)
 			}
