@@ -138,8 +138,9 @@ func TestAuditCoverage(t *testing.T) {
 	if testing.Short() {
 		t.Skip("200 simulated worlds")
 	}
-	const worlds = 200
-	covered, ran := 0, 0
+	const worlds = 40
+	cfg0 := sim.DefaultConfig()
+	covered, ran, sum := 0, 0, 0.0
 	for seed := 1; seed <= worlds; seed++ {
 		cfg := sim.DefaultConfig()
 		cfg.Seed = uint64(seed)
@@ -151,24 +152,31 @@ func TestAuditCoverage(t *testing.T) {
 		ok := t.Run(fmt.Sprint("seed", seed), func(t *testing.T) {
 			w := buildWorld(t, cfg)
 			eo := audit.DefaultEstimateOptions()
-			eo.Inference = audit.InferenceAnalytic
+			eo.Draws = 199
 			eo.Window = audit.Window{Pre: 6, Post: 12}
-			rep, err := audit.RunAudit(context.Background(), w.store, &w.eps[0], w.eps, w.units, audit.AuditOptions{Estimate: eo})
+			st, err := audit.BuildStudy(context.Background(), w.store, w.eps[0].Ref(), w.units, audit.StudyOptions{OtherImports: allChangesets(w.eps)})
 			if err != nil {
 				t.Fatal(err)
 			}
+			es, err := audit.Estimate(context.Background(), st.All, eo)
+			if err != nil {
+				t.Fatal(err)
+			}
+			rep := &audit.AuditReport{Effects: es.Effects}
 			e = effectOf(t, rep, "attribute", "ppml-twfe")
 		})
 		if !ok {
 			continue
 		}
 		ran++
+		sum += *e.RelativeEffect
 		if want := cfg.Effects.Attribute - 1; e.CI95[0] <= want && want <= e.CI95[1] {
 			covered++
 		}
 	}
 	rate := float64(covered) / float64(ran)
-	t.Logf("coverage of the planted attribute effect: %d of %d worlds (%.1f%%)", covered, ran, 100*rate)
+	t.Logf("coverage of the planted attribute effect %+.2f: %d of %d worlds (%.1f%%); mean estimate %+.3f",
+		cfg0.Effects.Attribute-1, covered, ran, 100*rate, sum/float64(ran))
 	if ran < worlds*9/10 || rate < 0.92 || rate > 0.98 {
 		t.Errorf("coverage %.3f over %d worlds, want 0.92 to 0.98", rate, ran)
 	}
