@@ -41,7 +41,7 @@ The report explains each figure in plain words, lists warnings first and ends
 with the cautions: the figures are evidence for the community's review, not a
 verdict; imports follow the community's import guidelines and local review.`,
 		Example: `  loadwake report --units districts.geojson --out review
-  loadwake report --units tiles:14 --import acct-1-2021-03 --out review`,
+  loadwake report --units tiles:14 --import imp-6143 --out review`,
 		Args: noArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error { return runReport(cmd, g, &o) },
 	}
