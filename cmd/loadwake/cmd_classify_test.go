@@ -1,15 +1,12 @@
 package main
 
 import (
-	"context"
 	"errors"
 	"os"
 	"path/filepath"
 	"regexp"
 	"strings"
 	"testing"
-
-	"github.com/loadwake/loadwake/ingest"
 )
 
 // TestClassifyCommand ingests a real way history (way 6394949 with all its
@@ -19,18 +16,7 @@ import (
 // (way v2, v3, v5) and no deletion; the file holds 33 node versions
 // (grep -c "<node") and 5 way versions.
 func TestClassifyCommand(t *testing.T) {
-	store := filepath.Join(t.TempDir(), "db")
-	st, err := ingest.Open(store, ingest.DefaultOptions())
-	if err != nil {
-		t.Fatal(err)
-	}
-	_, err = ingest.Ingest(context.Background(), st, []string{filepath.Join("..", "..", "ingest", "testdata", "way_6394949.osm")}, ingest.IngestOptions{})
-	if cerr := st.Close(); err == nil {
-		err = cerr
-	}
-	if err != nil {
-		t.Fatal(err)
-	}
+	store := ingestFixture(t, "way_6394949.osm")
 
 	out, _, err := execRoot(t, "--store", store, "classify")
 	if err != nil {

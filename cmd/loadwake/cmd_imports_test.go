@@ -1,7 +1,6 @@
 package main
 
 import (
-	"context"
 	"encoding/json"
 	"errors"
 	"os"
@@ -11,7 +10,6 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit"
-	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
 	"github.com/paulmach/osm"
 )
@@ -24,18 +22,7 @@ import (
 // source and tiger:* tags (read off the file). The file has no changeset
 // metadata and no import=yes, so the built-in rules find nothing there.
 func TestImportsCommand(t *testing.T) {
-	store := filepath.Join(t.TempDir(), "db")
-	st, err := ingest.Open(store, ingest.DefaultOptions())
-	if err != nil {
-		t.Fatal(err)
-	}
-	_, err = ingest.Ingest(context.Background(), st, []string{filepath.Join("..", "..", "ingest", "testdata", "way_6394949.osm")}, ingest.IngestOptions{})
-	if cerr := st.Close(); err == nil {
-		err = cerr
-	}
-	if err != nil {
-		t.Fatal(err)
-	}
+	store := ingestFixture(t, "way_6394949.osm")
 	dir := t.TempDir()
 	// A rule file naming the TIGER import account by id (OSM wiki, TIGER page; from memory).
 	tiger := filepath.Join(dir, "tiger.yaml")

@@ -3,7 +3,10 @@ package main
 import (
 	"bytes"
 	"context"
+	"path/filepath"
 	"testing"
+
+	"github.com/loadwake/loadwake/ingest"
 )
 
 // execRoot runs the root command with args, as a user would from a shell,
@@ -24,4 +27,23 @@ func execRootOut(t testing.TB, args ...string) (string, error) {
 	t.Helper()
 	out, _, err := execRoot(t, args...)
 	return out, err
+}
+
+// ingestFixture ingests ingest/testdata/NAME into a new store, without the
+// classification pass, and returns the store's directory.
+func ingestFixture(t testing.TB, name string) string {
+	t.Helper()
+	store := filepath.Join(t.TempDir(), "db")
+	st, err := ingest.Open(store, ingest.DefaultOptions())
+	if err != nil {
+		t.Fatal(err)
+	}
+	_, err = ingest.Ingest(context.Background(), st, []string{filepath.Join("..", "..", "ingest", "testdata", name)}, ingest.IngestOptions{})
+	if cerr := st.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		t.Fatal(err)
+	}
+	return store
 }
