@@ -173,7 +173,8 @@ type builder struct {
 	liveAtImp  []int             // per unit: live count when the import first arrived (-1 not yet)
 	classLive  []map[string]int  // per unit: features by class before the episode
 	y          map[string][]float64
-	contrib    map[[2]int64]bool // (unit*months+t, uid) seen
+	fam        map[string][]float64 // y's attribute family arrays by bare family name
+	contrib    map[[2]int64]bool    // (unit*months+t, uid) seen
 	minData    time.Time
 	maxData    time.Time
 	unlocated  int64
@@ -215,6 +216,7 @@ func BuildStudy(ctx context.Context, src layers.DerivedReader, ref ImportRef, un
 		first:   first,
 		nu:      units.Len(),
 		y:       make(map[string][]float64),
+		fam:     make(map[string][]float64),
 		contrib: make(map[[2]int64]bool),
 	}
 	b.months = monthDiff(monthOf(ref.Last), b.start) + opts.After + 1
@@ -315,13 +317,10 @@ func (b *builder) add(e *layers.Event) error {
 		b.outcome(e.Layer.String())[cell]++
 	}
 	if e.Layer == layers.Attribute {
-		seen := map[string]bool{}
-		for _, k := range e.Keys {
-			if k.Provenance || seen[k.Family] {
-				continue
+		for i, k := range e.Keys {
+			if !k.Provenance && !familyBefore(e.Keys[:i], k.Family) {
+				b.family(k.Family)[cell]++
 			}
-			seen[k.Family] = true
-			b.outcome(FamilyPrefix + k.Family)[cell]++
 		}
 	}
 	key := [2]int64{int64(cell), int64(e.UID)}
@@ -335,6 +334,28 @@ func (b *builder) add(e *layers.Event) error {
 		}
 	}
 	return nil
+}
+
+// family returns the outcome array of an attribute key family, caching it by
+// the bare family name so the per-event path builds no strings.
+func (b *builder) family(name string) []float64 {
+	v, ok := b.fam[name]
+	if !ok {
+		v = b.outcome(FamilyPrefix + name)
+		b.fam[name] = v
+	}
+	return v
+}
+
+// familyBefore reports whether an earlier attribute key of the same event
+// already counted for family.
+func familyBefore(keys []layers.KeyTouch, family string) bool {
+	for _, k := range keys {
+		if !k.Provenance && k.Family == family {
+			return true
+		}
+	}
+	return false
 }
 
 // outcomeOrder lists outcomes: the four layers, contributor counts, then
