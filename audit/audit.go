@@ -86,6 +86,26 @@ type UnitCounts struct {
 	Covariates int    `json:"covariates"`
 }
 
+// Counts tallies the study's units by role; spec says how they were given.
+func (st *Study) Counts(spec string) UnitCounts {
+	c := UnitCounts{Spec: spec, Total: len(st.Units), Outside: st.Outside, Unlocated: st.Unlocated, Covariates: len(st.Covariates)}
+	for _, u := range st.Units {
+		switch u.Status {
+		case StatusTreated:
+			c.Treated++
+		case StatusControl:
+			c.Controls++
+		case StatusDropped:
+			c.Dropped++
+		case StatusExcluded:
+			c.Excluded++
+		default:
+			c.Unmatched++
+		}
+	}
+	return c
+}
+
 // BalanceJSON is one row of the audit JSON's "balance" list.
 type BalanceJSON struct {
 	Covariate          string  `json:"covariate"`
@@ -171,21 +191,7 @@ func newAuditReport(ep *Episode, st *Study, est *Estimates, so StudyOptions, spe
 	for _, a := range ep.Accounts {
 		r.Import.Accounts = append(r.Import.Accounts, a.Name)
 	}
-	r.Units = UnitCounts{Spec: spec, Total: len(st.Units), Outside: st.Outside, Unlocated: st.Unlocated, Covariates: len(st.Covariates)}
-	for _, u := range st.Units {
-		switch u.Status {
-		case StatusTreated:
-			r.Units.Treated++
-		case StatusControl:
-			r.Units.Controls++
-		case StatusDropped:
-			r.Units.Dropped++
-		case StatusExcluded:
-			r.Units.Excluded++
-		default:
-			r.Units.Unmatched++
-		}
-	}
+	r.Units = st.Counts(spec)
 	r.Estimation.Window, r.Estimation.Draws, r.Estimation.Seed = est.Window, est.Draws, est.Seed
 	var poor []string
 	for _, b := range st.Balance {

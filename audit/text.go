@@ -9,12 +9,9 @@ import (
 
 // WriteUnitSummary prints how many units play each role in a study.
 func WriteUnitSummary(w io.Writer, st *Study) error {
-	n := map[UnitStatus]int{}
-	for _, u := range st.Units {
-		n[u.Status]++
-	}
+	c := st.Counts("")
 	_, err := fmt.Fprintf(w, "units: %d treated, %d matched controls, %d unmatched, %d dropped, %d excluded (of %d)\n",
-		n[StatusTreated], n[StatusControl], n[StatusCandidate], n[StatusDropped], n[StatusExcluded], len(st.Units))
+		c.Treated, c.Controls, c.Unmatched, c.Dropped, c.Excluded, c.Total)
 	return err
 }
 
