@@ -5,6 +5,7 @@ import (
 	"encoding/json"
 	"fmt"
 	"io"
+	"slices"
 	"sort"
 	"strings"
 
@@ -155,16 +156,19 @@ type AuditOptions struct {
 	UnitSpec string          // how the units were given, for the report
 }
 
+// StudyImport builds the study of episode ep over units, keeping the units
+// that any other of the detected episodes all edited out of the controls.
+func StudyImport(ctx context.Context, src layers.DerivedReader, ep *Episode, all []Episode, units UnitIndex, so StudyOptions) (*Study, error) {
+	so.OtherImports = append(slices.Clone(so.OtherImports), otherChangesets(ep.ID, all)...)
+	return BuildStudy(ctx, src, ep.Ref(), units, so)
+}
+
 // RunAudit builds the study of episode ep (its matched panel) and estimates
 // every outcome. others are all detected episodes: units they edited are not
 // clean controls.
 func RunAudit(ctx context.Context, src Source, ep *Episode, others []Episode, units UnitIndex, opts AuditOptions) (*AuditReport, error) {
-	so := opts.Study
-	for _, o := range others {
-		so.OtherImports = append(so.OtherImports, o.Changesets...)
-	}
-	so = so.withDefaults()
-	st, err := BuildStudy(ctx, src, ep.Ref(), units, so)
+	so := opts.Study.withDefaults()
+	st, err := StudyImport(ctx, src, ep, others, units, so)
 	if err != nil {
 		return nil, err
 	}

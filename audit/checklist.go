@@ -715,13 +715,11 @@ func MarkdownEscape(s string) string {
 // study of ep over units (the changesets of the other detected imports kept
 // out of the controls and of the references) and its checklist.
 func RunChecklist(ctx context.Context, src Source, r *rules.RuleSet, ep *Episode, all []Episode, units UnitIndex, so StudyOptions, co ChecklistOptions) (*Checklist, error) {
-	others := otherChangesets(ep.ID, all)
-	so.OtherImports = append(slices.Clone(so.OtherImports), others...)
-	st, err := BuildStudy(ctx, src, ep.Ref(), units, so)
+	st, err := StudyImport(ctx, src, ep, all, units, so)
 	if err != nil {
 		return nil, fmt.Errorf("import %s: %w", ep.ID, err)
 	}
-	co.OtherImports = append(slices.Clone(co.OtherImports), others...)
+	co.OtherImports = append(slices.Clone(co.OtherImports), otherChangesets(ep.ID, all)...)
 	return BuildChecklist(ctx, src, r, st, units, co)
 }
 

@@ -50,11 +50,7 @@ func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
 		return err
 	}
 	defer in.store.Close()
-	so := o.study.studyOptions()
-	for _, e := range in.all {
-		so.OtherImports = append(so.OtherImports, e.Changesets...)
-	}
-	st, err := audit.BuildStudy(cmd.Context(), in.store, in.episode.Ref(), in.units, so)
+	st, err := audit.StudyImport(cmd.Context(), in.store, in.episode, in.all, in.units, o.study.studyOptions())
 	if err != nil {
 		return err
 	}
