@@ -2,7 +2,7 @@ package main
 
 import (
 	"fmt"
-	"os"
+	"io"
 
 	"github.com/spf13/cobra"
 
@@ -72,15 +72,7 @@ func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
 	if o.all {
 		p = st.All
 	}
-	f, err := os.Create(o.csv)
-	if err != nil {
-		return err
-	}
-	if err := audit.WritePanelCSV(f, p); err != nil {
-		f.Close()
-		return fmt.Errorf("write %s: %w", o.csv, err)
-	}
-	if err := f.Close(); err != nil {
+	if err := writeFile(o.csv, func(w io.Writer) error { return audit.WritePanelCSV(w, p) }); err != nil {
 		return err
 	}
 	fmt.Fprintf(out, "wrote %s: %d units x %d months\n", o.csv, len(p.Units), p.Months)
