@@ -9,6 +9,12 @@ import (
 	"sort"
 	"strings"
 
+	"github.com/loadwake/loadwake/audit/checklist"
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/match"
+	"github.com/loadwake/loadwake/audit/proposal"
+	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
 )
@@ -16,95 +22,26 @@ import (
 // Source is everything an audit reads from the store: changesets and versions
 // for import detection, and the classified events. *ingest.Store meets it.
 type Source interface {
-	HistorySource
+	episode.Source
 	layers.DerivedReader
 }
 
-// SchemaAudit names the version of the audit JSON contract (README, "The
+// Schema names the version of the audit JSON contract (README, "The
 // audit JSON").
-const SchemaAudit = "loadwake-audit/1"
-
-// Ref returns what a study needs to know of the episode.
-func (e *Episode) Ref() ImportRef {
-	r := ImportRef{ID: e.ID, Changesets: e.Changesets, First: e.First, Last: e.Last}
-	for _, a := range e.Accounts {
-		r.UIDs = append(r.UIDs, a.UID)
-		r.Accounts = append(r.Accounts, a.Name)
-	}
-	return r
-}
-
-// FindEpisode returns the episode with the given id. An empty id picks the only
-// episode when there is exactly one. The error of an unknown id lists the known
-// ones.
-func FindEpisode(eps []Episode, id string) (*Episode, error) {
-	if id == "" && len(eps) == 1 {
-		return &eps[0], nil
-	}
-	for i := range eps {
-		if eps[i].ID == id {
-			return &eps[i], nil
-		}
-	}
-	known := make([]string, len(eps))
-	for i, e := range eps {
-		known[i] = e.ID
-	}
-	switch {
-	case len(eps) == 0:
-		return nil, fmt.Errorf("%w: the store holds no detected import; name one with --changesets or --account", ErrNoImport)
-	case id == "":
-		return nil, fmt.Errorf("%w: choose one with --import: %s", ErrNoImport, strings.Join(known, ", "))
-	}
-	return nil, fmt.Errorf("%w: %q; known imports: %s", ErrNoImport, id, strings.Join(known, ", "))
-}
+const Schema = "loadwake-audit/1"
 
 // ImportSummary is the "import" object of the audit JSON.
 type ImportSummary struct {
-	ID         string       `json:"id"`
-	Accounts   []string     `json:"accounts"`
-	Changesets int          `json:"changesets"`
-	FirstMonth string       `json:"first_month"`
-	LastMonth  string       `json:"last_month"`
-	Created    int          `json:"created"`
-	Modified   int          `json:"modified"`
-	Deleted    int          `json:"deleted"`
-	Classes    []ClassCount `json:"classes"`
-	Matchers   []string     `json:"matchers"`
-}
-
-// UnitCounts is the "units" object of the audit JSON.
-type UnitCounts struct {
-	Spec       string `json:"spec"`
-	Total      int    `json:"total"`
-	Treated    int    `json:"treated"`
-	Controls   int    `json:"controls"`
-	Dropped    int    `json:"dropped"`
-	Excluded   int    `json:"excluded"`
-	Unmatched  int    `json:"unmatched"`
-	Outside    int64  `json:"events_outside_units"`
-	Unlocated  int64  `json:"events_without_location"`
-	Covariates int    `json:"covariates"`
-}
-
-// Counts tallies the study's units by role; spec says how they were given.
-func (st *Study) Counts(spec string) UnitCounts {
-	c := UnitCounts{Spec: spec, Total: len(st.Units), Outside: st.Outside, Unlocated: st.Unlocated, Covariates: len(st.Covariates)}
-	for _, u := range st.Units {
-		switch u.Status {
-		case StatusTreated:
-			c.Treated++
-		case StatusControl:
-			c.Controls++
-		case StatusDropped:
-			c.Dropped++
-		case StatusExcluded:
-			c.Excluded++
-		default:
-			c.Unmatched++
-		}
-	}
-	return c
+	ID         string               `json:"id"`
+	Accounts   []string             `json:"accounts"`
+	Changesets int                  `json:"changesets"`
+	FirstMonth string               `json:"first_month"`
+	LastMonth  string               `json:"last_month"`
+	Created    int                  `json:"created"`
+	Modified   int                  `json:"modified"`
+	Deleted    int                  `json:"deleted"`
+	Classes    []episode.ClassCount `json:"classes"`
+	Matchers   []string             `json:"matchers"`
 }
 
 // BalanceJSON is one row of the audit JSON's "balance" list.
@@ -119,74 +56,67 @@ type BalanceJSON struct {
 	FlagAfter          bool    `json:"imbalanced_after"`
 }
 
-// AuditReport is the audit of one import: the contract written by `loadwake
+// Report is the audit of one import: the contract written by `loadwake
 // audit --json` and as report.json. Field names and meanings are documented
 // in the README; new fields may be added, existing ones keep their meaning
 // while Schema stays the same.
-type AuditReport struct {
-	Schema     string          `json:"schema"`
-	Import     ImportSummary   `json:"import"`
-	Window     [2]string       `json:"window"` // first and last panel month, YYYY-MM
-	Before     int             `json:"before_months"`
-	After      int             `json:"after_months"`
-	Units      UnitCounts      `json:"units"`
-	Effects    []Effect        `json:"effects"`
-	EventStudy []EventStudyRow `json:"event_study"`
-	ByCohort   []CohortRow     `json:"by_cohort"`
-	Placebo    []PlaceboRow    `json:"placebo"`
-	Balance    []BalanceJSON   `json:"balance"`
+type Report struct {
+	Schema     string              `json:"schema"`
+	Import     ImportSummary       `json:"import"`
+	Window     [2]string           `json:"window"` // first and last panel month, YYYY-MM
+	Before     int                 `json:"before_months"`
+	After      int                 `json:"after_months"`
+	Units      study.UnitCounts    `json:"units"`
+	Effects    []did.Effect        `json:"effects"`
+	EventStudy []did.EventStudyRow `json:"event_study"`
+	ByCohort   []did.CohortRow     `json:"by_cohort"`
+	Placebo    []did.PlaceboRow    `json:"placebo"`
+	Balance    []BalanceJSON       `json:"balance"`
 	Estimation struct {
-		Window Window `json:"event_window"`
-		Draws  int    `json:"bootstrap_draws"`
-		Seed   uint64 `json:"seed"`
+		Window did.Window `json:"event_window"`
+		Draws  int        `json:"bootstrap_draws"`
+		Seed   uint64     `json:"seed"`
 	} `json:"estimation"`
-	Warnings []string   `json:"warnings"`
-	Notes    []string   `json:"notes"`
-	Cautions []string   `json:"cautions"`
-	UnitList []UnitInfo `json:"unit_list"`
+	Warnings []string         `json:"warnings"`
+	Notes    []string         `json:"notes"`
+	Cautions []string         `json:"cautions"`
+	UnitList []study.UnitInfo `json:"unit_list"`
 
 	// Study is the panel behind the report, for charts and exports; not in JSON.
-	Study *Study `json:"-"`
+	Study *study.Study `json:"-"`
 }
 
-// AuditOptions configures RunAudit.
-type AuditOptions struct {
-	Study    StudyOptions
-	Estimate EstimateOptions // zero value: DefaultEstimateOptions with the study's window
-	UnitSpec string          // how the units were given, for the report
+// Options configures Run.
+type Options struct {
+	Study    study.Options
+	Estimate did.Options // zero value: did.DefaultOptions with the study's window
+	UnitSpec string      // how the units were given, for the report
 }
 
-// StudyImport builds the study of episode ep over units, keeping the units
-// that any other of the detected episodes all edited out of the controls.
-func StudyImport(ctx context.Context, src layers.DerivedReader, ep *Episode, all []Episode, units UnitIndex, so StudyOptions) (*Study, error) {
-	so.OtherImports = append(slices.Clone(so.OtherImports), otherChangesets(ep.ID, all)...)
-	return BuildStudy(ctx, src, ep.Ref(), units, so)
-}
-
-// RunAudit builds the study of episode ep (its matched panel) and estimates
+// Run builds the study of episode ep (its matched panel) and estimates
 // every outcome. others are all detected episodes: units they edited are not
 // clean controls.
-func RunAudit(ctx context.Context, src Source, ep *Episode, others []Episode, units UnitIndex, opts AuditOptions) (*AuditReport, error) {
-	so := opts.Study.withDefaults()
-	st, err := StudyImport(ctx, src, ep, others, units, so)
+func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.Episode, units study.UnitIndex, opts Options) (*Report, error) {
+	so := opts.Study.WithDefaults()
+	st, err := study.ForEpisode(ctx, src, ep, others, units, so)
 	if err != nil {
 		return nil, err
 	}
 	eo := opts.Estimate
 	if eo.Draws == 0 {
-		def := DefaultEstimateOptions()
-		def.Window = Window{Pre: min(so.Before, 12), Post: so.After}
+		def := did.DefaultOptions()
+		def.Window = did.Window{Pre: min(so.Before, 12), Post: so.After}
 		eo = def
 	}
-	est, err := Estimate(ctx, st.Panel, eo)
+	est, err := did.Estimate(ctx, st.Panel, eo)
 	if err != nil {
 		return nil, fmt.Errorf("estimate: %w", err)
 	}
-	return newAuditReport(ep, st, est, so, opts.UnitSpec), nil
+	return newReport(ep, st, est, so, opts.UnitSpec), nil
 }
 
-func newAuditReport(ep *Episode, st *Study, est *Estimates, so StudyOptions, spec string) *AuditReport {
-	r := &AuditReport{Schema: SchemaAudit, Window: st.Window, Before: so.Before, After: so.After,
+func newReport(ep *episode.Episode, st *study.Study, est *did.Estimates, so study.Options, spec string) *Report {
+	r := &Report{Schema: Schema, Window: st.Window, Before: so.Before, After: so.After,
 		Effects: est.Effects, EventStudy: est.EventStudy, ByCohort: est.ByCohort, Placebo: est.Placebo, Study: st,
 		Warnings: []string{}, Notes: append([]string{}, st.Notes...), UnitList: st.Units}
 	r.Import = ImportSummary{ID: ep.ID, Changesets: len(ep.Changesets), FirstMonth: ep.FirstMonth,
@@ -208,7 +138,7 @@ func newAuditReport(ep *Episode, st *Study, est *Estimates, so StudyOptions, spe
 	}
 	if len(poor) > 0 {
 		r.Warnings = append(r.Warnings, fmt.Sprintf("poor balance after matching (|SMD| >= %.1f, Austin 2009) on: %s; matched controls differ from import areas before the import",
-			BalanceThreshold, strings.Join(poor, ", ")))
+			match.BalanceThreshold, strings.Join(poor, ", ")))
 	}
 	r.Warnings = append(r.Warnings, est.Warnings...)
 	if st.Outside > 0 {
@@ -217,12 +147,12 @@ func newAuditReport(ep *Episode, st *Study, est *Estimates, so StudyOptions, spe
 	if st.Unlocated > 0 {
 		r.Notes = append(r.Notes, fmt.Sprintf("%d events had no location (missing nodes) and were not counted", st.Unlocated))
 	}
-	r.Cautions = append(append([]string{}, est.Cautions...), AuditCautions...)
+	r.Cautions = append(append([]string{}, est.Cautions...), Cautions...)
 	return r
 }
 
-// AuditCautions close every audit: what the figures can and cannot carry.
-var AuditCautions = []string{
+// Cautions close every audit: what the figures can and cannot carry.
+var Cautions = []string{
 	"An import changes the map for every mapper nearby: read these figures with the local community, and follow the community's import guidelines (documentation, licence compatible with the ODbL, discussion, a dedicated account) and local review before any upload.",
 }
 
@@ -236,7 +166,7 @@ func orZero(x float64) float64 {
 }
 
 // WriteJSON writes the report as indented JSON.
-func (r *AuditReport) WriteJSON(w io.Writer) error {
+func (r *Report) WriteJSON(w io.Writer) error {
 	enc := json.NewEncoder(w)
 	enc.SetIndent("", "  ")
 	return enc.Encode(r)
@@ -244,9 +174,9 @@ func (r *AuditReport) WriteJSON(w io.Writer) error {
 
 // LayerEffects returns the effects of the four layers, in layer order and then
 // estimator order (cs-att, ppml-twfe, twfe-linear, did-2x2).
-func (r *AuditReport) LayerEffects() []Effect {
+func (r *Report) LayerEffects() []did.Effect {
 	order := map[string]int{"cs-att": 0, "ppml-twfe": 1, "twfe-linear": 2, "did-2x2": 3}
-	var out []Effect
+	var out []did.Effect
 	for _, l := range layers.Layers {
 		for _, e := range r.Effects {
 			if e.Layer == l.String() {
@@ -265,52 +195,82 @@ func (r *AuditReport) LayerEffects() []Effect {
 	return out
 }
 
-// DetectAndFind detects the store's imports with the rules (or takes the one
-// the user named) and returns all episodes and the chosen one.
-func DetectAndFind(ctx context.Context, src HistorySource, r *rules.RuleSet, opts DetectOptions, id string) ([]Episode, *Episode, error) {
-	var all []Episode
-	var err error
-	if opts.manual() {
-		named, err := DetectImports(ctx, src, r, opts)
-		if err != nil {
-			return nil, nil, err
-		}
-		all, err = DetectImports(ctx, src, r, DetectOptions{})
-		if err != nil {
-			return nil, nil, err
-		}
-		if len(named) == 0 {
-			return nil, nil, fmt.Errorf("%w: the named changesets or account hold nothing", ErrNoImport)
-		}
-		return append(all, named[0]), &named[0], nil
-	}
-	all, err = DetectImports(ctx, src, r, opts)
-	if err != nil {
-		return nil, nil, err
-	}
-	ep, err := FindEpisode(all, id)
-	if err != nil {
-		return nil, nil, err
-	}
-	return all, ep, nil
-}
-
-// HeadlineEstimator is the estimator reports lead with. Edit counts are skewed
-// counts whose trends are multiplicative (busy areas gain and lose in
-// proportion), so a comparison in levels can fail parallel trends where one in
-// ratios holds; Poisson pseudo-maximum-likelihood with unit and month fixed
-// effects, each cohort stacked with clean controls, estimates the ratio
-// directly (Santos Silva & Tenreyro 2006; Wooldridge 1999) and recovers the
-// simulator's planted effects (TestAuditRecoversPlantedEffects). The other
-// estimators stay in every report as checks.
-const HeadlineEstimator = "ppml-twfe"
-
 // Headline returns the headline estimator's effect for a layer or outcome.
-func (r *AuditReport) Headline(layer string) (Effect, bool) {
+func (r *Report) Headline(layer string) (did.Effect, bool) {
 	for _, e := range r.Effects {
-		if e.Layer == layer && e.Estimator == HeadlineEstimator {
+		if e.Layer == layer && e.Estimator == did.Headline {
 			return e, true
 		}
 	}
-	return Effect{}, false
+	return did.Effect{}, false
+}
+
+// ChecklistOf is the whole checklist step for one detected import: the
+// study of ep over units (the changesets of the other detected imports kept
+// out of the controls and of the references) and its checklist.
+func ChecklistOf(ctx context.Context, src Source, r *rules.RuleSet, ep *episode.Episode, all []episode.Episode, units study.UnitIndex, so study.Options, co checklist.Options) (*checklist.Checklist, error) {
+	st, err := study.ForEpisode(ctx, src, ep, all, units, so)
+	if err != nil {
+		return nil, fmt.Errorf("import %s: %w", ep.ID, err)
+	}
+	co.OtherImports = append(slices.Clone(co.OtherImports), study.OtherChangesets(ep.ID, all)...)
+	return checklist.Build(ctx, src, r, st, units, co)
+}
+
+// PastOptions configures AssessPast.
+type PastOptions struct {
+	Units     study.UnitIndex // spatial units of the past imports' studies
+	Audit     Options
+	Checklist checklist.Options
+	// Episodes are every detected import (their changesets are kept out of
+	// controls); nil means episode.Detect with the rules.
+	Episodes []episode.Episode
+}
+
+// AssessPast audits each of the assessment's nearest past imports — Run and the
+// checklist of the same study, as `loadwake audit` and `loadwake checklist`
+// do — and adds the results with AddPastAudits. An import that cannot be
+// audited (no controls, no pre-period, ...) is named in the notes and
+// skipped.
+func AssessPast(ctx context.Context, a *proposal.Assessment, src Source, r *rules.RuleSet, opts PastOptions) error {
+	if opts.Units == nil {
+		return fmt.Errorf("%w: no units for the past imports' studies", study.ErrStudy)
+	}
+	eps := opts.Episodes
+	if eps == nil {
+		var err error
+		if eps, err = episode.Detect(ctx, src, r, episode.Options{}); err != nil {
+			return fmt.Errorf("audit: assess: %w", err)
+		}
+	}
+	effects := map[string][]did.Effect{}
+	checklists := map[string]*checklist.Checklist{}
+	for _, m := range a.Nearest {
+		if err := ctx.Err(); err != nil {
+			return err
+		}
+		ep := m.Episode
+		var others []episode.Episode
+		for _, e := range eps {
+			if e.ID != ep.ID {
+				others = append(others, e)
+			}
+		}
+		rep, err := Run(ctx, src, &ep, others, opts.Units, opts.Audit)
+		if err != nil {
+			a.Notes = append(a.Notes, fmt.Sprintf("past import %s not audited: %v", ep.ID, err))
+			continue
+		}
+		effects[ep.ID] = rep.Effects
+		co := opts.Checklist
+		co.OtherImports = append(slices.Clone(co.OtherImports), study.OtherChangesets(ep.ID, eps)...)
+		cl, err := checklist.Build(ctx, src, r, rep.Study, opts.Units, co)
+		if err != nil {
+			a.Notes = append(a.Notes, fmt.Sprintf("past import %s: no checklist: %v", ep.ID, err))
+			continue
+		}
+		checklists[ep.ID] = cl
+	}
+	a.AddPastAudits(effects, checklists)
+	return nil
 }

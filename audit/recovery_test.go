@@ -7,29 +7,32 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/internal/worldtest"
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/rules"
 )
 
 // auditWhole audits every planted import of a simulated world as one import
 // (the changesets of truth.json), so that all treated districts count.
-func auditWhole(tb testing.TB, w *simWorld, draws int) *audit.AuditReport {
+func auditWhole(tb testing.TB, w *worldtest.World, draws int) *audit.Report {
 	tb.Helper()
 	ctx := context.Background()
-	named, err := audit.DetectImports(ctx, w.store, rules.Default(), audit.DetectOptions{Changesets: w.truth.ImportChangesets})
+	named, err := episode.Detect(ctx, w.Store, rules.Default(), episode.Options{Changesets: w.Truth.ImportChangesets})
 	if err != nil {
 		tb.Fatal(err)
 	}
-	eo := audit.DefaultEstimateOptions()
+	eo := did.DefaultOptions()
 	eo.Draws = draws
-	rep, err := audit.RunAudit(ctx, w.store, &named[0], w.eps, w.units, audit.AuditOptions{Estimate: eo})
+	rep, err := audit.Run(ctx, w.Store, &named[0], w.Episodes, w.Units, audit.Options{Estimate: eo})
 	if err != nil {
 		tb.Fatal(err)
 	}
 	return rep
 }
 
-func effectOf(tb testing.TB, rep *audit.AuditReport, layer, estimator string) audit.Effect {
+func effectOf(tb testing.TB, rep *audit.Report, layer, estimator string) did.Effect {
 	tb.Helper()
 	for _, e := range rep.Effects {
 		if e.Layer == layer && e.Estimator == estimator {
@@ -40,7 +43,7 @@ func effectOf(tb testing.TB, rep *audit.AuditReport, layer, estimator string) au
 		}
 	}
 	tb.Fatalf("no %s effect for %s; warnings: %v", estimator, layer, rep.Warnings)
-	return audit.Effect{}
+	return did.Effect{}
 }
 
 // TestAuditRecoversPlantedEffects is the check that matters most: on the
@@ -55,13 +58,13 @@ func TestAuditRecoversPlantedEffects(t *testing.T) {
 	if testing.Short() {
 		t.Skip("simulates, ingests and audits a world")
 	}
-	w := buildWorld(t, sim.DefaultConfig())
+	w := worldtest.Build(t, sim.DefaultConfig())
 	rep := auditWhole(t, w, 499)
 	truth := map[string]float64{
-		"geometry":    w.truth.Effects.Geometry - 1,
-		"attribute":   w.truth.Effects.Attribute - 1,
-		"new_feature": w.truth.Effects.NewFeature - 1,
-		"deletion":    w.truth.Effects.Deletion - 1,
+		"geometry":    w.Truth.Effects.Geometry - 1,
+		"attribute":   w.Truth.Effects.Attribute - 1,
+		"new_feature": w.Truth.Effects.NewFeature - 1,
+		"deletion":    w.Truth.Effects.Deletion - 1,
 	}
 	for layer, want := range truth {
 		e := effectOf(t, rep, layer, "ppml-twfe")
@@ -74,8 +77,8 @@ func TestAuditRecoversPlantedEffects(t *testing.T) {
 			t.Errorf("%s: estimate %+.3f more than 0.05 from the planted %+.3f", layer, got, want)
 		}
 	}
-	if rep.Units.Treated != countTreated(w.truth) {
-		t.Errorf("%d treated units, truth.json plants %d", rep.Units.Treated, countTreated(w.truth))
+	if rep.Units.Treated != countTreated(w.Truth) {
+		t.Errorf("%d treated units, truth.json plants %d", rep.Units.Treated, countTreated(w.Truth))
 	}
 }
 
@@ -98,7 +101,7 @@ func TestAuditNullWorld(t *testing.T) {
 	cfg := sim.DefaultConfig()
 	cfg.Seed = 5
 	cfg.Effects = sim.Effects{Geometry: 1, Attribute: 1, NewFeature: 1, Deletion: 1}
-	w := buildWorld(t, cfg)
+	w := worldtest.Build(t, cfg)
 	rep := auditWhole(t, w, 499)
 	for _, layer := range []string{"geometry", "attribute", "new_feature", "deletion"} {
 		e := effectOf(t, rep, layer, "ppml-twfe")
@@ -117,7 +120,7 @@ func TestAuditFlagsDivergingTrends(t *testing.T) {
 	}
 	cfg := sim.DefaultConfig()
 	cfg.TrendSelection = true
-	w := buildWorld(t, cfg)
+	w := worldtest.Build(t, cfg)
 	rep := auditWhole(t, w, 499)
 	flagged := 0
 	for _, layer := range []string{"geometry", "attribute", "new_feature"} {
@@ -158,13 +161,13 @@ func TestAuditCoverage(t *testing.T) {
 		cfg.Treated, cfg.Waves = 8, 2
 		cfg.ImportAccounts = 1
 		cfg.Scale = 0.5
-		var e audit.Effect
+		var e did.Effect
 		ok := t.Run(fmt.Sprint("seed", seed), func(t *testing.T) {
-			w := buildWorld(t, cfg)
-			eo := audit.DefaultEstimateOptions()
+			w := worldtest.Build(t, cfg)
+			eo := did.DefaultOptions()
 			eo.Draws = 199
-			eo.Window = audit.Window{Pre: 6, Post: 12}
-			rep, err := audit.RunAudit(context.Background(), w.store, &w.eps[0], w.eps, w.units, audit.AuditOptions{Estimate: eo})
+			eo.Window = did.Window{Pre: 6, Post: 12}
+			rep, err := audit.Run(context.Background(), w.Store, &w.Episodes[0], w.Episodes, w.Units, audit.Options{Estimate: eo})
 			if err != nil {
 				t.Fatal(err)
 			}

@@ -5,10 +5,14 @@ import (
 	"io"
 	"math"
 	"text/tabwriter"
+
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/match"
+	"github.com/loadwake/loadwake/audit/study"
 )
 
 // WriteUnitSummary prints how many units play each role in a study.
-func WriteUnitSummary(w io.Writer, st *Study) error {
+func WriteUnitSummary(w io.Writer, st *study.Study) error {
 	c := st.Counts("")
 	_, err := fmt.Fprintf(w, "units: %d treated, %d matched controls, %d unmatched, %d dropped, %d excluded (of %d)\n",
 		c.Treated, c.Controls, c.Unmatched, c.Dropped, c.Excluded, c.Total)
@@ -17,7 +21,7 @@ func WriteUnitSummary(w io.Writer, st *Study) error {
 
 // WriteBalance prints the balance table: standardized mean differences of
 // each covariate before and after matching, flagged at |SMD| >= 0.1.
-func WriteBalance(w io.Writer, rows []BalanceRow) error {
+func WriteBalance(w io.Writer, rows []match.BalanceRow) error {
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
 	fmt.Fprintln(tw, "COVARIATE\tMEAN TREATED\tMEAN CONTROL\tSMD BEFORE\tSMD AFTER\t")
 	for _, b := range rows {
@@ -33,7 +37,7 @@ func WriteBalance(w io.Writer, rows []BalanceRow) error {
 // WriteEffects prints one short table per layer: each estimator's relative
 // effect with its 95% interval, the ATT, p-value, pre-trend p-value, method
 // and unit counts.
-func (r *AuditReport) WriteEffects(w io.Writer) error {
+func (r *Report) WriteEffects(w io.Writer) error {
 	tw := tabwriter.NewWriter(w, 0, 4, 2, ' ', 0)
 	last := ""
 	for _, e := range r.LayerEffects() {
@@ -62,7 +66,7 @@ func upper(s string) string {
 
 // relText formats a relative effect and its interval as percentages, or the
 // ATT interval when no relative effect was given.
-func relText(e Effect) string {
+func relText(e did.Effect) string {
 	if e.RelativeEffect == nil {
 		return fmt.Sprintf("n/a (ATT CI %+.2f to %+.2f)", e.CI95[0], e.CI95[1])
 	}

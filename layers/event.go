@@ -121,3 +121,14 @@ type Event struct {
 	Location  orb.Point // lon, lat
 	Located   bool      // false when no position could be found
 }
+
+// Feature returns the object the event belongs to, without its version.
+func (e *Event) Feature() osm.FeatureID {
+	switch e.Object.Type() {
+	case osm.TypeNode:
+		return osm.NodeID(e.Object.Ref()).FeatureID()
+	case osm.TypeWay:
+		return osm.WayID(e.Object.Ref()).FeatureID()
+	}
+	return osm.RelationID(e.Object.Ref()).FeatureID()
+}

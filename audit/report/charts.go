@@ -19,6 +19,9 @@ import (
 	"gonum.org/v1/plot/vg/draw"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/match"
+	"github.com/loadwake/loadwake/audit/study"
 )
 
 // Colours of the Okabe–Ito palette (Okabe & Ito 2008, "Color Universal
@@ -37,30 +40,30 @@ var (
 )
 
 // statusColour is the map fill of each unit role.
-func statusColour(s audit.UnitStatus) color.Color {
+func statusColour(s study.UnitStatus) color.Color {
 	switch s {
-	case audit.StatusTreated:
+	case study.StatusTreated:
 		return okVermilion
-	case audit.StatusControl:
+	case study.StatusControl:
 		return okBlue
-	case audit.StatusDropped:
+	case study.StatusDropped:
 		return okPurple
-	case audit.StatusExcluded:
+	case study.StatusExcluded:
 		return okOrange
 	}
 	return okGrey
 }
 
 // statusLabel is the legend text of each unit role.
-func statusLabel(s audit.UnitStatus) string {
+func statusLabel(s study.UnitStatus) string {
 	switch s {
-	case audit.StatusTreated:
+	case study.StatusTreated:
 		return "import area (treated)"
-	case audit.StatusControl:
+	case study.StatusControl:
 		return "matched comparison area"
-	case audit.StatusDropped:
+	case study.StatusDropped:
 		return "import area left out (no match)"
-	case audit.StatusExcluded:
+	case study.StatusExcluded:
 		return "excluded (other or light import)"
 	}
 	return "unused untouched area"
@@ -127,7 +130,7 @@ func tidySVG(b []byte, label string) []byte {
 // chartEstimator picks the estimator whose event study a layer's chart shows:
 // the linear event study (it has a fixed reference month), else cs-att, else
 // whatever is there.
-func chartEstimator(rows []audit.EventStudyRow, layer string) string {
+func chartEstimator(rows []did.EventStudyRow, layer string) string {
 	have := map[string]bool{}
 	for _, r := range rows {
 		if r.Layer == layer {
@@ -155,12 +158,12 @@ func chartEstimator(rows []audit.EventStudyRow, layer string) string {
 // vertical line where the import arrives (event time 0) and the reference
 // month marked. ok is false when the audit has no event-study rows for the
 // layer.
-func EventStudySVG(rows []audit.EventStudyRow, layer string) (svg []byte, ok bool, err error) {
+func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool, err error) {
 	est := chartEstimator(rows, layer)
 	if est == "" {
 		return nil, false, nil
 	}
-	var sel []audit.EventStudyRow
+	var sel []did.EventStudyRow
 	for _, r := range rows {
 		if r.Layer == layer && r.Estimator == est {
 			sel = append(sel, r)
@@ -260,7 +263,7 @@ func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
 	}
 	lim *= 1.1
 	top := float64(len(rows)) - 0.5 + 1.2 // room for the legend
-	for _, x := range []float64{-audit.BalanceThreshold, audit.BalanceThreshold} {
+	for _, x := range []float64{-match.BalanceThreshold, match.BalanceThreshold} {
 		l, _ := plotter.NewLine(plotter.XYs{{X: x, Y: -0.5}, {X: x, Y: top}})
 		l.Color = okGreen
 		l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
@@ -314,7 +317,7 @@ func clampSMD(x float64) float64 {
 	return x
 }
 
-// Shapes are the unit geometries a map draws. *audit.Units meets it.
+// Shapes are the unit geometries a map draws. *spatial.Units meets it.
 type Shapes interface {
 	Len() int
 	ID(i int) string
@@ -380,11 +383,11 @@ func kmText(km float64) string {
 // MapSVG draws the units coloured by their role in the study, with a legend
 // and a scale bar in kilometres, in an equirectangular projection scaled by
 // the cosine of the mid latitude. ok is false when there is nothing to draw.
-func MapSVG(shapes Shapes, list []audit.UnitInfo) (svg []byte, ok bool, err error) {
+func MapSVG(shapes Shapes, list []study.UnitInfo) (svg []byte, ok bool, err error) {
 	if shapes == nil || shapes.Len() == 0 {
 		return nil, false, nil
 	}
-	status := make(map[string]audit.UnitStatus, len(list))
+	status := make(map[string]study.UnitStatus, len(list))
 	for _, u := range list {
 		status[u.ID] = u.Status
 	}
@@ -407,9 +410,9 @@ func MapSVG(shapes Shapes, list []audit.UnitInfo) (svg []byte, ok bool, err erro
 	pr := newProjection((b.Min[1] + b.Max[1]) / 2)
 	p := newPlot("Areas in the study")
 	p.HideAxes()
-	seen := map[audit.UnitStatus]bool{}
+	seen := map[study.UnitStatus]bool{}
 	// Import areas are drawn last, so that overlapping units never hide them.
-	rank := map[audit.UnitStatus]int{audit.StatusCandidate: 0, audit.StatusExcluded: 1, audit.StatusDropped: 2, audit.StatusControl: 3, audit.StatusTreated: 4}
+	rank := map[study.UnitStatus]int{study.StatusCandidate: 0, study.StatusExcluded: 1, study.StatusDropped: 2, study.StatusControl: 3, study.StatusTreated: 4}
 	order := make([]int, shapes.Len())
 	for i := range order {
 		order[i] = i
@@ -440,7 +443,7 @@ func MapSVG(shapes Shapes, list []audit.UnitInfo) (svg []byte, ok bool, err erro
 			}
 		}
 	}
-	for _, s := range []audit.UnitStatus{audit.StatusTreated, audit.StatusControl, audit.StatusCandidate, audit.StatusExcluded, audit.StatusDropped} {
+	for _, s := range []study.UnitStatus{study.StatusTreated, study.StatusControl, study.StatusCandidate, study.StatusExcluded, study.StatusDropped} {
 		if seen[s] {
 			th, _ := plotter.NewPolygon(plotter.XYs{{X: 0, Y: 0}, {X: 1, Y: 0}, {X: 1, Y: 1}})
 			th.Color = statusColour(s)

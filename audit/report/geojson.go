@@ -9,6 +9,7 @@ import (
 	"github.com/paulmach/orb/geojson"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/layers"
 )
 
@@ -20,11 +21,11 @@ import (
 // (cs_att_relative_attribute, ...): the import's relative effect in that layer
 // (the same for every unit; null when not estimated), so a map can label
 // import areas with it.
-func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.AuditReport) error {
+func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.Report) error {
 	if shapes == nil {
 		return fmt.Errorf("%w: no units", ErrInput)
 	}
-	info := map[string]audit.UnitInfo{}
+	info := map[string]study.UnitInfo{}
 	if r != nil {
 		for _, u := range r.UnitList {
 			info[u.ID] = u
@@ -55,7 +56,7 @@ func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.AuditReport) error {
 		f := geojson.NewFeature(g)
 		u, ok := info[id]
 		if !ok {
-			u = audit.UnitInfo{ID: id, Status: audit.StatusCandidate}
+			u = study.UnitInfo{ID: id, Status: study.StatusCandidate}
 		}
 		f.Properties["id"] = id
 		f.Properties["status"] = u.Status.String()

@@ -6,7 +6,10 @@ import (
 	"io"
 	"strings"
 
-	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/checklist"
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/proposal"
+	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/layers"
 )
 
@@ -27,7 +30,7 @@ type htmlChart struct {
 
 type htmlChecklist struct {
 	Reference string
-	Rows      []audit.ChecklistRow
+	Rows      []checklist.Row
 	Notes     []string
 	Cautions  []string
 }
@@ -40,9 +43,9 @@ type htmlAssessment struct {
 	Treated    int
 	Duplicates int
 	Distance   float64
-	Nearest    []audit.ImportMatch
-	Expected   []audit.LayerRange
-	Lacking    []audit.LackingKey
+	Nearest    []proposal.ImportMatch
+	Expected   []proposal.LayerRange
+	Lacking    []proposal.LackingKey
 	Notes      []string
 	Cautions   []string
 }
@@ -52,7 +55,7 @@ var pageFuncs = template.FuncMap{
 	"pp":  func(x float64) string { return fmt.Sprintf("%+.1f", 100*x) },
 	"f2":  func(x float64) string { return fmt.Sprintf("%.2f", x) },
 	"g2":  func(x float64) string { return fmt.Sprintf("%.2g", x) },
-	"rng": func(r audit.LayerRange) string {
+	"rng": func(r proposal.LayerRange) string {
 		if r.Relative {
 			return fmt.Sprintf("%+.0f%% to %+.0f%%", 100*r.Low, 100*r.High)
 		}
@@ -258,7 +261,7 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 	}
 	if cl := in.Checklist; cl != nil {
 		hc := &htmlChecklist{Notes: cl.Notes, Cautions: cl.Cautions}
-		for _, ref := range []string{audit.RefMatchedControls, audit.RefWithoutProvenance, audit.RefTreatedBefore} {
+		for _, ref := range []string{checklist.RefMatchedControls, checklist.RefWithoutProvenance, checklist.RefTreatedBefore} {
 			if rows := cl.Neglected(ref); len(rows) > 0 || hasRef(cl, ref) {
 				hc.Reference, hc.Rows = refWords(ref), rows
 				break
@@ -285,7 +288,7 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 
 // splitWarnings puts the warnings about outcomes finer than the four layers
 // (those starting "OUTCOME: " for an outcome that is not a layer) apart.
-func splitWarnings(ws []string, effects []audit.Effect) (main, other []string) {
+func splitWarnings(ws []string, effects []did.Effect) (main, other []string) {
 	finer := map[string]bool{}
 	for _, e := range effects {
 		if _, ok := layers.ParseLayer(e.Layer); !ok {
@@ -294,7 +297,7 @@ func splitWarnings(ws []string, effects []audit.Effect) (main, other []string) {
 	}
 	for _, w := range ws {
 		head, _, ok := strings.Cut(w, ": ")
-		if ok && (finer[head] || strings.HasPrefix(head, audit.FamilyPrefix)) {
+		if ok && (finer[head] || strings.HasPrefix(head, study.FamilyPrefix)) {
 			other = append(other, w)
 		} else {
 			main = append(main, w)
@@ -303,7 +306,7 @@ func splitWarnings(ws []string, effects []audit.Effect) (main, other []string) {
 	return main, other
 }
 
-func hasRef(cl *audit.Checklist, ref string) bool {
+func hasRef(cl *checklist.Checklist, ref string) bool {
 	for _, r := range cl.Rows {
 		if r.Reference == ref {
 			return true
@@ -314,11 +317,11 @@ func hasRef(cl *audit.Checklist, ref string) bool {
 
 func refWords(ref string) string {
 	switch ref {
-	case audit.RefMatchedControls:
+	case checklist.RefMatchedControls:
 		return "organically mapped features of the same class in the matched comparison areas"
-	case audit.RefTreatedBefore:
+	case checklist.RefTreatedBefore:
 		return "organically mapped features of the same class in the import areas before the import"
-	case audit.RefWithoutProvenance:
+	case checklist.RefWithoutProvenance:
 		return "features of the same class without the provenance tag"
 	}
 	return ref

@@ -4,30 +4,9 @@ import (
 	"bytes"
 	"fmt"
 	"io"
-	"strings"
-)
 
-// MarkdownEscape escapes s for Markdown inline text: a backslash before each
-// of \ * _ [ ] < > | # and the backtick, which could otherwise start
-// emphasis, code, links, HTML, headings or table cells (CommonMark 0.31,
-// "Backslash escapes": any ASCII punctuation may be escaped), and line breaks
-// turned into spaces so a value cannot open a new block.
-func MarkdownEscape(s string) string {
-	var b strings.Builder
-	b.Grow(len(s) + 4)
-	for _, r := range s {
-		switch r {
-		case '\\', '*', '_', '[', ']', '<', '>', '|', '#', '`':
-			b.WriteByte('\\')
-			b.WriteRune(r)
-		case '\n', '\r', '\u2028', '\u2029':
-			b.WriteByte(' ')
-		default:
-			b.WriteRune(r)
-		}
-	}
-	return b.String()
-}
+	"github.com/loadwake/loadwake/audit/markdown"
+)
 
 // WriteMarkdown writes the report as plain Markdown for a wiki page or a mail:
 // warnings first, the headline effect per layer read in plain words, what the
@@ -38,7 +17,7 @@ func WriteMarkdown(w io.Writer, in Input) error {
 		return err
 	}
 	v := newView(in)
-	e := MarkdownEscape
+	e := markdown.Escape
 	var b bytes.Buffer
 	fmt.Fprintf(&b, "# %s\n\n", e(v.Title))
 	for _, s := range v.Lead {

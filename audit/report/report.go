@@ -9,6 +9,9 @@ import (
 	"path/filepath"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/checklist"
+	"github.com/loadwake/loadwake/audit/panel"
+	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/layers"
 )
 
@@ -19,16 +22,16 @@ var ErrInput = errors.New("report: invalid input")
 // Assessment is required; each adds its sections. The charts, report.json,
 // units.geojson and panel.csv come from the audit.
 type Input struct {
-	// Audit is the audit of one import (audit.RunAudit). Its Study, when set,
+	// Audit is the audit of one import (audit.Run). Its Study, when set,
 	// gives panel.csv.
-	Audit *audit.AuditReport
+	Audit *audit.Report
 	// Units are the study's spatial units, for the map and units.geojson.
-	// *audit.Units meets Shapes.
+	// *spatial.Units meets Shapes.
 	Units Shapes
 	// Checklist is the import's neglected-tag checklist.
-	Checklist *audit.Checklist
+	Checklist *checklist.Checklist
 	// Assessment is an assessment of a proposed import.
-	Assessment *audit.Assessment
+	Assessment *proposal.Assessment
 }
 
 func (in Input) check() error {
@@ -73,7 +76,7 @@ func Files(in Input) []string {
 
 // Write creates dir if needed and writes the report files into it (see
 // Files): report.md, report.html, report.json (AuditReport.WriteJSON),
-// units.geojson when Units are given, panel.csv (audit.WritePanelCSV) when
+// units.geojson when Units are given, panel.csv (panel.WriteCSV) when
 // the audit carries its study, and checklist.json and assessment.json when
 // those are given, and each chart as a standalone SVG file under charts/
 // (for a wiki page or a README). Existing files of those names are replaced; each is
@@ -94,7 +97,7 @@ func Write(dir string, in Input) error {
 		FileMarkdown: func(w io.Writer) error { return WriteMarkdown(w, in) },
 		FileHTML:     func(w io.Writer) error { return writeHTML(w, in, charts) },
 		FileUnits:    func(w io.Writer) error { return WriteUnitsGeoJSON(w, in.Units, in.Audit) },
-		FilePanel:    func(w io.Writer) error { return audit.WritePanelCSV(w, in.Audit.Study.Panel) },
+		FilePanel:    func(w io.Writer) error { return panel.WriteCSV(w, in.Audit.Study.Panel) },
 	}
 	if in.Audit != nil {
 		writers[FileJSON] = in.Audit.WriteJSON

@@ -17,6 +17,10 @@ import (
 	"github.com/paulmach/orb/geojson"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/checklist"
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/spatial"
+	"github.com/loadwake/loadwake/audit/study"
 )
 
 var update = flag.Bool("update", false, "rewrite the golden files")
@@ -25,9 +29,9 @@ func f64(x float64) *float64 { return &x }
 
 // appendixUnits loads the two units of RFC 7946 appendix A (A.3, a polygon
 // with a hole, and A.6, a multipolygon), kept in audit/testdata.
-func appendixUnits(tb testing.TB) *audit.Units {
+func appendixUnits(tb testing.TB) *spatial.Units {
 	tb.Helper()
-	u, err := audit.ParseUnits("../testdata/units/rfc7946_appendix_a.geojson", audit.UnitOptions{})
+	u, err := spatial.Parse("../spatial/testdata/rfc7946_appendix_a.geojson", spatial.Options{})
 	if err != nil {
 		tb.Fatal(err)
 	}
@@ -36,12 +40,12 @@ func appendixUnits(tb testing.TB) *audit.Units {
 
 // fixedAudit is a small audit with fixed numbers, for the golden Markdown and
 // the structure checks. The figures are made up for formatting only.
-func fixedAudit() *audit.AuditReport {
-	r := &audit.AuditReport{Schema: audit.SchemaAudit, Window: [2]string{"2019-01", "2022-06"}, Before: 24, After: 12}
+func fixedAudit() *audit.Report {
+	r := &audit.Report{Schema: audit.Schema, Window: [2]string{"2019-01", "2022-06"}, Before: 24, After: 12}
 	r.Import = audit.ImportSummary{ID: "imp-42", Accounts: []string{"harbour_import"}, Changesets: 8, FirstMonth: "2021-01",
 		LastMonth: "2021-06", Created: 1200, Modified: 30, Deleted: 2}
-	r.Units = audit.UnitCounts{Spec: "districts.geojson", Total: 2, Treated: 1, Controls: 1}
-	r.Effects = []audit.Effect{
+	r.Units = study.UnitCounts{Spec: "districts.geojson", Total: 2, Treated: 1, Controls: 1}
+	r.Effects = []did.Effect{
 		{Layer: "geometry", Estimator: "cs-att", ATT: -0.4, RelativeEffect: f64(-0.12), CI95: [2]float64{-0.31, 0.07}, PValue: 0.21, PreTrendP: f64(0.64), TreatedUnits: 8, ControlUnits: 19, Method: "cluster-robust"},
 		{Layer: "attribute", Estimator: "cs-att", ATT: -2.1, RelativeEffect: f64(-0.38), CI95: [2]float64{-0.47, -0.29}, PValue: 0.0004, PreTrendP: f64(0.02), TreatedUnits: 8, ControlUnits: 19, Method: "wild-bootstrap"},
 		{Layer: "attribute", Estimator: "ppml-twfe", ATT: -2.0, RelativeEffect: f64(-0.33), CI95: [2]float64{-0.42, -0.22}, PValue: 0.0002, PreTrendP: f64(0.02), TreatedUnits: 8, ControlUnits: 19, Method: "wild-score-bootstrap"},
@@ -51,14 +55,14 @@ func fixedAudit() *audit.AuditReport {
 	}
 	for e := -3; e <= 3; e++ {
 		for _, l := range []string{"geometry", "attribute", "new_feature", "deletion"} {
-			row := audit.EventStudyRow{Layer: l, Estimator: "twfe-linear", EventTime: e, Estimate: 0.1 * float64(e), CI95: [2]float64{0.1*float64(e) - 0.5, 0.1*float64(e) + 0.5}, SE: 0.25}
+			row := did.EventStudyRow{Layer: l, Estimator: "twfe-linear", EventTime: e, Estimate: 0.1 * float64(e), CI95: [2]float64{0.1*float64(e) - 0.5, 0.1*float64(e) + 0.5}, SE: 0.25}
 			if e == -1 {
 				row.Estimate, row.CI95 = 0, [2]float64{0, 0}
 			}
 			r.EventStudy = append(r.EventStudy, row)
 		}
 	}
-	r.Placebo = []audit.PlaceboRow{{Layer: "attribute", Estimator: "cs-att", ShiftMonths: 6, ATT: 0.1, CI95: [2]float64{-0.3, 0.5}, PValue: 0.6}}
+	r.Placebo = []did.PlaceboRow{{Layer: "attribute", Estimator: "cs-att", ShiftMonths: 6, ATT: 0.1, CI95: [2]float64{-0.3, 0.5}, PValue: 0.6}}
 	r.Balance = []audit.BalanceJSON{
 		{Covariate: "features_at_start", MeanTreated: 120, MeanControl: 60, MatchedMeanControl: 110, SMDBefore: 0.8, SMDAfter: 0.08},
 		{Covariate: "edits_per_month", MeanTreated: 30, MeanControl: 20, MatchedMeanControl: 24, SMDBefore: 0.5, SMDAfter: 0.21, FlagBefore: true, FlagAfter: true},
@@ -66,9 +70,9 @@ func fixedAudit() *audit.AuditReport {
 	r.Warnings = []string{"poor balance after matching on: edits_per_month", "attribute: cs-att: pre-trend test fails (p = 0.02)"}
 	r.Notes = []string{"3 events fell outside every unit and were not counted"}
 	r.Cautions = []string{"Read these figures with the local community."}
-	r.UnitList = []audit.UnitInfo{
-		{ID: "A.3", Status: audit.StatusTreated, FirstMonth: "2021-02", ImportFeatures: 900, FeaturesAtStart: 100, Intensity: 0.9, Weight: 1},
-		{ID: "A.6", Status: audit.StatusControl, Weight: 1},
+	r.UnitList = []study.UnitInfo{
+		{ID: "A.3", Status: study.StatusTreated, FirstMonth: "2021-02", ImportFeatures: 900, FeaturesAtStart: 100, Intensity: 0.9, Weight: 1},
+		{ID: "A.6", Status: study.StatusControl, Weight: 1},
 	}
 	return r
 }
@@ -117,18 +121,18 @@ func TestMarkdownGolden(t *testing.T) {
 func TestReading(t *testing.T) {
 	cases := []struct {
 		name string
-		e    audit.Effect
+		e    did.Effect
 		want []string
 	}{
-		{"drop", audit.Effect{Layer: "attribute", RelativeEffect: f64(-0.3), CI95: [2]float64{-0.45, -0.1}},
+		{"drop", did.Effect{Layer: "attribute", RelativeEffect: f64(-0.3), CI95: [2]float64{-0.45, -0.1}},
 			[]string{"about 30% fewer edits that change the tags", "-45.0% to -10.0%", "below zero"}},
-		{"rise spans zero", audit.Effect{Layer: "geometry", RelativeEffect: f64(0.2), CI95: [2]float64{-0.05, 0.5}},
+		{"rise spans zero", did.Effect{Layer: "geometry", RelativeEffect: f64(0.2), CI95: [2]float64{-0.05, 0.5}},
 			[]string{"about 20% more", "includes zero"}},
-		{"rise", audit.Effect{Layer: "new_feature", RelativeEffect: f64(0.2), CI95: [2]float64{0.05, 0.5}, PreTrendP: f64(0.3)},
+		{"rise", did.Effect{Layer: "new_feature", RelativeEffect: f64(0.2), CI95: [2]float64{0.05, 0.5}, PreTrendP: f64(0.3)},
 			[]string{"above zero"}},
-		{"no relative effect", audit.Effect{Layer: "deletion", ATT: -0.25, CI95: [2]float64{-0.5, 0.1}},
+		{"no relative effect", did.Effect{Layer: "deletion", ATT: -0.25, CI95: [2]float64{-0.5, 0.1}},
 			[]string{"0.25 fewer deleted features per area and month", "includes zero"}},
-		{"failed pre-trend", audit.Effect{Layer: "geometry", RelativeEffect: f64(-0.1), CI95: [2]float64{-0.2, -0.01}, PreTrendP: f64(0.01)},
+		{"failed pre-trend", did.Effect{Layer: "geometry", RelativeEffect: f64(-0.1), CI95: [2]float64{-0.2, -0.01}, PreTrendP: f64(0.01)},
 			[]string{"pre-import test failed (p = 0.010)"}},
 	}
 	for _, c := range cases {
@@ -146,27 +150,6 @@ func TestReading(t *testing.T) {
 	}
 }
 
-func TestMarkdownEscape(t *testing.T) {
-	// Every character the brief lists gets a backslash (CommonMark 0.31,
-	// "Backslash escapes"); line breaks become spaces.
-	cases := []struct{ in, want string }{
-		{`a\b`, `a\\b`},
-		{"*bold* _it_", `\*bold\* \_it\_`},
-		{"[x](y)", `\[x\](y)`},
-		{"<script>", `\<script\>`},
-		{"a|b", `a\|b`},
-		{"# head", `\# head`},
-		{"`code`", "\\`code\\`"},
-		{"two\nlines\r\nhere", "two lines  here"},
-		{"plain words, 12.5%", "plain words, 12.5%"},
-	}
-	for _, c := range cases {
-		if got := MarkdownEscape(c.in); got != c.want {
-			t.Errorf("MarkdownEscape(%q) = %q, want %q", c.in, got, c.want)
-		}
-	}
-}
-
 // hostile is an audit whose strings from OSM data try to break out of the
 // formats: a script tag as account name and unit id, Markdown control
 // characters in tag keys and classes, and a line break.
@@ -176,8 +159,8 @@ func hostile() Input {
 	r.Import.Accounts = []string{`<script>alert("x")</script>`, "a*b_c[d]|e#f`g\nh"}
 	r.Warnings = append(r.Warnings, "key <img src=x onerror=alert(1)> is odd")
 	r.UnitList[0].ID = "<script>unit</script>"
-	cl := &audit.Checklist{Import: "imp-<i>1</i>", Mode: "history", MinShare: 0.1, MinFeatures: 5, Alpha: 0.05,
-		Rows: []audit.ChecklistRow{{Class: "shop=<script>", Key: "name|*x*\n# y", Reference: audit.RefMatchedControls,
+	cl := &checklist.Checklist{Import: "imp-<i>1</i>", Mode: "history", MinShare: 0.1, MinFeatures: 5, Alpha: 0.05,
+		Rows: []checklist.Row{{Class: "shop=<script>", Key: "name|*x*\n# y", Reference: checklist.RefMatchedControls,
 			ImportWith: 1, ImportTotal: 10, ImportShare: 0.1, ReferenceWith: 8, ReferenceTotal: 10, ReferenceShare: 0.8,
 			Difference: -0.7, CI95: [2]float64{-0.9, -0.4}, QValue: 0.001, Affected: 9, Neglected: true}},
 		Cautions: []string{"check locally"}}
@@ -308,7 +291,7 @@ func TestWriteFiles(t *testing.T) {
 			ID string `json:"id"`
 		} `json:"import"`
 	}
-	if err := json.Unmarshal(data, &back); err != nil || back.Schema != audit.SchemaAudit || back.Import.ID != "imp-42" {
+	if err := json.Unmarshal(data, &back); err != nil || back.Schema != audit.Schema || back.Import.ID != "imp-42" {
 		t.Errorf("report.json: schema %q id %q err %v", back.Schema, back.Import.ID, err)
 	}
 	if err := Write(dir, Input{}); err == nil {
@@ -383,7 +366,7 @@ func TestUnitsGeoJSONRFC7946(t *testing.T) {
 	if p := fc.Features[1].Properties; p["status"] != "control" || p["first_month"] != nil {
 		t.Errorf("A.6 properties = %v", p)
 	}
-	back, err := audit.UnitsFromGeoJSON("units.geojson", b.Bytes(), audit.UnitOptions{})
+	back, err := spatial.FromGeoJSON("units.geojson", b.Bytes(), spatial.Options{})
 	if err != nil || back.Len() != 2 || back.ID(1) != "A.6" {
 		t.Fatalf("reading units.geojson back as units: %v", err)
 	}
@@ -437,8 +420,8 @@ func TestPalette(t *testing.T) {
 		}
 	}
 	// Each unit role has its own colour.
-	seen := map[string]audit.UnitStatus{}
-	for _, s := range []audit.UnitStatus{audit.StatusCandidate, audit.StatusControl, audit.StatusTreated, audit.StatusDropped, audit.StatusExcluded} {
+	seen := map[string]study.UnitStatus{}
+	for _, s := range []study.UnitStatus{study.StatusCandidate, study.StatusControl, study.StatusTreated, study.StatusDropped, study.StatusExcluded} {
 		h := hex(statusColour(s))
 		if o, dup := seen[h]; dup {
 			t.Errorf("%s and %s share colour #%s", s, o, h)
@@ -450,7 +433,7 @@ func TestPalette(t *testing.T) {
 func hexd(v uint32) byte { return "0123456789ABCDEF"[v&15] }
 
 func TestSplitWarnings(t *testing.T) {
-	effects := []audit.Effect{{Layer: "attribute"}, {Layer: "newcomers"}, {Layer: "attribute:names"}}
+	effects := []did.Effect{{Layer: "attribute"}, {Layer: "newcomers"}, {Layer: "attribute:names"}}
 	ws := []string{"poor balance after matching", "attribute: cs-att: pre-trend test fails", "newcomers: cs-att: x", "attribute:names: ppml-twfe: y", "attribute:roads: no estimate"}
 	main, other := splitWarnings(ws, effects)
 	if len(main) != 2 || len(other) != 3 || main[1] != ws[1] {
@@ -494,7 +477,7 @@ func TestChartContent(t *testing.T) {
 		})
 	}
 	// No reference month without a fixed zero row.
-	var rows []audit.EventStudyRow
+	var rows []did.EventStudyRow
 	for _, x := range r.EventStudy {
 		if x.EventTime != -1 {
 			rows = append(rows, x)

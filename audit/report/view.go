@@ -5,7 +5,8 @@ import (
 	"math"
 	"strings"
 
-	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/checklist"
+	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/layers"
 )
 
@@ -78,11 +79,11 @@ func pptr(p *float64) string {
 }
 
 // headlineEstimator is the estimator each layer's headline is read from
-// (audit.HeadlineEstimator); the others are listed as checks.
-const headlineEstimator = audit.HeadlineEstimator
+// (did.Headline); the others are listed as checks.
+const headlineEstimator = did.Headline
 
 // Reading returns a plain-words reading of one effect for a non-statistician.
-func Reading(e audit.Effect) string {
+func Reading(e did.Effect) string {
 	what := layerWords(e.Layer)
 	var b strings.Builder
 	if e.RelativeEffect != nil {
@@ -114,7 +115,7 @@ func Reading(e audit.Effect) string {
 	return b.String()
 }
 
-func effectText(e audit.Effect) (effect, interval string) {
+func effectText(e did.Effect) (effect, interval string) {
 	if e.RelativeEffect != nil {
 		return pct(*e.RelativeEffect), pct(e.CI95[0]) + " to " + pct(e.CI95[1])
 	}
@@ -224,7 +225,7 @@ func partView(in Input) view {
 	return v
 }
 
-func estimateRowOf(e audit.Effect) estimateRow {
+func estimateRowOf(e did.Effect) estimateRow {
 	eff, iv := effectText(e)
 	return estimateRow{Outcome: e.Layer, Estimator: e.Estimator, Effect: eff, Interval: iv, ATT: num(e.ATT),
 		P: pval(e.PValue), PreTrend: pptr(e.PreTrendP), Method: e.Method, Units: fmt.Sprintf("%d/%d", e.TreatedUnits, e.ControlUnits)}
@@ -239,14 +240,14 @@ func orDash(s string) string {
 
 // TopNeglected returns the highest-ranked neglected row of a checklist
 // (matched-controls reference first), ok false when none is flagged.
-func TopNeglected(cl *audit.Checklist) (audit.ChecklistRow, bool) {
+func TopNeglected(cl *checklist.Checklist) (checklist.Row, bool) {
 	if cl == nil {
-		return audit.ChecklistRow{}, false
+		return checklist.Row{}, false
 	}
-	for _, ref := range []string{audit.RefMatchedControls, audit.RefWithoutProvenance, audit.RefTreatedBefore} {
+	for _, ref := range []string{checklist.RefMatchedControls, checklist.RefWithoutProvenance, checklist.RefTreatedBefore} {
 		if rows := cl.Neglected(ref); len(rows) > 0 {
 			return rows[0], true
 		}
 	}
-	return audit.ChecklistRow{}, false
+	return checklist.Row{}, false
 }

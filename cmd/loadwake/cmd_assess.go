@@ -14,7 +14,11 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/report"
+	"github.com/loadwake/loadwake/audit/spatial"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
 )
@@ -62,8 +66,8 @@ figures are a first screen for local review, not a conflation or a decision.`,
 	f.StringVar(&o.rules, "rules", "", "rule file (default: the built-in rules)")
 	f.StringVar(&o.units, "units", "tiles:14", `spatial units: "tiles:Z" or a GeoJSON file of polygons`)
 	f.StringVar(&o.unitID, "unit-id", "id", "GeoJSON property holding each unit's id")
-	f.Float64Var(&o.distance, "distance", audit.DefaultDuplicateDistance, "metres within which an existing feature of the same class is a likely duplicate")
-	f.IntVar(&o.nearest, "nearest", audit.DefaultNearestImports, "past imports to compare with")
+	f.Float64Var(&o.distance, "distance", proposal.DefaultDuplicateDistance, "metres within which an existing feature of the same class is a likely duplicate")
+	f.IntVar(&o.nearest, "nearest", proposal.DefaultNearestImports, "past imports to compare with")
 	f.BoolVar(&o.noAudit, "no-audit", false, "do not audit the nearest past imports (faster; no expected effects or neglected keys)")
 	f.IntVar(&o.draws, "draws", 999, "bootstrap draws of the past imports' audits")
 	f.StringVar(&o.json, "json", "", "write the assessment as JSON to this file")
@@ -113,7 +117,7 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 		return err
 	}
 	defer st.Close()
-	uo := audit.UnitOptions{IDProperty: o.unitID, Bound: p.Bound}
+	uo := spatial.Options{IDProperty: o.unitID, Bound: p.Bound}
 	stats, err := st.Stats(ctx)
 	if err != nil {
 		return err
@@ -124,23 +128,23 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	case stats.HasBBox:
 		uo.Bound = uo.Bound.Union(stats.BBox)
 	}
-	units, err := audit.ParseUnits(o.units, uo)
+	units, err := spatial.Parse(o.units, uo)
 	if err != nil {
 		return err
 	}
-	eps, err := audit.DetectImports(ctx, st, r, audit.DetectOptions{})
+	eps, err := episode.Detect(ctx, st, r, episode.Options{})
 	if err != nil {
 		return err
 	}
-	a, err := audit.Assess(ctx, st, r, p, audit.AssessOptions{Distance: o.distance, Units: units, Episodes: eps, Nearest: o.nearest})
+	a, err := proposal.Assess(ctx, st, r, p, proposal.AssessOptions{Distance: o.distance, Units: units, Episodes: eps, Nearest: o.nearest})
 	if err != nil {
 		return err
 	}
 	if !o.noAudit && len(a.Nearest) > 0 {
-		eo := audit.DefaultEstimateOptions()
+		eo := did.DefaultOptions()
 		eo.Draws = o.draws
-		if err := a.AuditNearest(ctx, st, r, audit.PastAuditOptions{Units: units, Episodes: eps,
-			Audit: audit.AuditOptions{Estimate: eo, UnitSpec: o.units}}); err != nil {
+		if err := audit.AssessPast(ctx, a, st, r, audit.PastOptions{Units: units, Episodes: eps,
+			Audit: audit.Options{Estimate: eo, UnitSpec: o.units}}); err != nil {
 			return err
 		}
 	}
@@ -160,7 +164,7 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 // readProposal reads path as OSM XML or OsmChange (plain, gzip or bzip2;
 // versions not needed), PBF through ingest's reader, or GeoJSON when its
 // content starts with '{'.
-func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*audit.Proposal, error) {
+func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*proposal.Proposal, error) {
 	_, format, err := ingest.DetectFile(path)
 	switch {
 	case err == nil && format == ingest.FormatChangesets:
@@ -171,7 +175,7 @@ func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*audit.Pr
 			return nil, err
 		}
 		defer rd.Close()
-		return audit.ReadOSMProposal(ctx, path, objects(rd), r, audit.ProposalOptions{})
+		return proposal.ReadOSM(ctx, path, objects(rd), r, proposal.Options{})
 	case err != nil && !errors.Is(err, ingest.ErrUnknown):
 		return nil, err
 	}
@@ -196,7 +200,7 @@ func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*audit.Pr
 	}
 	if format == ingest.FormatXML || format == ingest.FormatOsmChange {
 		// Editors' files have no versions: read them with the proposal reader.
-		return audit.ReadOSMProposal(ctx, path, audit.OSMXMLObjects(ctx, path, bsrc), r, audit.ProposalOptions{})
+		return proposal.ReadOSM(ctx, path, proposal.XMLObjects(ctx, path, bsrc), r, proposal.Options{})
 	}
 	for {
 		b, err := bsrc.Peek(1)
@@ -212,7 +216,7 @@ func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*audit.Pr
 		}
 		break
 	}
-	return audit.ReadGeoJSONProposal(ctx, path, bsrc, r, audit.ProposalOptions{})
+	return proposal.ReadGeoJSON(ctx, path, bsrc, r, proposal.Options{})
 }
 
 // objects turns an ingest reader into the object sequence audit reads; the

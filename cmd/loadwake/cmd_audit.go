@@ -8,6 +8,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/did"
 )
 
 // auditOptions holds the flags of `loadwake audit`.
@@ -69,11 +70,11 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 		return err
 	}
 	defer in.store.Close()
-	eo := audit.DefaultEstimateOptions()
+	eo := did.DefaultOptions()
 	eo.Draws, eo.Seed, eo.Inference = o.draws, o.seed, o.inference
-	eo.Window = audit.Window{Pre: min(o.pre, o.study.before), Post: o.study.after}
-	rep, err := audit.RunAudit(cmd.Context(), in.store, in.episode, in.all, in.units,
-		audit.AuditOptions{Study: o.study.studyOptions(), Estimate: eo, UnitSpec: o.study.units})
+	eo.Window = did.Window{Pre: min(o.pre, o.study.before), Post: o.study.after}
+	rep, err := audit.Run(cmd.Context(), in.store, in.episode, in.all, in.units,
+		audit.Options{Study: o.study.studyOptions(), Estimate: eo, UnitSpec: o.study.units})
 	if err != nil {
 		return err
 	}

@@ -9,6 +9,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/checklist"
 	"github.com/loadwake/loadwake/audit/report"
 )
 
@@ -58,8 +59,8 @@ import guidelines before any follow-up edit.`,
 	f := cmd.Flags()
 	f.StringVar(&o.provenance, "provenance", "", "snapshot mode: tag marking the import's features (prefix:*, key, key=value or key~regex)")
 	f.StringVar(&o.types, "types", "", "snapshot mode: object types to count, any of n,w,r (default all)")
-	f.Float64Var(&o.minShare, "min-share", audit.DefaultMinShare, "least share of reference features carrying a key for it to be considered")
-	f.IntVar(&o.minFeatures, "min-features", audit.DefaultMinFeatures, "least number of reference features carrying a key (and of reference features per class)")
+	f.Float64Var(&o.minShare, "min-share", checklist.DefaultMinShare, "least share of reference features carrying a key for it to be considered")
+	f.IntVar(&o.minFeatures, "min-features", checklist.DefaultMinFeatures, "least number of reference features carrying a key (and of reference features per class)")
 	f.StringVar(&o.json, "json", "", "write the checklist as JSON to this file")
 	f.StringVar(&o.md, "md", "", "write the checklist as Markdown to this file")
 	f.StringVar(&o.report, "report", "", "write the report folder (Markdown and HTML to post) here")
@@ -73,14 +74,14 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 	if o.minFeatures < 1 {
 		return usagef("--min-features must be at least 1")
 	}
-	co := audit.ChecklistOptions{MinShare: o.minShare, MinFeatures: o.minFeatures}
+	co := checklist.Options{MinShare: o.minShare, MinFeatures: o.minFeatures}
 	ctx := cmd.Context()
-	var cl *audit.Checklist
+	var cl *checklist.Checklist
 	if o.provenance != "" {
 		if o.study.importID != "" || o.study.changesets != "" || o.study.account != "" {
 			return usagef("--provenance selects the import's features by a tag; leave out --import, --changesets and --account")
 		}
-		prov, err := audit.ParseProvenance(o.provenance)
+		prov, err := checklist.ParseProvenance(o.provenance)
 		if err != nil {
 			return usagef("--provenance: %v", err)
 		}
@@ -96,7 +97,7 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 			return err
 		}
 		defer st.Close()
-		if cl, err = audit.SnapshotChecklist(ctx, st, r, prov, co); err != nil {
+		if cl, err = checklist.Snapshot(ctx, st, r, prov, co); err != nil {
 			return err
 		}
 	} else {
@@ -108,7 +109,7 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 			return err
 		}
 		defer in.store.Close()
-		if cl, err = audit.RunChecklist(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), co); err != nil {
+		if cl, err = audit.ChecklistOf(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), co); err != nil {
 			return err
 		}
 	}
@@ -165,11 +166,11 @@ func parseTypes(s string) ([]osm.Type, error) {
 }
 
 // writeChecklistText prints the flagged keys and the cautions.
-func writeChecklistText(w io.Writer, cl *audit.Checklist) {
+func writeChecklistText(w io.Writer, cl *checklist.Checklist) {
 	fmt.Fprintf(w, "checklist of %s (%s mode)\n", cl.Import, cl.Mode)
 	for _, c := range cl.Classes {
 		fmt.Fprintf(w, "  %-28s %7d imported", c.Class, c.Imported)
-		for _, ref := range []string{audit.RefMatchedControls, audit.RefTreatedBefore, audit.RefWithoutProvenance} {
+		for _, ref := range []string{checklist.RefMatchedControls, checklist.RefTreatedBefore, checklist.RefWithoutProvenance} {
 			if n, ok := c.Reference[ref]; ok {
 				fmt.Fprintf(w, "  %7d %s", n, ref)
 			}

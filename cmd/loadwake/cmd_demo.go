@@ -17,8 +17,14 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/checklist"
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/report"
 	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/audit/spatial"
+	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
@@ -115,7 +121,7 @@ func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
 	if _, err := layers.Run(ctx, st, r, layers.Options{}); err != nil {
 		return err
 	}
-	eps, err := audit.DetectImports(ctx, st, r, audit.DetectOptions{})
+	eps, err := episode.Detect(ctx, st, r, episode.Options{})
 	if err != nil {
 		return err
 	}
@@ -124,17 +130,17 @@ func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
 		return errors.New("demo: the simulated world holds no detected import")
 	}
 	unitFile := filepath.Join(p.world, sim.DistrictsFile)
-	units, err := audit.ParseUnits(unitFile, audit.UnitOptions{})
+	units, err := spatial.Parse(unitFile, spatial.Options{})
 	if err != nil {
 		return err
 	}
-	eo := audit.DefaultEstimateOptions()
+	eo := did.DefaultOptions()
 	eo.Draws = o.draws
-	rep, err := audit.RunAudit(ctx, st, ep, eps, units, audit.AuditOptions{Estimate: eo, UnitSpec: sim.DistrictsFile})
+	rep, err := audit.Run(ctx, st, ep, eps, units, audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile})
 	if err != nil {
 		return err
 	}
-	cl, err := audit.RunChecklist(ctx, st, r, ep, eps, units, audit.StudyOptions{}, audit.ChecklistOptions{})
+	cl, err := audit.ChecklistOf(ctx, st, r, ep, eps, units, study.Options{}, checklist.Options{})
 	if err != nil {
 		return fmt.Errorf("checklist: %w", err)
 	}
@@ -154,8 +160,8 @@ func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
 
 // largestEpisode picks the episode with the most changesets, then the most
 // versions.
-func largestEpisode(eps []audit.Episode) *audit.Episode {
-	var best *audit.Episode
+func largestEpisode(eps []episode.Episode) *episode.Episode {
+	var best *episode.Episode
 	for i := range eps {
 		e := &eps[i]
 		if best == nil || len(e.Changesets) > len(best.Changesets) ||
@@ -169,7 +175,7 @@ func largestEpisode(eps []audit.Episode) *audit.Episode {
 // demoSummary is the five lines the demo prints: the import, the units, the
 // headline effect per layer with its interval, the top neglected key and
 // where the report is.
-func demoSummary(rep *audit.AuditReport, cl *audit.Checklist, dir string) []string {
+func demoSummary(rep *audit.Report, cl *checklist.Checklist, dir string) []string {
 	lines := []string{
 		fmt.Sprintf("import:    %s by %s, %d changesets, %s to %s, %d objects created", rep.Import.ID,
 			joinOr(rep.Import.Accounts, "no account"), rep.Import.Changesets, rep.Import.FirstMonth, rep.Import.LastMonth, rep.Import.Created),
@@ -179,7 +185,7 @@ func demoSummary(rep *audit.AuditReport, cl *audit.Checklist, dir string) []stri
 	eff := ""
 	for _, l := range layers.Layers {
 		for _, e := range rep.Effects {
-			if e.Layer == l.String() && e.Estimator == audit.HeadlineEstimator {
+			if e.Layer == l.String() && e.Estimator == did.Headline {
 				if eff != "" {
 					eff += "; "
 				}
@@ -192,9 +198,9 @@ func demoSummary(rep *audit.AuditReport, cl *audit.Checklist, dir string) []stri
 		}
 	}
 	if eff == "" {
-		eff = "no " + audit.HeadlineEstimator + " estimate (see the warnings in the report)"
+		eff = "no " + did.Headline + " estimate (see the warnings in the report)"
 	}
-	lines = append(lines, "effects:   "+audit.HeadlineEstimator+", 95% interval: "+eff)
+	lines = append(lines, "effects:   "+did.Headline+", 95% interval: "+eff)
 	if row, ok := report.TopNeglected(cl); ok {
 		lines = append(lines, fmt.Sprintf("neglected: %s on %s: %.0f%% of imported features vs %.0f%% of comparable ones (%d without it)",
 			row.Key, row.Class, 100*row.ImportShare, 100*row.ReferenceShare, row.Affected))
@@ -208,11 +214,11 @@ func demoSummary(rep *audit.AuditReport, cl *audit.Checklist, dir string) []stri
 // demoAssessment writes an invented follow-up proposal (buildings and a few
 // amenities of a made-up survey office, in three districts the import did
 // not reach) as GeoJSON and assesses it.
-func demoAssessment(ctx context.Context, st *ingest.Store, r *rules.RuleSet, path string, units *audit.Units,
-	rep *audit.AuditReport, eps []audit.Episode, eo audit.EstimateOptions, seed uint64) (*audit.Assessment, error) {
+func demoAssessment(ctx context.Context, st *ingest.Store, r *rules.RuleSet, path string, units *spatial.Units,
+	rep *audit.Report, eps []episode.Episode, eo did.Options, seed uint64) (*proposal.Assessment, error) {
 	var picks []int
 	for _, u := range rep.UnitList {
-		if u.Status == audit.StatusCandidate || u.Status == audit.StatusControl {
+		if u.Status == study.StatusCandidate || u.Status == study.StatusControl {
 			if i, ok := units.Index(u.ID); ok {
 				picks = append(picks, i)
 			}
@@ -263,17 +269,17 @@ func demoAssessment(ctx context.Context, st *ingest.Store, r *rules.RuleSet, pat
 	if err := os.WriteFile(path, append(data, '\n'), 0o644); err != nil {
 		return nil, err
 	}
-	p, err := audit.ReadGeoJSONProposal(ctx, path, bytes.NewReader(data), r, audit.ProposalOptions{})
+	p, err := proposal.ReadGeoJSON(ctx, path, bytes.NewReader(data), r, proposal.Options{})
 	if err != nil {
 		return nil, err
 	}
-	a, err := audit.Assess(ctx, st, r, p, audit.AssessOptions{Units: units, Episodes: eps})
+	a, err := proposal.Assess(ctx, st, r, p, proposal.AssessOptions{Units: units, Episodes: eps})
 	if err != nil {
 		return nil, err
 	}
 	if len(a.Nearest) > 0 {
-		if err := a.AuditNearest(ctx, st, r, audit.PastAuditOptions{Units: units, Episodes: eps,
-			Audit: audit.AuditOptions{Estimate: eo, UnitSpec: sim.DistrictsFile}}); err != nil {
+		if err := audit.AssessPast(ctx, a, st, r, audit.PastOptions{Units: units, Episodes: eps,
+			Audit: audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile}}); err != nil {
 			return nil, err
 		}
 	}

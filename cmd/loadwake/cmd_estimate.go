@@ -7,7 +7,8 @@ import (
 	"strings"
 	"text/tabwriter"
 
-	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/panel"
 	"github.com/spf13/cobra"
 )
 
@@ -29,7 +30,7 @@ type estimateOptions struct {
 }
 
 func newEstimateCommand(g *globalOptions) *cobra.Command {
-	d := audit.DefaultEstimateOptions()
+	d := did.DefaultOptions()
 	o := estimateOptions{unit: "unit", time: "month", firstTreated: "first_treated",
 		pre: d.Window.Pre, post: d.Window.Post, draws: d.Draws, seed: d.Seed, inference: d.Inference}
 	cmd := &cobra.Command{
@@ -79,14 +80,14 @@ func runEstimate(cmd *cobra.Command, _ *globalOptions, o *estimateOptions) error
 	if len(o.outcomes) == 0 {
 		return usagef("estimate: name at least one --outcome column")
 	}
-	opts := audit.DefaultEstimateOptions()
-	opts.Window = audit.Window{Pre: o.pre, Post: o.post}
+	opts := did.DefaultOptions()
+	opts.Window = did.Window{Pre: o.pre, Post: o.post}
 	opts.Draws, opts.Seed, opts.Inference = o.draws, o.seed, o.inference
 	if o.pre < 1 || o.post < 1 || o.draws < 99 {
 		return usagef("estimate: --window-pre and --window-post must be >= 1 and --draws >= 99")
 	}
 	switch o.inference {
-	case audit.InferenceAuto, audit.InferenceAnalytic, audit.InferenceBootstrap:
+	case did.InferenceAuto, did.InferenceAnalytic, did.InferenceBootstrap:
 	default:
 		return usagef("estimate: --inference %q: want auto, analytic or bootstrap", o.inference)
 	}
@@ -95,12 +96,12 @@ func runEstimate(cmd *cobra.Command, _ *globalOptions, o *estimateOptions) error
 		return err
 	}
 	defer f.Close()
-	p, err := audit.ReadPanelCSV(f, o.panel, audit.PanelColumns{Unit: o.unit, Time: o.time, FirstTreated: o.firstTreated,
+	p, err := panel.ReadCSV(f, o.panel, panel.Columns{Unit: o.unit, Time: o.time, FirstTreated: o.firstTreated,
 		Outcomes: o.outcomes, Cluster: o.cluster, Weight: o.weight, Covariates: o.covariates})
 	if err != nil {
 		return err
 	}
-	es, err := audit.Estimate(cmd.Context(), p, opts)
+	es, err := did.Estimate(cmd.Context(), p, opts)
 	if err != nil {
 		return fmt.Errorf("%s: %w", o.panel, err)
 	}
@@ -125,7 +126,7 @@ func runEstimate(cmd *cobra.Command, _ *globalOptions, o *estimateOptions) error
 	return nil
 }
 
-func printEstimates(w interface{ Write([]byte) (int, error) }, es *audit.Estimates) {
+func printEstimates(w interface{ Write([]byte) (int, error) }, es *did.Estimates) {
 	tw := tabwriter.NewWriter(w, 2, 4, 2, ' ', 0)
 	fmt.Fprintln(tw, "OUTCOME\tESTIMATOR\tATT\tRELATIVE\t95% INTERVAL\tP\tPRE-TREND P\tTREATED/CONTROL\tMETHOD")
 	for _, e := range es.Effects {

@@ -13,7 +13,7 @@ import (
 	"testing"
 	"time"
 
-	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/panel"
 )
 
 // writeInventedPanel writes an invented panel (40 treated units in two
@@ -22,7 +22,7 @@ import (
 func writeInventedPanel(t testing.TB) string {
 	t.Helper()
 	rng := rand.New(rand.NewPCG(5, 5))
-	p := &audit.Panel{Start: time.Date(2032, 1, 1, 0, 0, 0, 0, time.UTC), Months: 24, Outcomes: []string{"geometry", "deletion"}}
+	p := &panel.Panel{Start: time.Date(2032, 1, 1, 0, 0, 0, 0, time.UTC), Months: 24, Outcomes: []string{"geometry", "deletion"}}
 	p.Y = make([][]float64, 2)
 	for u := range 100 {
 		g := -1
@@ -32,7 +32,7 @@ func writeInventedPanel(t testing.TB) string {
 		case u < 40:
 			g = 12
 		}
-		p.Units = append(p.Units, audit.PanelUnit{ID: fmt.Sprintf("cell-%03d", u), FirstTreated: g, Weight: 1})
+		p.Units = append(p.Units, panel.Unit{ID: fmt.Sprintf("cell-%03d", u), FirstTreated: g, Weight: 1})
 		level := 2 + 6*rng.Float64()
 		for tm := range 24 {
 			for o := range 2 {
@@ -52,7 +52,7 @@ func writeInventedPanel(t testing.TB) string {
 		}
 	}
 	var buf bytes.Buffer
-	if err := audit.WritePanelCSV(&buf, p); err != nil {
+	if err := panel.WriteCSV(&buf, p); err != nil {
 		t.Fatal(err)
 	}
 	f := filepath.Join(t.TempDir(), "panel.csv")

@@ -4,7 +4,7 @@ import (
 	"fmt"
 	"os"
 
-	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/episode"
 	"github.com/loadwake/loadwake/rules"
 	"github.com/spf13/cobra"
 )
@@ -70,13 +70,13 @@ func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
 			return err
 		}
 	}
-	opts := audit.DetectOptions{Account: o.account, IncludeEmpty: o.includeEmpty}
+	opts := episode.Options{Account: o.account, IncludeEmpty: o.includeEmpty}
 	if o.changesets != "" {
 		f, err := os.Open(o.changesets)
 		if err != nil {
 			return fmt.Errorf("changeset list: %w", err)
 		}
-		opts.Changesets, err = audit.ReadChangesetIDs(f, o.changesets)
+		opts.Changesets, err = episode.ReadChangesetIDs(f, o.changesets)
 		f.Close()
 		if err != nil {
 			return err
@@ -86,7 +86,7 @@ func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
 	if err != nil {
 		return err
 	}
-	eps, err := audit.DetectImports(cmd.Context(), st, r, opts)
+	eps, err := episode.Detect(cmd.Context(), st, r, opts)
 	if cerr := st.Close(); err == nil {
 		err = cerr
 	}
@@ -94,7 +94,7 @@ func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
 		return err
 	}
 	if o.json {
-		return audit.WriteEpisodesJSON(cmd.OutOrStdout(), eps)
+		return episode.WriteJSON(cmd.OutOrStdout(), eps)
 	}
-	return audit.WriteEpisodes(cmd.OutOrStdout(), eps)
+	return episode.Write(cmd.OutOrStdout(), eps)
 }

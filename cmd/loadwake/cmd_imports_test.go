@@ -9,7 +9,7 @@ import (
 	"strings"
 	"testing"
 
-	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/episode"
 	"github.com/loadwake/loadwake/rules"
 	"github.com/paulmach/osm"
 )
@@ -57,7 +57,7 @@ func TestImportsCommand(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			var eps []audit.Episode
+			var eps []episode.Episode
 			if err := json.Unmarshal([]byte(out), &eps); err != nil {
 				t.Fatalf("output is not a JSON episode list: %v\n%s", err, out)
 			}
@@ -73,7 +73,7 @@ func TestImportsCommand(t *testing.T) {
 			if !slices.Equal(e.Matchers, tt.matchers) || len(e.Accounts) != 1 || e.Accounts[0].UID != 7168 {
 				t.Errorf("matchers %v accounts %v", e.Matchers, e.Accounts)
 			}
-			if len(e.Classes) != 1 || e.Classes[0] != (audit.ClassCount{Class: "highway=residential", Count: 1}) {
+			if len(e.Classes) != 1 || e.Classes[0] != (episode.ClassCount{Class: "highway=residential", Count: 1}) {
 				t.Errorf("classes %v, want the way's highway=residential once", e.Classes)
 			}
 			if e.FirstMonth != "2007-09" || e.LastMonth != "2007-09" {
@@ -96,7 +96,7 @@ func TestImportsCommand(t *testing.T) {
 	if _, _, err := execRoot(t, "--store", store, "imports", "--changesets", badIDs); err == nil || !strings.Contains(err.Error(), "bad.txt:1:8") {
 		t.Errorf("bad id list: err %v, want one naming bad.txt:1:8", err)
 	}
-	if _, _, err := execRoot(t, "--store", store, "imports", "--account", "nobody"); !errors.Is(err, audit.ErrNoImport) {
+	if _, _, err := execRoot(t, "--store", store, "imports", "--account", "nobody"); !errors.Is(err, episode.ErrNoImport) {
 		t.Errorf("unknown account: err %v, want ErrNoImport", err)
 	}
 	if _, _, err := execRoot(t, "--store", filepath.Join(dir, "none"), "imports"); err == nil || !strings.Contains(err.Error(), "no store") {

@@ -7,6 +7,8 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/panel"
+	"github.com/loadwake/loadwake/audit/study"
 )
 
 // panelOptions holds the flags of `loadwake panel`.
@@ -50,7 +52,7 @@ func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
 		return err
 	}
 	defer in.store.Close()
-	st, err := audit.StudyImport(cmd.Context(), in.store, in.episode, in.all, in.units, o.study.studyOptions())
+	st, err := study.ForEpisode(cmd.Context(), in.store, in.episode, in.all, in.units, o.study.studyOptions())
 	if err != nil {
 		return err
 	}
@@ -72,7 +74,7 @@ func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
 	if o.all {
 		p = st.All
 	}
-	if err := writeFile(o.csv, func(w io.Writer) error { return audit.WritePanelCSV(w, p) }); err != nil {
+	if err := writeFile(o.csv, func(w io.Writer) error { return panel.WriteCSV(w, p) }); err != nil {
 		return err
 	}
 	fmt.Fprintf(out, "wrote %s: %d units x %d months\n", o.csv, len(p.Units), p.Months)

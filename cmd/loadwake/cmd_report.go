@@ -6,6 +6,8 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/checklist"
+	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/report"
 )
 
@@ -69,17 +71,17 @@ func runReport(cmd *cobra.Command, g *globalOptions, o *reportOptions) error {
 		return err
 	}
 	defer in.store.Close()
-	eo := audit.DefaultEstimateOptions()
+	eo := did.DefaultOptions()
 	eo.Draws, eo.Seed, eo.Inference = o.draws, o.seed, o.inference
-	eo.Window = audit.Window{Pre: min(o.pre, o.study.before), Post: o.study.after}
-	rep, err := audit.RunAudit(ctx, in.store, in.episode, in.all, in.units,
-		audit.AuditOptions{Study: o.study.studyOptions(), Estimate: eo, UnitSpec: o.study.units})
+	eo.Window = did.Window{Pre: min(o.pre, o.study.before), Post: o.study.after}
+	rep, err := audit.Run(ctx, in.store, in.episode, in.all, in.units,
+		audit.Options{Study: o.study.studyOptions(), Estimate: eo, UnitSpec: o.study.units})
 	if err != nil {
 		return err
 	}
-	var cl *audit.Checklist
+	var cl *checklist.Checklist
 	if !o.noChecklist {
-		cl, err = audit.RunChecklist(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), audit.ChecklistOptions{})
+		cl, err = audit.ChecklistOf(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), checklist.Options{})
 		if err != nil {
 			return fmt.Errorf("checklist: %w", err)
 		}

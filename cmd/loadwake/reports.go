@@ -6,7 +6,10 @@ import (
 	"path/filepath"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/checklist"
+	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/report"
+	"github.com/loadwake/loadwake/audit/spatial"
 )
 
 // writeReports writes the report folder dir (report.md, report.html,
@@ -27,7 +30,7 @@ func writeReportMarkdown(path string, in report.Input) error {
 }
 
 // reportInput gathers what a report shows; units may be nil.
-func reportInput(rep *audit.AuditReport, units *audit.Units, cl *audit.Checklist, a *audit.Assessment) report.Input {
+func reportInput(rep *audit.Report, units *spatial.Units, cl *checklist.Checklist, a *proposal.Assessment) report.Input {
 	in := report.Input{Audit: rep, Checklist: cl, Assessment: a}
 	if units != nil {
 		in.Units = units

@@ -9,7 +9,10 @@ import (
 
 	"github.com/spf13/pflag"
 
-	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/match"
+	"github.com/loadwake/loadwake/audit/spatial"
+	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
 )
@@ -80,19 +83,19 @@ func (s *studyFlags) validate() error {
 	return nil
 }
 
-func (s *studyFlags) studyOptions() audit.StudyOptions {
-	return audit.StudyOptions{Before: s.before, After: s.after, MinIntensity: s.minIntensity,
+func (s *studyFlags) studyOptions() study.Options {
+	return study.Options{Before: s.before, After: s.after, MinIntensity: s.minIntensity,
 		KeepImportAccounts: s.keepAccounts, Propensity: s.propensity,
-		Match: audit.MatchOptions{K: s.k, Caliper: s.caliper}}
+		Match: match.Options{K: s.k, Caliper: s.caliper}}
 }
 
 // studyInputs is what the study commands work from.
 type studyInputs struct {
 	store   *ingest.Store
 	rules   *rules.RuleSet
-	all     []audit.Episode
-	episode *audit.Episode
-	units   *audit.Units
+	all     []episode.Episode
+	episode *episode.Episode
+	units   *spatial.Units
 }
 
 // open opens the store, loads the rules, finds the import and reads the
@@ -105,13 +108,13 @@ func (s *studyFlags) open(ctx context.Context, g *globalOptions) (*studyInputs, 
 	if err != nil {
 		return nil, err
 	}
-	opts := audit.DetectOptions{Account: s.account}
+	opts := episode.Options{Account: s.account}
 	if s.changesets != "" {
 		f, err := os.Open(s.changesets)
 		if err != nil {
 			return nil, fmt.Errorf("changeset list: %w", err)
 		}
-		opts.Changesets, err = audit.ReadChangesetIDs(f, s.changesets)
+		opts.Changesets, err = episode.ReadChangesetIDs(f, s.changesets)
 		f.Close()
 		if err != nil {
 			return nil, err
@@ -126,11 +129,11 @@ func (s *studyFlags) open(ctx context.Context, g *globalOptions) (*studyInputs, 
 		st.Close()
 		return nil, err
 	}
-	in.all, in.episode, err = audit.DetectAndFind(ctx, st, r, opts, s.importID)
+	in.all, in.episode, err = episode.DetectAndFind(ctx, st, r, opts, s.importID)
 	if err != nil {
 		return fail(err)
 	}
-	uo := audit.UnitOptions{IDProperty: s.unitID}
+	uo := spatial.Options{IDProperty: s.unitID}
 	stats, err := st.Stats(ctx)
 	if err != nil {
 		return fail(err)
@@ -138,7 +141,7 @@ func (s *studyFlags) open(ctx context.Context, g *globalOptions) (*studyInputs, 
 	if stats.HasBBox {
 		uo.Bound = stats.BBox
 	}
-	if in.units, err = audit.ParseUnits(s.units, uo); err != nil {
+	if in.units, err = spatial.Parse(s.units, uo); err != nil {
 		return fail(err)
 	}
 	return in, nil

@@ -1,0 +1,249 @@
+package did
+
+import (
+	"fmt"
+	"math"
+	"math/rand/v2"
+
+	"github.com/loadwake/loadwake/audit/panel"
+)
+
+// The classic difference-in-differences, kept for reference next to the
+// staggered estimators.
+//
+// did-2x2 compares, for every unit, its mean outcome after treatment with its
+// mean before, and the treated units' change with the matched controls' change
+// over the same months. With several cohorts each cohort g contributes its
+// treated units and all never-treated controls with windows split at g; the
+// long differences ΔY(u,g) are regressed on a treated dummy with one intercept
+// per cohort (weights: matching weights), so with a single cohort the slope is
+// exactly (Ȳ treated post − Ȳ treated pre) − (Ȳ control post − Ȳ control pre),
+// the 2x2 of Card & Krueger (1994, Table 3). Pre and post windows are
+// limited to the event window of Options.
+
+// diffRow is one long difference of the 2x2 design.
+type diffRow struct {
+	cohort  int // index into cohorts
+	treated bool
+	unit    int
+	d       float64 // ΔY = post mean − pre mean
+	post    float64 // post mean (for the counterfactual level)
+	w       float64
+}
+
+// longDiffs builds the 2x2 rows of outcome y for every cohort.
+func longDiffs(p *panel.Panel, y []float64, cohorts []int, win Window) []diffRow {
+	var rows []diffRow
+	T := p.Months
+	for ci, g := range cohorts {
+		lo := max(0, g-win.Pre)
+		hi := min(T, g+win.Post)
+		if g-lo < 1 || hi-g < 1 {
+			continue
+		}
+		for u, un := range p.Units {
+			if un.Weight <= 0 || (un.FirstTreated != g && un.FirstTreated != -1) {
+				continue
+			}
+			pre, post := 0.0, 0.0
+			for t := lo; t < g; t++ {
+				pre += y[u*T+t]
+			}
+			for t := g; t < hi; t++ {
+				post += y[u*T+t]
+			}
+			pre /= float64(g - lo)
+			post /= float64(hi - g)
+			rows = append(rows, diffRow{cohort: ci, treated: un.FirstTreated == g, unit: u, d: post - pre, post: post, w: un.Weight})
+		}
+	}
+	return rows
+}
+
+// did2x2 estimates the pooled 2x2 difference-in-differences of outcome y.
+func did2x2(p *panel.Panel, y []float64, cohorts []int, cl []int, G int, opts Options, rng *rand.Rand) (*estimate, error) {
+	rows := longDiffs(p, y, cohorts, opts.Window)
+	nc := len(cohorts)
+	// absorb cohort intercepts: weighted cohort means removed from x and y.
+	x := make([]float64, len(rows))
+	d := make([]float64, len(rows))
+	w := make([]float64, len(rows))
+	rc := make([]int, len(rows))
+	ncl := make([]int, len(rows))
+	for i, r := range rows {
+		if r.treated {
+			x[i] = 1
+		}
+		d[i], w[i], rc[i], ncl[i] = r.d, r.w, r.cohort, cl[r.unit]
+	}
+	absorb := func(v []float64) { demeanGroups(v, w, rc, nc) }
+	tUnits, cUnits := map[int]bool{}, map[int]bool{}
+	tClusters := map[int]bool{}
+	postSum, postN := 0.0, 0.0
+	for _, r := range rows {
+		if r.treated {
+			tUnits[r.unit] = true
+			tClusters[cl[r.unit]] = true
+			postSum += r.post
+			postN++
+		} else {
+			cUnits[r.unit] = true
+		}
+	}
+	if len(tUnits) < 2 || len(cUnits) < 2 {
+		return nil, fmt.Errorf("%d treated and %d control units with months on both sides of treatment; need at least 2 of each", len(tUnits), len(cUnits))
+	}
+	reg := oneReg{x: x, y: d, w: w, cl: ncl, G: G, kParams: nc + 1, absorb: absorb}
+	res, err := reg.fit()
+	if err != nil {
+		return nil, err
+	}
+	e := &estimate{att: res.b, se: res.se, treatedUnits: len(tUnits), controlUnits: len(cUnits),
+		note: fmt.Sprintf("pooled 2x2 long differences, %d cohort(s), window %d months before and %d after, cohort intercepts", nc, opts.Window.Pre, opts.Window.Post)}
+	tc := len(tClusters)
+	if opts.useBootstrap(tc) {
+		name, webb := bootName(res.g)
+		q, pv := reg.wildBootstrap(res, opts.Draws, webb, rng)
+		e.lo, e.hi = res.b-q*res.se, res.b+q*res.se
+		e.p = pv
+		e.method = fmt.Sprintf("wild-bootstrap-%s-%d", name, opts.Draws)
+	} else {
+		c := critical(tc, res.g)
+		e.lo, e.hi = res.b-c*res.se, res.b+c*res.se
+		e.p = pTwoSided(res.b/res.se, tc, res.g)
+		e.method = analyticName(tc, res.g)
+	}
+	e.setRelativeLinear(postSum / postN)
+	return e, nil
+}
+
+// demeanGroups removes weighted group means from v in place.
+func demeanGroups(v, w []float64, grp []int, ng int) {
+	s := make([]float64, ng)
+	sw := make([]float64, ng)
+	for i, x := range v {
+		s[grp[i]] += w[i] * x
+		sw[grp[i]] += w[i]
+	}
+	for i := range v {
+		if sw[grp[i]] > 0 {
+			v[i] -= s[grp[i]] / sw[grp[i]]
+		}
+	}
+}
+
+// oneReg is a weighted regression on one regressor after other effects
+// (intercepts, fixed effects) were absorbed by the weighted projection absorb
+// (Frisch-Waugh-Lovell). kParams counts every parameter for the CR1 factor.
+type oneReg struct {
+	x, y, w []float64
+	cl      []int
+	G       int
+	kParams int
+	absorb  func(v []float64)
+}
+
+type oneRes struct {
+	b, se float64
+	sxx   float64
+	u     []float64 // residuals
+	g     int       // clusters used
+	xt    []float64 // absorbed regressor
+}
+
+func (r *oneReg) fit() (*oneRes, error) {
+	xt := append([]float64(nil), r.x...)
+	yt := append([]float64(nil), r.y...)
+	r.absorb(xt)
+	r.absorb(yt)
+	sxx, sxy := 0.0, 0.0
+	for i := range xt {
+		sxx += r.w[i] * xt[i] * xt[i]
+		sxy += r.w[i] * xt[i] * yt[i]
+	}
+	if !(sxx > 1e-12) {
+		return nil, errSingular
+	}
+	b := sxy / sxx
+	u := yt
+	for i := range u {
+		u[i] -= b * xt[i]
+	}
+	res := &oneRes{b: b, sxx: sxx, u: u, xt: xt}
+	var g int
+	res.se, g = r.cr1(xt, u)
+	res.g = g
+	if !(res.se > 0) {
+		return nil, errSingular
+	}
+	return res, nil
+}
+
+// cr1 returns the CR1 standard error of the slope given residuals u.
+func (r *oneReg) cr1(xt, u []float64) (float64, int) {
+	sc := make([]float64, r.G)
+	used := make([]bool, r.G)
+	n := 0
+	sxx := 0.0
+	for i := range u {
+		if r.w[i] == 0 {
+			continue
+		}
+		n++
+		sc[r.cl[i]] += r.w[i] * xt[i] * u[i]
+		used[r.cl[i]] = true
+		sxx += r.w[i] * xt[i] * xt[i]
+	}
+	meat, G := 0.0, 0
+	for g, ok := range used {
+		if ok {
+			G++
+			meat += sc[g] * sc[g]
+		}
+	}
+	if G < 2 || n <= r.kParams {
+		return 0, G
+	}
+	adj := float64(G) / float64(G-1) * float64(n-1) / float64(n-r.kParams)
+	return math.Sqrt(adj*meat) / sxx, G
+}
+
+// wildBootstrap runs the unrestricted wild cluster bootstrap-t
+// (Cameron, Gelbach & Miller 2008): y* = ŷ + v_g·û, refit, t* = (b*−b)/se*.
+// It returns the 95% quantile of |t*| (for the interval b ± q·se) and the
+// bootstrap p-value P(|t*| ≥ |b/se|).
+func (r *oneReg) wildBootstrap(res *oneRes, draws int, webb bool, rng *rand.Rand) (q, p float64) {
+	v := make([]float64, r.G)
+	e := make([]float64, len(res.u))
+	ts := make([]float64, 0, draws)
+	t0 := math.Abs(res.b / res.se)
+	hits := 0
+	for range draws {
+		bootWeights(rng, v, webb)
+		for i := range e {
+			e[i] = v[r.cl[i]] * res.u[i]
+		}
+		r.absorb(e)
+		sxy := 0.0
+		for i := range e {
+			sxy += r.w[i] * res.xt[i] * e[i]
+		}
+		db := sxy / res.sxx
+		for i := range e {
+			e[i] -= db * res.xt[i]
+		}
+		se, _ := r.cr1(res.xt, e)
+		if !(se > 0) {
+			continue
+		}
+		t := math.Abs(db / se)
+		ts = append(ts, t)
+		if t >= t0 {
+			hits++
+		}
+	}
+	if len(ts) == 0 {
+		return critical(0, res.g), 1
+	}
+	return quantile(ts, 0.95), float64(hits+1) / float64(len(ts)+1)
+}

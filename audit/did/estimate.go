@@ -1,0 +1,206 @@
+package did
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"runtime"
+	"sync"
+
+	"github.com/loadwake/loadwake/audit/panel"
+)
+
+// Estimator names used in Effect.Estimator.
+// Estimate estimates, for every outcome of p, the change in the treated
+// units against the matched never-treated controls with each estimator, its
+// event study, pre-trend test and placebo. Problems with one outcome (all
+// zeros, too few units, a singular design) become warnings and leave that
+// outcome's rows out; the other outcomes are still estimated. An error is
+// returned only for an invalid panel or options, or cancellation. Output
+// never holds NaN or Inf.
+func Estimate(ctx context.Context, p *panel.Panel, opts Options) (*Estimates, error) {
+	if err := opts.validate(); err != nil {
+		return nil, err
+	}
+	if opts.PlaceboShift == 0 {
+		opts.PlaceboShift = max(1, opts.Window.Pre/2)
+	}
+	if err := p.Validate(); err != nil {
+		return nil, err
+	}
+	out := &Estimates{Window: opts.Window, Draws: opts.Draws, Seed: opts.Seed, Cautions: estimateCautions,
+		Effects: []Effect{}, EventStudy: []EventStudyRow{}, ByCohort: []CohortRow{}, Placebo: []PlaceboRow{}, Warnings: []string{}}
+	cl, G := p.ClusterIndex()
+	nT, nC, early := 0, 0, 0
+	for _, u := range p.Units {
+		switch {
+		case u.Weight <= 0:
+		case u.FirstTreated == 0:
+			early++
+		case u.FirstTreated > 0:
+			nT++
+		default:
+			nC++
+		}
+	}
+	if early > 0 {
+		out.Warnings = append(out.Warnings, fmt.Sprintf("%d treated unit(s) treated in the first month have no pre-period and are left out of cs-att, ppml-twfe and did-2x2", early))
+	}
+	if nT < 2 || nC < 2 {
+		out.Warnings = append(out.Warnings, fmt.Sprintf("%d treated units with a pre-period and %d controls: at least 2 of each are needed; nothing estimated", nT, nC))
+		return out, nil
+	}
+	if G < 2 {
+		out.Warnings = append(out.Warnings, "only one cluster: no cluster-robust inference possible; nothing estimated")
+		return out, nil
+	}
+	tcl := map[int]bool{}
+	for u, un := range p.Units {
+		if un.FirstTreated >= 0 && un.Weight > 0 {
+			tcl[cl[u]] = true
+		}
+	}
+	if len(tcl) < FewTreatedClusters {
+		out.Warnings = append(out.Warnings, fmt.Sprintf("only %d treated clusters (< %d): intervals use the wild or multiplier bootstrap (inference %q) and t(G-1) quantiles; read them as rough", len(tcl), FewTreatedClusters, opts.Inference))
+	}
+	design, desErr := newESDesign(p, opts.Window)
+	dr := len(p.Units[0].Covariates) > 0
+	results := make([]outcomeResult, len(p.Outcomes))
+	workers := opts.Workers
+	if workers <= 0 {
+		workers = runtime.GOMAXPROCS(0)
+	}
+	sem := make(chan struct{}, workers)
+	var wg sync.WaitGroup
+	for o := range p.Outcomes {
+		wg.Add(1)
+		sem <- struct{}{}
+		go func() {
+			defer wg.Done()
+			defer func() { <-sem }()
+			if ctx.Err() != nil {
+				return
+			}
+			results[o] = estimateOutcome(p, o, cl, G, opts, design, desErr, dr)
+		}()
+	}
+	wg.Wait()
+	if err := ctx.Err(); err != nil {
+		return nil, err
+	}
+	for _, r := range results {
+		out.Effects = append(out.Effects, r.effects...)
+		out.EventStudy = append(out.EventStudy, r.events...)
+		out.ByCohort = append(out.ByCohort, r.cohorts...)
+		out.Placebo = append(out.Placebo, r.placebo...)
+		out.Warnings = append(out.Warnings, r.warnings...)
+	}
+	return out, nil
+}
+
+type outcomeResult struct {
+	effects  []Effect
+	events   []EventStudyRow
+	cohorts  []CohortRow
+	placebo  []PlaceboRow
+	warnings []string
+}
+
+func estimateOutcome(p *panel.Panel, o int, cl []int, G int, opts Options, design *esDesign, desErr error, dr bool) outcomeResult {
+	name := p.Outcomes[o]
+	y := p.Y[o]
+	var r outcomeResult
+	warn := func(format string, args ...any) {
+		r.warnings = append(r.warnings, fmt.Sprintf("%s: ", name)+fmt.Sprintf(format, args...))
+	}
+	total := 0.0
+	for u, un := range p.Units {
+		if un.Weight > 0 {
+			for t := range p.Months {
+				total += y[u*p.Months+t]
+			}
+		}
+	}
+	if total == 0 {
+		warn("all counts are zero; no estimate")
+		return r
+	}
+	add := func(est string, e *estimate, err error) {
+		if err != nil {
+			if errors.Is(err, errSingular) {
+				warn("%s: singular design: %v", est, err)
+			} else {
+				warn("%s: %v", est, err)
+			}
+			return
+		}
+		eff, ok := e.effect(name, est)
+		if !ok {
+			warn("%s: estimate not finite (too little variation); left out", est)
+			return
+		}
+		r.effects = append(r.effects, eff)
+		if e.hasPre && e.preP < 0.05 {
+			warn("%s: pre-trend test fails (p = %.3g): treated and control areas moved differently before the import", est, e.preP)
+		}
+		for _, ev := range e.events {
+			row := EventStudyRow{Layer: name, Estimator: est, EventTime: ev.e, Estimate: ev.est, CI95: [2]float64{ev.lo, ev.hi}, SE: ev.se}
+			if ev.reference {
+				row.CI95 = [2]float64{0, 0}
+			}
+			if finite(row.Estimate) && finite(row.SE) && finite(row.CI95[0]) && finite(row.CI95[1]) {
+				r.events = append(r.events, row)
+			}
+		}
+		for _, c := range e.cohorts {
+			row := CohortRow{Layer: name, Estimator: est, Cohort: p.MonthTime(c.g).Format("2006-01"), Units: c.units,
+				ATT: c.est, CI95: [2]float64{c.lo, c.hi}, SE: c.se}
+			if finite(row.ATT) && finite(row.SE) && finite(row.CI95[0]) && finite(row.CI95[1]) {
+				r.cohorts = append(r.cohorts, row)
+			}
+		}
+	}
+	// cs-att
+	cs, err := callawaySantAnna(p, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorCS), dr)
+	if err != nil && dr {
+		warn("cs-att: doubly robust estimator failed (%v); unconditional estimator used", err)
+		cs, err = callawaySantAnna(p, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorCS), false)
+	}
+	if err == nil {
+		cs.overall.events = cs.events
+		cs.overall.preP, cs.overall.hasPre = cs.preP, cs.hasPreP
+		add(EstimatorCS, cs.overall, nil)
+		if pl, err := placeboCS(p, y, cl, G, opts, rngFor(opts.Seed, name, "placebo")); err == nil {
+			r.placebo = append(r.placebo, pl.row(name, opts.PlaceboShift)...)
+			if len(pl.row(name, opts.PlaceboShift)) > 0 && pl.p < 0.05 {
+				warn("cs-att placebo %d months early shows an effect (p = %.3g): anticipation or diverging trends", opts.PlaceboShift, pl.p)
+			}
+		} else {
+			warn("placebo: %v", err)
+		}
+	} else {
+		add(EstimatorCS, nil, err)
+	}
+	pp, err := stackedPPML(p, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorPPML))
+	add(EstimatorPPML, pp, err)
+	if desErr != nil {
+		add(EstimatorTWFELinear, nil, desErr)
+	} else {
+		tw, err := twfeEventStudy(design, y, cl, G, opts)
+		add(EstimatorTWFELinear, tw, err)
+	}
+	dd, err := did2x2(p, y, cohortsWithPre(p), cl, G, opts, rngFor(opts.Seed, name, EstimatorDiD2x2))
+	add(EstimatorDiD2x2, dd, err)
+	return r
+}
+
+// cohortsWithPre lists the cohorts that have at least one pre-period month.
+func cohortsWithPre(p *panel.Panel) []int {
+	var out []int
+	for _, g := range cohortsOf(p) {
+		if g >= 1 {
+			out = append(out, g)
+		}
+	}
+	return out
+}

@@ -1,0 +1,285 @@
+package did
+
+import (
+	"errors"
+	"math"
+	"math/rand/v2"
+	"sort"
+
+	"gonum.org/v1/gonum/mat"
+	"gonum.org/v1/gonum/stat/distuv"
+)
+
+// Inference in this package:
+//
+//   - Cluster-robust variance CR1 (Liang & Zeger 1986 with the small-sample
+//     factor G/(G-1)·(N-1)/(N-K) that R's sandwich::vcovCL(type = "HC1") and
+//     Stata's vce(cluster) use). Intervals use normal quantiles when there are
+//     many treated clusters and t(G-1) quantiles otherwise.
+//   - Wild cluster bootstrap (Cameron, Gelbach & Miller 2008), unrestricted,
+//     bootstrap-t: Rademacher weights, or Webb's (2014) six-point weights when
+//     there are fewer than 12 clusters. Used automatically when the treated
+//     clusters are fewer than FewTreatedClusters (30), where analytic cluster
+//     variances are known to be too small.
+//   - Multiplier bootstrap of influence functions clustered by cluster for the
+//     group-time estimator (Callaway & Sant'Anna 2021, section 4), one set of
+//     draws shared by all aggregates of an outcome.
+//   - Wild score bootstrap for the Poisson fit (Kline & Santos 2012).
+//   - The linear event study (twfe-linear) always uses analytic CR1, with
+//     t(G-1) quantiles when treated clusters are few; its method field says so.
+//   - Joint Wald test of the leads of an event study (chi-square).
+//
+// Every random draw comes from a PCG generator seeded by Options.Seed.
+
+// FewTreatedClusters is the number of treated clusters below which Estimate
+// switches from analytic to bootstrap inference. Thirty follows the rule of
+// thumb in Cameron & Miller (2015, J. Human Resources, section VI) that
+// cluster-robust variances are reliable from a few dozen clusters.
+const FewTreatedClusters = 30
+
+// errSingular marks a design whose cross-product matrix cannot be inverted.
+var errSingular = errors.New("singular design")
+
+// webbWeights are Webb's six-point wild bootstrap weights ±√(1/2), ±1, ±√(3/2),
+// each with probability 1/6 (Webb 2014, Queen's Economics Dept. WP 1315).
+var webbWeights = [6]float64{-math.Sqrt(1.5), -1, -math.Sqrt(0.5), math.Sqrt(0.5), 1, math.Sqrt(1.5)}
+
+// bootWeights fills v with one draw of wild bootstrap weights: Webb's six-point
+// when webb is true, Rademacher ±1 otherwise (64 signs per random word).
+func bootWeights(rng *rand.Rand, v []float64, webb bool) {
+	if webb {
+		for i := range v {
+			v[i] = webbWeights[rng.IntN(6)]
+		}
+		return
+	}
+	var bits uint64
+	for i := range v {
+		if i%64 == 0 {
+			bits = rng.Uint64()
+		}
+		v[i] = float64(int(bits&1)*2 - 1)
+		bits >>= 1
+	}
+}
+
+// bootDraws holds B draws of G cluster weights, shared by every aggregate of
+// one outcome so that their bootstrap distributions are joint.
+type bootDraws struct {
+	B, G int
+	v    []float64 // v[b*G+g]
+}
+
+func newBootDraws(rng *rand.Rand, B, G int) *bootDraws {
+	_, webb := bootName(G)
+	d := &bootDraws{B: B, G: G, v: make([]float64, B*G)}
+	for b := range B {
+		bootWeights(rng, d.v[b*G:(b+1)*G], webb)
+	}
+	return d
+}
+
+// bootName names a wild bootstrap weight scheme for the method field.
+func bootName(clusters int) (string, bool) {
+	if clusters < 12 {
+		return "webb", true
+	}
+	return "rademacher", false
+}
+
+// olsFit is a weighted least-squares fit with classic and cluster-robust
+// variances.
+type olsFit struct {
+	beta  []float64
+	vOLS  *mat.SymDense // σ²(X'WX)⁻¹
+	vCR1  *mat.SymDense // CR1 cluster-robust
+	resid []float64
+	n, k  int
+	g     int // clusters with at least one observation of positive weight
+}
+
+// olsCR1 fits y on the columns of x (n×k, already holding any intercept) with
+// observation weights w (nil for 1) and returns CR1 variances by cluster
+// (cluster[i] in [0, G)). Observations with weight 0 are ignored.
+func olsCR1(x *mat.Dense, y, w []float64, cluster []int, G int) (*olsFit, error) {
+	n, k := x.Dims()
+	xtx := mat.NewSymDense(k, nil)
+	xty := make([]float64, k)
+	nEff := 0
+	for i := 0; i < n; i++ {
+		wi := 1.0
+		if w != nil {
+			wi = w[i]
+		}
+		if wi == 0 {
+			continue
+		}
+		nEff++
+		row := x.RawRowView(i)
+		for a := 0; a < k; a++ {
+			xty[a] += wi * row[a] * y[i]
+			for b := a; b < k; b++ {
+				xtx.SetSym(a, b, xtx.At(a, b)+wi*row[a]*row[b])
+			}
+		}
+	}
+	if nEff <= k {
+		return nil, errSingular
+	}
+	var inv mat.SymDense
+	if err := invSym(&inv, xtx); err != nil {
+		return nil, err
+	}
+	beta := make([]float64, k)
+	bv := mat.NewVecDense(k, beta)
+	bv.MulVec(&inv, mat.NewVecDense(k, xty))
+	resid := make([]float64, n)
+	ssr := 0.0
+	scores := make([]float64, G*k)
+	used := make([]bool, G)
+	for i := 0; i < n; i++ {
+		wi := 1.0
+		if w != nil {
+			wi = w[i]
+		}
+		row := x.RawRowView(i)
+		fit := 0.0
+		for a := 0; a < k; a++ {
+			fit += row[a] * beta[a]
+		}
+		resid[i] = y[i] - fit
+		if wi == 0 {
+			continue
+		}
+		ssr += wi * resid[i] * resid[i]
+		g := cluster[i]
+		used[g] = true
+		for a := 0; a < k; a++ {
+			scores[g*k+a] += wi * row[a] * resid[i]
+		}
+	}
+	f := &olsFit{beta: beta, resid: resid, n: nEff, k: k}
+	f.vOLS = mat.NewSymDense(k, nil)
+	f.vOLS.ScaleSym(ssr/float64(nEff-k), &inv)
+	f.vCR1, f.g = sandwichCR1(&inv, scores, used, k, nEff, k)
+	return f, nil
+}
+
+// sandwichCR1 returns bread·meat·bread with meat Σ_g s_g s_g' from the
+// cluster score sums (scores[g*k+a]) and the CR1 factor
+// G/(G-1)·(N-1)/(N-K), where N is the number of observations and K the number
+// of parameters (including absorbed fixed effects, as R's glm would count them).
+func sandwichCR1(bread *mat.SymDense, scores []float64, used []bool, k, nObs, kParams int) (*mat.SymDense, int) {
+	meat := mat.NewSymDense(k, nil)
+	G := 0
+	for g, u := range used {
+		if !u {
+			continue
+		}
+		G++
+		s := scores[g*k : g*k+k]
+		for a := 0; a < k; a++ {
+			for b := a; b < k; b++ {
+				meat.SetSym(a, b, meat.At(a, b)+s[a]*s[b])
+			}
+		}
+	}
+	var tmp mat.Dense
+	tmp.Mul(bread, meat)
+	var v mat.Dense
+	v.Mul(&tmp, bread)
+	adj := 0.0
+	if G > 1 && nObs > kParams {
+		adj = float64(G) / float64(G-1) * float64(nObs-1) / float64(nObs-kParams)
+	}
+	out := mat.NewSymDense(k, nil)
+	for a := 0; a < k; a++ {
+		for b := a; b < k; b++ {
+			out.SetSym(a, b, adj*(v.At(a, b)+v.At(b, a))/2)
+		}
+	}
+	return out, G
+}
+
+// invSym inverts a symmetric positive definite matrix by Cholesky, reporting
+// errSingular when it is not (numerically) positive definite.
+func invSym(dst *mat.SymDense, a *mat.SymDense) error {
+	var ch mat.Cholesky
+	if ok := ch.Factorize(a); !ok {
+		return errSingular
+	}
+	if c := ch.Cond(); c > 1e13 || math.IsNaN(c) || math.IsInf(c, 0) {
+		return errSingular
+	}
+	return ch.InverseTo(dst)
+}
+
+// waldChi2 returns the Wald statistic b'V⁻¹b, its degrees of freedom and the
+// chi-square p-value. ok is false when V cannot be inverted.
+func waldChi2(b []float64, v *mat.SymDense) (stat float64, df int, p float64, ok bool) {
+	k := len(b)
+	if k == 0 {
+		return 0, 0, 0, false
+	}
+	var inv mat.SymDense
+	if err := invSym(&inv, v); err != nil {
+		return 0, k, 0, false
+	}
+	bv := mat.NewVecDense(k, b)
+	stat = mat.Inner(bv, &inv, bv)
+	p = distuv.ChiSquared{K: float64(k)}.Survival(stat)
+	return stat, k, p, finite(stat) && finite(p)
+}
+
+// critical returns the two-sided 95% critical value: the normal quantile
+// 1.959964 when the treated clusters are many, t(G-1) otherwise
+// (Cameron & Miller 2015, section VI.C).
+func critical(treatedClusters, clusters int) float64 {
+	if treatedClusters >= FewTreatedClusters || clusters < 3 {
+		return distuv.UnitNormal.Quantile(0.975)
+	}
+	return distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(clusters - 1)}.Quantile(0.975)
+}
+
+// pTwoSided returns the two-sided p-value of z against the normal (treated
+// clusters many) or t(G-1) distribution, matching critical.
+func pTwoSided(z float64, treatedClusters, clusters int) float64 {
+	if treatedClusters >= FewTreatedClusters || clusters < 3 {
+		return 2 * distuv.UnitNormal.Survival(math.Abs(z))
+	}
+	return 2 * distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(clusters - 1)}.Survival(math.Abs(z))
+}
+
+// quantile returns the q-quantile of xs (sorted in place) by the type 7 rule
+// (R's default).
+func quantile(xs []float64, q float64) float64 {
+	if len(xs) == 0 {
+		return math.NaN()
+	}
+	sort.Float64s(xs)
+	h := (float64(len(xs)) - 1) * q
+	lo := math.Floor(h)
+	i := int(lo)
+	if i+1 >= len(xs) {
+		return xs[len(xs)-1]
+	}
+	return xs[i] + (h-lo)*(xs[i+1]-xs[i])
+}
+
+func finite(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }
+
+// analyticName names the analytic method: CR1 with normal or t(G-1) quantiles.
+func analyticName(treatedClusters, clusters int) string {
+	if treatedClusters >= FewTreatedClusters || clusters < 3 {
+		return "analytic-cr1"
+	}
+	return "analytic-cr1-t(G-1)"
+}
+
+func addOuter(m *mat.SymDense, x []float64, w float64) {
+	for a := range x {
+		for b := a; b < len(x); b++ {
+			m.SetSym(a, b, m.At(a, b)+w*x[a]*x[b])
+		}
+	}
+}
