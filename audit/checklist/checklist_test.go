@@ -20,7 +20,6 @@ import (
 	"github.com/loadwake/loadwake/rules"
 )
 
-
 // clStudy builds the study of the world's import, named by its changesets.
 func clStudy(tb testing.TB, w *worldtest.World) *study.Study {
 	tb.Helper()
@@ -208,7 +207,6 @@ func TestSnapshotChecklistDelaware(t *testing.T) {
 		})
 	}
 }
-
 
 func TestParseProvenance(t *testing.T) {
 	tags := osm.Tags{{Key: "highway", Value: "residential"}, {Key: "tiger:cfcc", Value: "A41"}, {Key: "source", Value: "Vellmar County GIS"}}

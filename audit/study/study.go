@@ -166,11 +166,11 @@ type builder struct {
 
 	nu         int
 	impObjects []map[osm.FeatureID]bool // per unit: objects the import edited there
-	firstImp   []time.Time       // per unit: first import edit
-	touched    []bool            // per unit: edited by another import in the window
-	live       []int             // per unit: features present, running count
-	liveAtImp  []int             // per unit: live count when the import first arrived (-1 not yet)
-	classLive  []map[string]int  // per unit: features by class before the episode
+	firstImp   []time.Time              // per unit: first import edit
+	touched    []bool                   // per unit: edited by another import in the window
+	live       []int                    // per unit: features present, running count
+	liveAtImp  []int                    // per unit: live count when the import first arrived (-1 not yet)
+	classLive  []map[string]int         // per unit: features by class before the episode
 	y          map[string][]float64
 	fam        map[string][]float64 // y's attribute family arrays by bare family name
 	contrib    map[[2]int64]bool    // (unit*months+t, uid) seen
