@@ -126,13 +126,9 @@ func wcrBruteT(tb testing.TB, toy wcrToy, a []float64, r float64, v *mat.Dense) 
 	for j := range k {
 		rb[j] = beta[j] - aa.AtVec(j)*gap
 	}
-	ids := append([]int(nil), toy.cl...)
-	sort.Ints(ids)
 	idx := map[int]int{}
-	for _, id := range ids {
-		if _, ok := idx[id]; !ok {
-			idx[id] = len(idx)
-		}
+	for _, id := range wcrSortedIDs(toy.cl) {
+		idx[id] = len(idx)
 	}
 	nb, _ := v.Dims()
 	out := make([]float64, nb)
@@ -364,4 +360,18 @@ func TestAbsorbMatchesDummies(t *testing.T) {
 	if _, err := FitOLS(Design{X: xa, Y: toy.y, Weights: toy.w, Cluster: toy.cl, Absorb: bad}); err == nil {
 		t.Fatal("group spanning clusters accepted")
 	}
+}
+
+// wcrSortedIDs returns the distinct cluster ids in ascending order, the
+// order of the bootstrap's weight columns.
+func wcrSortedIDs(cl []int) []int {
+	ids := append([]int(nil), cl...)
+	sort.Ints(ids)
+	out := ids[:0]
+	for i, id := range ids {
+		if i == 0 || id != ids[i-1] {
+			out = append(out, id)
+		}
+	}
+	return out
 }
