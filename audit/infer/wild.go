@@ -188,8 +188,10 @@ const wcrChunk = 256
 
 // WildResult is the outcome of the restricted wild cluster bootstrap test of
 // one linear restriction a'β = r. P and the interval come from the same
-// bootstrap draws and the same Tail: r is in [Lower, Upper] exactly when
-// PAt(r) > 1 − Level, up to the grid described at WildTest.
+// bootstrap draws and the same Tail: the tested null r is inside
+// (Lower, Upper) exactly when P > 1 − Level, and so is any other null r0
+// with PAt(r0), unless the acceptance region is not an interval (see
+// WildTest).
 type WildResult struct {
 	Estimate float64 // a'β̂
 	Null     float64 // r
@@ -278,11 +280,13 @@ func (w *WildResult) pBoth(r0 float64) (sym, et float64) {
 // vectors are enumerated (draw 0, all +1, reproduces the sample's t).
 //
 // p-values are the share of draws at least as extreme, B in the denominator,
-// ties within a relative 1e-9 counted as extreme. The interval is
-// {r0 : PAt(r0) > 1 − Level}, found from the estimate outward on each side:
-// a grid of SE/4 steps to 10 SE, then doubling steps, locates the first
-// rejected null, and bisection refines the crossing to 1e-12 relative.
-// Holes in the acceptance region narrower than the grid are not reported.
+// ties within a relative 1e-9 counted as extreme. The interval is the
+// stretch of {r0 : PAt(r0) > 1 − Level} around the estimate, found from the
+// estimate outward on each side: a grid of SE/4 steps to 10 SE, then
+// doubling steps, locates the first rejected null, and bisection refines the
+// crossing to 1e-12 relative. The acceptance region is almost always an
+// interval; when it is not, the interval is made to agree with P at the
+// tested null r: r lies inside exactly when P > 1 − Level.
 // ctx is checked between chunks of draws.
 func (f *OLS) WildTest(ctx context.Context, a []float64, r float64, o WildOptions) (*WildResult, error) {
 	if err := f.checkRestriction(a); err != nil {
@@ -368,48 +372,75 @@ func (f *OLS) WildTest(ctx context.Context, a []float64, r float64, o WildOption
 		res.P = res.PEqualTailed
 	}
 	alpha := 1 - o.Level
-	res.Upper = res.invert(alpha, 1)
-	res.Lower = res.invert(alpha, -1)
+	res.Upper = res.invert(alpha, 1, 0)
+	res.Lower = res.invert(alpha, -1, 0)
+	res.agree(alpha)
 	return res, nil
 }
 
-// invert returns the end of the acceptance region {r0 : PAt(r0) > alpha} on
-// side dir (+1 upper, −1 lower) of the estimate.
-func (w *WildResult) invert(alpha, dir float64) float64 {
-	at := func(d float64) float64 { return w.PAt(w.Estimate + dir*d) }
-	prev := 0.0
-	next := func(j int) float64 {
-		if j <= 40 {
-			return w.SE * float64(j) / 4
-		}
-		return w.SE * 10 * math.Ldexp(1, j-40)
+// agree makes the interval agree with P at the tested null r when the
+// acceptance region is not an interval: a null r accepted beyond the first
+// rejected value extends the interval to the end of r's accepted stretch; a
+// null r rejected inside it (a rejected stretch narrower than the grid) moves
+// that end to a crossing between the estimate and r.
+func (w *WildResult) agree(alpha float64) {
+	d := w.Null - w.Estimate
+	if d == 0 {
+		return
 	}
-	found := false
-	var d float64
+	dir := math.Copysign(1, d)
+	inside := w.Null > w.Lower && w.Null < w.Upper
+	accepted := w.P > alpha
+	var end float64
+	switch {
+	case accepted && !inside:
+		end = w.invert(alpha, dir, math.Abs(d))
+	case !accepted && inside:
+		end = w.Estimate + dir*w.bisect(alpha, dir, 0, math.Abs(d))
+	default:
+		return
+	}
+	if dir > 0 {
+		w.Upper = end
+	} else {
+		w.Lower = end
+	}
+}
+
+// invert returns the end of the acceptance region {r0 : PAt(r0) > alpha}
+// on side dir (+1 upper, −1 lower) of the estimate, searching outward from
+// distance from (where the p-value is taken to exceed alpha).
+func (w *WildResult) invert(alpha, dir, from float64) float64 {
+	prev := from
 	for j := 1; j <= 40+80; j++ {
-		d = next(j)
-		if at(d) <= alpha {
-			found = true
-			break
+		d := from + w.SE*float64(j)/4
+		if j > 40 {
+			d = from + w.SE*10*math.Ldexp(1, j-40)
+		}
+		if w.PAt(w.Estimate+dir*d) <= alpha {
+			return w.Estimate + dir*w.bisect(alpha, dir, prev, d)
 		}
 		prev = d
 	}
-	if !found {
-		return dir * math.Inf(1)
-	}
-	lo, hi := prev, d
+	return dir * math.Inf(1)
+}
+
+// bisect narrows [lo, hi] (distances from the estimate on side dir, the
+// p-value above alpha at lo and at most alpha at hi) to a crossing, to a
+// relative 1e-12, and returns its midpoint.
+func (w *WildResult) bisect(alpha, dir, lo, hi float64) float64 {
 	for range 200 {
 		mid := (lo + hi) / 2
 		if mid == lo || mid == hi || hi-lo <= 1e-12*(math.Abs(w.Estimate)+w.SE) {
 			break
 		}
-		if at(mid) <= alpha {
+		if w.PAt(w.Estimate+dir*mid) <= alpha {
 			hi = mid
 		} else {
 			lo = mid
 		}
 	}
-	return w.Estimate + dir*(lo+hi)/2
+	return (lo + hi) / 2
 }
 
 // checkRestriction validates a restriction vector a for this fit.

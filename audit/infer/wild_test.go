@@ -375,3 +375,28 @@ func wcrSortedIDs(cl []int) []int {
 	}
 	return out
 }
+
+// TestWildIntervalAgreesWithP runs many small designs with few treated
+// clusters, where acceptance regions are least regular, and checks that the
+// tested null lies inside the interval exactly when p > alpha.
+func TestWildIntervalAgreesWithP(t *testing.T) {
+	for _, ws := range []WeightScheme{Rademacher, Webb} {
+		t.Run(ws.String(), func(t *testing.T) {
+			for seed := range uint64(150) {
+				toy := wcrMakeToy(t, 10+int(seed%6), 1+int(seed%3), seed)
+				fit, err := FitOLS(Design{X: toy.x, Y: toy.y, Weights: toy.w, Cluster: toy.cl})
+				if err != nil {
+					t.Fatal(err)
+				}
+				r0 := fit.Beta[1] + fit.SE([]float64{0, 1, 0})*float64(int(seed%9)-4)/1.5
+				res, err := fit.WildTest(context.Background(), []float64{0, 1, 0}, r0, WildOptions{Weights: ws, Draws: 199, Seed: seed, Tail: Tail(seed % 2)})
+				if err != nil {
+					t.Fatal(err)
+				}
+				if in := r0 > res.Lower && r0 < res.Upper; in != (res.P > 0.05) {
+					t.Fatalf("seed %d: null %v in [%v, %v] is %v but p = %v", seed, r0, res.Lower, res.Upper, in, res.P)
+				}
+			}
+		})
+	}
+}
