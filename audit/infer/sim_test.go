@@ -38,6 +38,7 @@ type wcrSimCounts struct {
 	covRad, covWebb         int
 	infRad, infWebb         int // intervals with an infinite end
 	chi2, fG, fH, nFH, wild int // joint lead tests
+	fH1, nFH1               int // W/q against F(q, H−1)
 }
 
 // wcrSimPanel draws one null panel and returns its design, the column of the
@@ -136,6 +137,10 @@ func wcrSimulate(tb testing.TB, s wcrSimSpec, reps int, seed uint64) wcrSimCount
 			q := float64(s.Leads)
 			c.chi2 += wcrRej(w.PChi2)
 			c.fG += wcrRej(distuv.F{D1: q, D2: float64(s.G - 1)}.Survival(w.Stat / q))
+			if H >= 2 {
+				c.nFH1++
+				c.fH1 += wcrRej(distuv.F{D1: q, D2: float64(H - 1)}.Survival(w.Stat / q))
+			}
 			if w.HasF {
 				c.nFH++
 				c.fH += wcrRej(w.PF)

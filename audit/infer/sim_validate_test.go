@@ -49,14 +49,14 @@ func TestSizeValidate(t *testing.T) {
 // with the weights ChooseWeights picks.
 func TestLeadsValidate(t *testing.T) {
 	const reps = 1000
-	t.Log(" | G | G1 | reps | Wald chi2 | F(q, G−1) | F(q, H−q) | WCR Wald | ")
+	t.Log(" | G | G1 | reps | Wald chi2 | W/q vs F(q, G−1) | W/q vs F(q, H−1) | Hotelling F(q, H−q) | WCR Wald | ")
 	for _, s := range []wcrSimSpec{
 		{G: 40, G1: 2}, {G: 40, G1: 3}, {G: 40, G1: 4}, {G: 40, G1: 8}, {G: 40, G1: 20},
 	} {
 		s.T, s.Start, s.Draws, s.Leads = 8, 5, 999, 2
 		c := wcrSimulate(t, s, reps, 7)
-		t.Logf(" | %d | %d | %d | %s | %s | %s | %s | ", s.G, s.G1, c.reps, wcrRate(c.chi2, c.reps),
-			wcrRate(c.fG, c.reps), wcrRate(c.fH, c.nFH), wcrRate(c.wild, c.reps))
+		t.Logf(" | %d | %d | %d | %s | %s | %s | %s | %s | ", s.G, s.G1, c.reps, wcrRate(c.chi2, c.reps),
+			wcrRate(c.fG, c.reps), wcrRate(c.fH1, c.nFH1), wcrRate(c.fH, c.nFH), wcrRate(c.wild, c.reps))
 		t.Run(fmt.Sprintf("G=%d G1=%d", s.G, s.G1), func(t *testing.T) {
 			if s.G1 >= 8 {
 				lo, hi := wcrWilson(c.wild, c.reps)

@@ -210,6 +210,9 @@ func (f *OLS) WildWald(ctx context.Context, R *mat.Dense, r []float64, o WildOpt
 	B := res.Draws
 	res.WStar = make([]float64, B)
 	sig := mat.NewSymDense(q, nil)
+	sraw := sig.RawSymmetric().Data // upper triangle used, stride q
+	craw := c.RawMatrix().Data      // G×q, stride q
+	p := make([]float64, q)
 	var sch mat.Cholesky
 	var sol mat.VecDense
 	hits := 0
@@ -226,15 +229,16 @@ func (f *OLS) WildWald(ctx context.Context, R *mat.Dense, r []float64, o WildOpt
 		m.Mul(&t, dall.T())
 		for b := range nb {
 			vr, mr, ur := v.RawRowView(b), m.RawRowView(b), u.RawRowView(b)
-			sig.Zero()
-			p := make([]float64, q)
+			clear(sraw)
 			for h := range G {
 				for j := range q {
-					p[j] = vr[h]*c.At(h, j) - mr[h*q+j]
+					p[j] = vr[h]*craw[h*q+j] - mr[h*q+j]
 				}
 				for i := range q {
+					pi := p[i]
+					row := sraw[i*q : (i+1)*q]
 					for j := i; j < q; j++ {
-						sig.SetSym(i, j, sig.At(i, j)+p[i]*p[j])
+						row[j] += pi * p[j]
 					}
 				}
 			}

@@ -2,6 +2,7 @@ package infer
 
 import (
 	"context"
+	"fmt"
 	"math"
 	"math/rand/v2"
 	"sort"
@@ -396,6 +397,33 @@ func TestWildIntervalAgreesWithP(t *testing.T) {
 				if in := r0 > res.Lower && r0 < res.Upper; in != (res.P > 0.05) {
 					t.Fatalf("seed %d: null %v in [%v, %v] is %v but p = %v", seed, r0, res.Lower, res.Upper, in, res.P)
 				}
+			}
+		})
+	}
+}
+
+func TestChooseByTreatedClusters(t *testing.T) {
+	cases := []struct {
+		treated, clusters int
+		weights           WeightScheme
+		method            Method
+	}{
+		{1, 40, Webb, MethodRandomization},
+		{3, 200, Webb, MethodRandomization},
+		{4, 40, Webb, MethodWildWebb},
+		{11, 400, Webb, MethodWildWebb},
+		{12, 40, Rademacher, MethodWildRademacher},
+		{20, 40, Rademacher, MethodWildRademacher},
+		{37, 40, Webb, MethodRandomization}, // three untreated clusters
+		{30, 40, Webb, MethodWildWebb},      // ten untreated clusters
+	}
+	for _, c := range cases {
+		t.Run(fmt.Sprintf("%d of %d", c.treated, c.clusters), func(t *testing.T) {
+			if got := ChooseWeights(c.treated, c.clusters); got != c.weights {
+				t.Errorf("weights %v, want %v", got, c.weights)
+			}
+			if got := ChooseMethod(c.treated, c.clusters); got != c.method {
+				t.Errorf("method %v, want %v", got, c.method)
 			}
 		})
 	}
