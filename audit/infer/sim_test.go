@@ -38,7 +38,7 @@ type wcrSimCounts struct {
 	covRad, covWebb         int
 	infRad, infWebb         int // intervals with an infinite end
 	chi2, fG, fH, nFH, wild int // joint lead tests
-	fH1, nFH1               int // W/q against F(q, H−1)
+	hot, nHot               int // Hotelling's W(H−q)/(q(H−1)) against F(q, H−q)
 }
 
 // wcrSimPanel draws one null panel and returns its design, the column of the
@@ -137,13 +137,14 @@ func wcrSimulate(tb testing.TB, s wcrSimSpec, reps int, seed uint64) wcrSimCount
 			q := float64(s.Leads)
 			c.chi2 += wcrRej(w.PChi2)
 			c.fG += wcrRej(distuv.F{D1: q, D2: float64(s.G - 1)}.Survival(w.Stat / q))
-			if H >= 2 {
-				c.nFH1++
-				c.fH1 += wcrRej(distuv.F{D1: q, D2: float64(H - 1)}.Survival(w.Stat / q))
-			}
 			if w.HasF {
 				c.nFH++
 				c.fH += wcrRej(w.PF)
+			}
+			if H > s.Leads {
+				c.nHot++
+				hf := w.Stat * float64(H-s.Leads) / (q * float64(H-1))
+				c.hot += wcrRej(distuv.F{D1: q, D2: float64(H - s.Leads)}.Survival(hf))
 			}
 			ww, err := f.WildWald(ctx, R, nil, WildOptions{Draws: s.Draws, TreatedClusters: s.G1, Seed: rng.Uint64()})
 			if err != nil {
@@ -282,6 +283,39 @@ func TestSizeQuick(t *testing.T) {
 				within("CR1 t(G−1)", c.cr1G, c.reps, 0.02, 0.08)
 				within("WCR Webb", c.webb, c.reps, 0.02, 0.08)
 				within("WCR Rademacher", c.rad, c.reps, 0.02, 0.08)
+			}
+		})
+	}
+}
+
+// TestLeadsQuick is the fast version of the joint lead test's size study:
+// with three treated clusters the plain chi-square must over-reject (the
+// failure the treated degrees of freedom fix) while the F on treated degrees
+// of freedom and the WCR bootstrap must not; with half the clusters treated
+// the bootstrap must hold 5% within sampling error.
+func TestLeadsQuick(t *testing.T) {
+	if testing.Short() {
+		t.Skip("simulation")
+	}
+	const reps = 120
+	for _, s := range []wcrSimSpec{
+		{G: 30, G1: 3, T: 6, Start: 4, Draws: 199, Leads: 2},
+		{G: 30, G1: 15, T: 6, Start: 4, Draws: 199, Leads: 2},
+	} {
+		t.Run(fmt.Sprintf("G=%d G1=%d", s.G, s.G1), func(t *testing.T) {
+			c := wcrSimulate(t, s, reps, 3)
+			t.Logf("chi2 %s, F(q,G-1) %s, F(q,H-1) %s, WCR Wald %s", wcrRate(c.chi2, c.reps), wcrRate(c.fG, c.reps),
+				wcrRate(c.fH, c.nFH), wcrRate(c.wild, c.reps))
+			lo, hi := wcrWilson(c.fH, c.nFH)
+			if lo > 0.08 {
+				t.Errorf("F(q, H−1) rejection %s", wcrRate(c.fH, c.nFH))
+			}
+			lo, hi = wcrWilson(c.wild, c.reps)
+			if lo > 0.08 || (s.G1 == 15 && hi < 0.02) {
+				t.Errorf("WCR Wald rejection %s", wcrRate(c.wild, c.reps))
+			}
+			if lo, _ := wcrWilson(c.chi2, c.reps); s.G1 == 3 && lo < 0.10 {
+				t.Errorf("chi-square rejection %s with three treated clusters; expected the known over-rejection", wcrRate(c.chi2, c.reps))
 			}
 		})
 	}

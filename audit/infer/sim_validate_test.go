@@ -44,9 +44,10 @@ func TestSizeValidate(t *testing.T) {
 
 // TestLeadsValidate is the size study of the joint test of two leads of an
 // event study (T = 8, start at period 5, leads at −3 and −2, −1 the
-// reference): chi-square, F(q, G−1) as commonly used, the F on treated
-// degrees of freedom of Wald, and the WCR bootstrap of the Wald statistic
-// with the weights ChooseWeights picks.
+// reference): chi-square, W/q against F(q, G−1) as commonly used, against
+// F(q, H−1) as Wald reports it, Hotelling's form on (q, H−q) (rejected
+// alternative), and the WCR bootstrap of the Wald statistic with the weights
+// ChooseWeights picks.
 func TestLeadsValidate(t *testing.T) {
 	const reps = 1000
 	t.Log(" | G | G1 | reps | Wald chi2 | W/q vs F(q, G−1) | W/q vs F(q, H−1) | Hotelling F(q, H−q) | WCR Wald | ")
@@ -56,7 +57,7 @@ func TestLeadsValidate(t *testing.T) {
 		s.T, s.Start, s.Draws, s.Leads = 8, 5, 999, 2
 		c := wcrSimulate(t, s, reps, 7)
 		t.Logf(" | %d | %d | %d | %s | %s | %s | %s | %s | ", s.G, s.G1, c.reps, wcrRate(c.chi2, c.reps),
-			wcrRate(c.fG, c.reps), wcrRate(c.fH1, c.nFH1), wcrRate(c.fH, c.nFH), wcrRate(c.wild, c.reps))
+			wcrRate(c.fG, c.reps), wcrRate(c.fH, c.nFH), wcrRate(c.hot, c.nHot), wcrRate(c.wild, c.reps))
 		t.Run(fmt.Sprintf("G=%d G1=%d", s.G, s.G1), func(t *testing.T) {
 			if s.G1 >= 8 {
 				lo, hi := wcrWilson(c.wild, c.reps)

@@ -20,9 +20,9 @@ type WaldResult struct {
 	// H is the smaller of the treated and untreated cluster counts, the
 	// number of clusters the small-sample correction uses.
 	H int
-	// F = W·(H − Q)/(Q·(H − 1)) on (Q, H − Q) degrees of freedom with p-value
-	// PF; when H ≤ Q no correction is possible, HasF is false and F, PF are
-	// NaN (use WildWald).
+	// F = W/Q on (Q, H − 1) degrees of freedom with p-value PF; when H < 2
+	// no correction is possible, HasF is false and F, PF are NaN (use
+	// WildWald or Randomization).
 	F        float64
 	DF1, DF2 int
 	PF       float64
@@ -31,27 +31,34 @@ type WaldResult struct {
 
 // Wald tests Rβ = r jointly (R is q×k, r has q entries; nil r means zeros)
 // with the CR1 covariance, reporting the chi-square p-value and a
-// small-sample F whose degrees of freedom come from the treated clusters.
+// small-sample F whose denominator degrees of freedom come from the treated
+// clusters: W/q referred to F(q, H − 1), H = min(G₁, G₀).
 //
-// Why treated clusters: the CR1 covariance of a treatment contrast (an event
-// study's leads are treated-minus-control contrasts) is a sum over clusters
-// of squared scores in which, when the treated clusters are few, the G₁
-// treated scores dominate; its sampling distribution is then close to a
-// scaled chi-square on about G₁ − 1 degrees of freedom, not G − 1
-// (Welch–Satterthwaite; the Bell & McCaffrey 2002 degrees of freedom
-// recommended by Imbens & Kolesár 2016, "Robust standard errors in small
-// samples: some practical advice", Review of Economics and Statistics 98(4),
-// fall towards G₁ − 1 in this design; Carter, Schnepel & Steigerwald 2017,
-// Review of Economics and Statistics 99(4), show the effective number of
-// clusters falls towards G₁). With H = min(G₁, G₀) clusters standing in for
-// the sample size, the multivariate analogue is Hotelling's T² correction
-// F = W·(H − q)/(q·(H − 1)) ~ F(q, H − q), the approximate Hotelling test of
-// Pustejovsky & Tipton (2018, "Small-sample methods for cluster-robust
-// variance estimation and hypothesis testing in fixed effects models",
-// Journal of Business & Economic Statistics 36(4)) with its estimated degrees
-// of freedom replaced by this plug-in. For q = 1 it is the t test on H − 1
-// degrees of freedom. It is an approximation: the simulation in the tests
-// reports its size.
+// The usual small-sample rule refers W/q to F(q, G − 1) (Cameron & Miller
+// 2015, "A practitioner's guide to cluster-robust inference", Journal of
+// Human Resources 50(2), section VII.A; Stata's default). But the CR1
+// covariance of a treatment contrast (an event study's leads are
+// treated-minus-control contrasts) is a sum over clusters of squared scores
+// in which, when the treated clusters are few, the G₁ treated scores
+// dominate; its sampling distribution is then close to a scaled chi-square on
+// about G₁ − 1 degrees of freedom, not G − 1 (Welch–Satterthwaite; the Bell
+// & McCaffrey 2002 degrees of freedom that Imbens & Kolesár 2016, "Robust
+// standard errors in small samples: some practical advice", Review of
+// Economics and Statistics 98(4), recommend fall towards G₁ − 1 in this
+// design; Carter, Schnepel & Steigerwald 2017, Review of Economics and
+// Statistics 99(4), show the effective number of clusters falls towards
+// G₁). Hence H − 1 in place of G − 1, H counting the smaller arm. For q = 1
+// it is the t test on H − 1 degrees of freedom.
+//
+// Hotelling's T² form F = W·(H − q)/(q·(H − 1)) on (q, H − q), the shape of
+// the approximate Hotelling test of Pustejovsky & Tipton (2018, Journal of
+// Business & Economic Statistics 36(4)), was tried and rejected: with H
+// standing in for its estimated degrees of freedom it rejected 0.0–0.1% of
+// true nulls at 5% with three or four treated clusters. The simulation in
+// the tests (two leads, G = 40) measured W/q against F(q, H − 1) at
+// 2.2–3.4% for 3 to 20 treated clusters, against 18–47% for F(q, G − 1)
+// with 2 to 4; it is somewhat conservative, and WildWald is closer to 5%
+// from about eight treated clusters.
 func (f *OLS) Wald(R *mat.Dense, r []float64, treatedClusters int) (*WaldResult, error) {
 	q, diff, err := f.checkJoint(R, r)
 	if err != nil {
@@ -70,11 +77,11 @@ func (f *OLS) Wald(R *mat.Dense, r []float64, treatedClusters int) (*WaldResult,
 	}
 	res := &WaldResult{Stat: stat, Q: q, PChi2: distuv.ChiSquared{K: float64(q)}.Survival(stat),
 		H: min(treatedClusters, f.G-treatedClusters), F: math.NaN(), PF: math.NaN()}
-	if res.H > q {
+	if res.H >= 2 {
 		res.HasF = true
-		res.DF1, res.DF2 = q, res.H-q
-		res.F = stat * float64(res.H-q) / (float64(q) * float64(res.H-1))
-		res.PF = distuv.F{D1: float64(q), D2: float64(res.H - q)}.Survival(res.F)
+		res.DF1, res.DF2 = q, res.H-1
+		res.F = stat / float64(q)
+		res.PF = distuv.F{D1: float64(q), D2: float64(res.H - 1)}.Survival(res.F)
 	}
 	return res, nil
 }

@@ -37,14 +37,13 @@ func TestWaldAgainstSandwich(t *testing.T) {
 			if math.Abs(res.Stat-want) > 1e-9*want {
 				t.Fatalf("W = %.15g, R %.15g", res.Stat, want)
 			}
-			if res.Q != q || !res.HasF || res.DF2 != 250-q {
+			if res.Q != q || !res.HasF || res.DF1 != q || res.DF2 != 249 {
 				t.Fatalf("q %d, F df (%d, %d), has F %v", res.Q, res.DF1, res.DF2, res.HasF)
 			}
-			// Hotelling's correction (common practice, e.g. Pustejovsky & Tipton
-			// 2018, eq. for the AHT test): F = W(H − q)/(q(H − 1)).
-			wantF := want * float64(250-q) / (float64(q) * 249)
-			if math.Abs(res.F-wantF) > 1e-9*wantF {
-				t.Fatalf("F = %v, want %v", res.F, wantF)
+			// F = W/q on (q, H − 1) with H = 250.
+			wantP := distuv.F{D1: float64(q), D2: 249}.Survival(want / float64(q))
+			if math.Abs(res.F-want/float64(q)) > 1e-9*want || math.Abs(res.PF-wantP) > 1e-9 {
+				t.Fatalf("F = %v (p %v), want %v (p %v)", res.F, res.PF, want/float64(q), wantP)
 			}
 		})
 	}
@@ -69,13 +68,13 @@ func TestWaldScalarIsSquaredT(t *testing.T) {
 	if math.Abs(res.PF-pt) > 1e-10 {
 		t.Fatalf("PF %v, t(4) p %v", res.PF, pt)
 	}
-	// Too few treated clusters for q restrictions: no F.
-	res, err = f.Wald(mat.NewDense(2, 3, []float64{0, 1, 0, 0, 0, 1}), nil, 2)
+	// One treated cluster: no F.
+	res, err = f.Wald(mat.NewDense(2, 3, []float64{0, 1, 0, 0, 0, 1}), nil, 1)
 	if err != nil {
 		t.Fatal(err)
 	}
 	if res.HasF || !math.IsNaN(res.PF) {
-		t.Fatalf("F with H = 2, q = 2: %+v", res)
+		t.Fatalf("F with H = 1: %+v", res)
 	}
 	if _, err := f.Wald(mat.NewDense(1, 2, []float64{1, 0}), nil, 2); !errors.Is(err, ErrRequest) {
 		t.Fatalf("wrong width: %v", err)
