@@ -216,12 +216,10 @@ func (f *OLS) WildWald(ctx context.Context, R *mat.Dense, r []float64, o WildOpt
 	res.Enumerated, res.Draws = wcrEnumerates(o, G)
 	B := res.Draws
 	res.WStar = make([]float64, B)
-	sig := mat.NewSymDense(q, nil)
-	sraw := sig.RawSymmetric().Data // upper triangle used, stride q
-	craw := c.RawMatrix().Data      // G×q, stride q
+	sraw := make([]float64, q*q) // Σ_h P_h P_h', upper triangle, stride q
+	craw := c.RawMatrix().Data   // G×q, stride q
 	p := make([]float64, q)
-	var sch mat.Cholesky
-	var sol mat.VecDense
+	work := make([]float64, q*q+q)
 	hits := 0
 	for first := 0; first < B; first += wcrChunk {
 		if err := ctx.Err(); err != nil {
@@ -249,10 +247,9 @@ func (f *OLS) WildWald(ctx context.Context, R *mat.Dense, r []float64, o WildOpt
 					}
 				}
 			}
-			sig.ScaleSym(f.factor, sig)
 			w := math.Inf(1)
-			if sch.Factorize(sig) && sch.SolveVecTo(&sol, mat.NewVecDense(q, ur)) == nil {
-				w = mat.Dot(mat.NewVecDense(q, ur), &sol)
+			if x, ok := wcrCholQuad(sraw, ur, q, work); ok {
+				w = x / f.factor
 			}
 			res.WStar[first+b] = w
 			if w >= stat*(1-wcrTol) {
@@ -262,4 +259,44 @@ func (f *OLS) WildWald(ctx context.Context, R *mat.Dense, r []float64, o WildOpt
 	}
 	res.P = float64(hits) / float64(B)
 	return res, nil
+}
+
+// wcrCholQuad returns b'S⁻¹b for the symmetric q×q matrix S whose upper
+// triangle is in s (row-major, stride q), by a Cholesky factorisation in work
+// (q·q + q floats); ok is false when S is not numerically positive definite.
+func wcrCholQuad(s, b []float64, q int, work []float64) (float64, bool) {
+	l, y := work[:q*q], work[q*q:q*q+q]
+	scale := 0.0
+	for i := range q {
+		scale = max(scale, s[i*q+i])
+	}
+	for j := range q {
+		d := s[j*q+j]
+		for k := range j {
+			d -= l[j*q+k] * l[j*q+k]
+		}
+		if !(d > 1e-13*scale) {
+			return 0, false
+		}
+		d = math.Sqrt(d)
+		l[j*q+j] = d
+		for i := j + 1; i < q; i++ {
+			v := s[j*q+i]
+			for k := range j {
+				v -= l[i*q+k] * l[j*q+k]
+			}
+			l[i*q+j] = v / d
+		}
+	}
+	// b'S⁻¹b = |L⁻¹b|² with S = LL'.
+	out := 0.0
+	for i := range q {
+		v := b[i]
+		for k := range i {
+			v -= l[i*q+k] * y[k]
+		}
+		y[i] = v / l[i*q+i]
+		out += y[i] * y[i]
+	}
+	return out, true
 }
