@@ -1,7 +1,7 @@
 // Package infer holds inference primitives for estimates whose uncertainty
 // comes from few clusters, and in particular from few treated clusters: the
-// case of an import that covers a handful of areas. The difference-in-
-// differences estimators build their designs and call these; the package
+// case of an import that covers a handful of areas. The difference-in-differences
+// estimators build their designs and call these; the package
 // itself knows nothing of panels or imports and imports only the standard
 // library and gonum.
 //
@@ -33,10 +33,11 @@
 // null value costs O(B): the interval is found by root finding on that
 // p-value function (WildResult.PAt). Setup is O(N·k²), each draw O(G·k).
 //
-// OLS.Wald is the joint Wald test of q linear restriction Rβ = r (the leads of
-// an event study) with the CR1 covariance, reported as chi-square and as an
-// F with denominator degrees of freedom from the treated clusters; OLS.WildWald
-// bootstraps the same statistic with the joint null imposed.
+// OLS.Wald is the joint Wald test of q linear restrictions Rβ = r (the
+// leads of an event study) with the CR1 covariance, reported as chi-square
+// and as W/q against F(q, H − 1), H the smaller of the treated and untreated
+// cluster counts (reasons and sources at Wald); OLS.WildWald bootstraps the
+// same statistic with the joint null imposed.
 //
 // # Choosing weights and methods by treated clusters
 //
@@ -46,8 +47,17 @@
 // enumerated. MacKinnon & Webb (2017; 2018, Econometrics Journal 21(2)) show
 // that what governs the wild bootstrap's reliability is the number of treated
 // clusters, not the total: with one or two treated clusters the restricted
-// bootstrap under-rejects severely and its intervals are very wide or
-// unbounded; the randomization test below is then the honest report.
+// bootstrap under-rejects severely and its intervals are very wide.
+// ChooseMethod adds the step this package's simulation supports: below
+// MinTreatedForInterval (4) treated clusters, report the randomization test
+// and no interval.
+//
+// Measured in the simulation (sim_test.go; 1000 null panels per cell, G = 40
+// clusters of 1–12 units, heteroskedastic clustered errors, rejection at 5%
+// with Wilson 95% intervals in the tests' log): the CR1 t test on G − 1
+// degrees of freedom rejects 59% with one treated cluster, 24% with two and
+// 11% with four; WCR rejects 0–0.1% with one or two, 3.3–3.5% with four and
+// 4.2–6.2% with 8 or 20; randomization 4.5–6.0% throughout.
 //
 // # Randomization
 //

@@ -84,7 +84,7 @@ type RandomizationResult struct {
 // evaluated (the observed one among them) and P = Extreme/Reassignments;
 // otherwise Draws reassignments are drawn uniformly with replacement and
 // P = (1 + Extreme)/(1 + Draws), which is a valid p-value for any number of
-// draws (Davison & Hinkley 1997, Bootstrap Methods, eq. 4.11). Ties within a
+// draws (Davison & Hinkley 1997, Bootstrap Methods and their Application, ch. 4). Ties within a
 // relative 1e-9 count as extreme. An error from stat, or a NaN statistic,
 // stops the test with an error naming the reassignment. ctx is checked every
 // 64 statistics.

@@ -25,12 +25,7 @@ func TestSizeValidate(t *testing.T) {
 		c := wcrSimulate(t, s, reps, 2026)
 		t.Log(wcrTableRow(s, c))
 		t.Run(fmt.Sprintf("G=%d G1=%d", s.G, s.G1), func(t *testing.T) {
-			near5 := func(name string, x int) {
-				lo, hi := wcrWilson(x, c.reps)
-				if hi < 0.03 || lo > 0.07 {
-					t.Errorf("%s: rejection %s, want about 5%%", name, wcrRate(x, c.reps))
-				}
-			}
+			near5 := func(name string, x int) { t.Helper(); wcrWithin(t, name, x, c.reps, 0.03, 0.07) }
 			near5("randomization", c.perm)
 			if c.covRad+c.rad != c.reps || c.covWebb+c.webb != c.reps {
 				t.Errorf("interval and p-value disagree")
@@ -60,10 +55,7 @@ func TestLeadsValidate(t *testing.T) {
 			wcrRate(c.fG, c.reps), wcrRate(c.fH, c.nFH), wcrRate(c.hot, c.nHot), wcrRate(c.wild, c.reps))
 		t.Run(fmt.Sprintf("G=%d G1=%d", s.G, s.G1), func(t *testing.T) {
 			if s.G1 >= 8 {
-				lo, hi := wcrWilson(c.wild, c.reps)
-				if hi < 0.03 || lo > 0.07 {
-					t.Errorf("WCR Wald rejection %s, want about 5%%", wcrRate(c.wild, c.reps))
-				}
+				wcrWithin(t, "WCR Wald", c.wild, c.reps, 0.03, 0.07)
 			}
 		})
 	}

@@ -36,7 +36,7 @@ type WaldResult struct {
 //
 // The usual small-sample rule refers W/q to F(q, G − 1) (Cameron & Miller
 // 2015, "A practitioner's guide to cluster-robust inference", Journal of
-// Human Resources 50(2), section VII.A; Stata's default). But the CR1
+// Human Resources 50(2); Stata's default). But the CR1
 // covariance of a treatment contrast (an event study's leads are
 // treated-minus-control contrasts) is a sum over clusters of squared scores
 // in which, when the treated clusters are few, the G₁ treated scores
@@ -153,7 +153,7 @@ type WildWaldResult struct {
 // imposed (WCR): y* = Xβ̃ + v_g ũ with β̃ the restricted least-squares
 // estimate, W* computed with the CR1 covariance of each bootstrap fit. The
 // per-cluster algebra is that of WildTest with the q rows of R in place of a
-// (Roodman et al. 2019, section 3.5); each draw costs O(G·k·q + q³).
+// (Roodman et al. 2019); each draw costs O(G·k·q + q³).
 // Draws whose bootstrap covariance is singular count as at least as extreme.
 // Options other than Level and Tail apply as in WildTest. ctx is checked
 // between chunks of draws.

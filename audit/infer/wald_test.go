@@ -84,60 +84,17 @@ func TestWaldScalarIsSquaredT(t *testing.T) {
 	}
 }
 
-// wcrBruteW returns bootstrap Wald statistics of Rβ = r (r = 0) by imposing
-// the joint null with restricted least squares, building each bootstrap
-// sample and refitting it from scratch.
+// wcrBruteW returns bootstrap Wald statistics of Rβ = 0 by brute force.
 func wcrBruteW(tb testing.TB, toy wcrToy, R *mat.Dense, v *mat.Dense) []float64 {
 	tb.Helper()
-	n, k := toy.x.Dims()
-	beta, _ := wcrNaive(tb, toy.x, toy.y, toy.w, toy.cl)
-	xtx := mat.NewDense(k, k, nil)
-	for i := range n {
-		for a := range k {
-			for b := range k {
-				xtx.Set(a, b, xtx.At(a, b)+toy.w[i]*toy.x.At(i, a)*toy.x.At(i, b))
-			}
-		}
-	}
-	var inv mat.Dense
-	if err := inv.Inverse(xtx); err != nil {
-		tb.Fatal(err)
-	}
-	// β̃ = β̂ − A R'(R A R')⁻¹ R β̂ (Greene, Econometric Analysis, eq. 5-23).
-	var ar, rar, rarInv mat.Dense
-	ar.Mul(&inv, R.T())
-	rar.Mul(R, &ar)
-	if err := rarInv.Inverse(&rar); err != nil {
-		tb.Fatal(err)
-	}
-	var rb, lam, corr mat.VecDense
-	rb.MulVec(R, mat.NewVecDense(k, beta))
-	lam.MulVec(&rarInv, &rb)
-	corr.MulVec(&ar, &lam)
-	rest := make([]float64, k)
-	for j := range k {
-		rest[j] = beta[j] - corr.AtVec(j)
-	}
-	idx := map[int]int{}
-	for _, id := range wcrSortedIDs(toy.cl) {
-		idx[id] = len(idx)
-	}
-	nb, _ := v.Dims()
-	out := make([]float64, nb)
-	ys := make([]float64, n)
-	for b := range nb {
-		for i := range n {
-			fit := 0.0
-			for j := range k {
-				fit += toy.x.At(i, j) * rest[j]
-			}
-			ys[i] = fit + v.At(b, idx[toy.cl[i]])*(toy.y[i]-fit)
-		}
-		bs, vs := wcrNaive(tb, toy.x, ys, toy.w, toy.cl)
+	q, _ := R.Dims()
+	betas, covs := wcrBruteRefits(tb, toy, R, make([]float64, q), v)
+	out := make([]float64, len(betas))
+	for b := range betas {
 		var d mat.VecDense
-		d.MulVec(R, mat.NewVecDense(k, bs))
+		d.MulVec(R, mat.NewVecDense(len(betas[b]), betas[b]))
 		var rv, rvr, rvrInv mat.Dense
-		rv.Mul(R, vs)
+		rv.Mul(R, covs[b])
 		rvr.Mul(&rv, R.T())
 		if err := rvrInv.Inverse(&rvr); err != nil {
 			tb.Fatal(err)

@@ -46,14 +46,14 @@ func (s WeightScheme) String() string {
 // untreated) below which ChooseWeights picks Webb's six-point weights.
 //
 // With G clusters Rademacher weights give at most 2^G distinct bootstrap
-// samples, half of them mirror images; Webb (2023, section 3) recommends the
+// samples, half of them mirror images; Webb (2023) recommends the
 // six-point distribution when G is below about 12 (threshold from memory of
 // that paper). With few treated clusters the bootstrap t statistic of a
 // treatment coefficient is driven almost entirely by the weights of the G₁
 // treated clusters, so it is G₁ (or the untreated count G₀ when that is the
 // smaller) that limits the number of distinct values (MacKinnon & Webb 2017,
 // "Wild bootstrap inference for wildly different cluster sizes", J. Applied
-// Econometrics 32(2), sections 3–4; MacKinnon & Webb 2018, "The wild
+// Econometrics 32(2); MacKinnon & Webb 2018, "The wild
 // bootstrap for few (treated) clusters", Econometrics Journal 21(2)).
 const WebbBelow = 12
 
@@ -218,7 +218,7 @@ type WildResult struct {
 // a'β = r0, reusing the draws: the restricted residuals, and with them each
 // bootstrap t statistic, are affine in r0 (Roodman, MacKinnon, Nielsen &
 // Webb 2019, "Fast and wild: bootstrap inference in Stata using boottest",
-// Stata Journal 19(1), section 3.4), so each evaluation costs O(B).
+// Stata Journal 19(1)), so each evaluation costs O(B).
 func (w *WildResult) PAt(r0 float64) float64 {
 	sym, et := w.pBoth(r0)
 	if w.Tail == EqualTailed {
@@ -274,7 +274,7 @@ func (w *WildResult) pBoth(r0 float64) (sym, et float64) {
 // y* = Xβ̃ + v_g ũ for every observation of cluster g, refits, and forms
 // t*_b = (a'β̂*_b − r)/SE*_b with the CR1 variance of the refit. Nothing is
 // refitted: following Roodman et al. (2019, "Fast and wild", Stata Journal
-// 19(1), section 3) the per-cluster scores X_g'W_g ũ_g and blocks X_g'W_g X_g
+// 19(1)) the per-cluster scores X_g'W_g ũ_g and blocks X_g'W_g X_g
 // are computed once, after which each draw costs O(G·k) and each extra null
 // value O(1) per draw. With Rademacher weights and 2^G ≤ Draws all 2^G sign
 // vectors are enumerated (draw 0, all +1, reproduces the sample's t).

@@ -98,15 +98,15 @@ func wcrNaive(tb testing.TB, x *mat.Dense, y, w []float64, cl []int) ([]float64,
 	return beta.RawVector().Data, &v
 }
 
-// wcrBruteT returns the bootstrap t statistics of a'β = r for the given
-// weight rows (one row per draw, clusters in ascending id order) by imposing
-// the null, building every bootstrap sample and refitting it from scratch.
-func wcrBruteT(tb testing.TB, toy wcrToy, a []float64, r float64, v *mat.Dense) []float64 {
+// wcrBruteRefits imposes Rβ = r by restricted least squares
+// (β̃ = β̂ − A R'(R A R')⁻¹(Rβ̂ − r), A = (X'WX)⁻¹; Greene, Econometric
+// Analysis, ch. 5, from memory), builds the bootstrap sample of every weight
+// row of v (clusters in ascending id order), refits it from scratch with
+// wcrNaive and returns each refit's β* and CR1 covariance.
+func wcrBruteRefits(tb testing.TB, toy wcrToy, R *mat.Dense, r []float64, v *mat.Dense) ([][]float64, []*mat.Dense) {
 	tb.Helper()
 	n, k := toy.x.Dims()
 	beta, _ := wcrNaive(tb, toy.x, toy.y, toy.w, toy.cl)
-	// Restricted least squares (Greene, Econometric Analysis, eq. 5-23):
-	// β̃ = β̂ − A a (a'Aa)⁻¹ (a'β̂ − r), A = (X'WX)⁻¹.
 	xtx := mat.NewDense(k, k, nil)
 	for i := range n {
 		for p := range k {
@@ -119,32 +119,50 @@ func wcrBruteT(tb testing.TB, toy wcrToy, a []float64, r float64, v *mat.Dense) 
 	if err := inv.Inverse(xtx); err != nil {
 		tb.Fatal(err)
 	}
-	av := mat.NewVecDense(k, a)
-	var aa mat.VecDense
-	aa.MulVec(&inv, av)
-	gap := (mat.Dot(av, mat.NewVecDense(k, beta)) - r) / mat.Dot(av, &aa)
-	rb := make([]float64, k)
+	var ar, rar, rarInv mat.Dense
+	ar.Mul(&inv, R.T())
+	rar.Mul(R, &ar)
+	if err := rarInv.Inverse(&rar); err != nil {
+		tb.Fatal(err)
+	}
+	var gap, lam, corr mat.VecDense
+	gap.MulVec(R, mat.NewVecDense(k, beta))
+	gap.SubVec(&gap, mat.NewVecDense(len(r), r))
+	lam.MulVec(&rarInv, &gap)
+	corr.MulVec(&ar, &lam)
+	rest := make([]float64, k)
 	for j := range k {
-		rb[j] = beta[j] - aa.AtVec(j)*gap
+		rest[j] = beta[j] - corr.AtVec(j)
 	}
 	idx := map[int]int{}
 	for _, id := range wcrSortedIDs(toy.cl) {
 		idx[id] = len(idx)
 	}
 	nb, _ := v.Dims()
-	out := make([]float64, nb)
+	betas := make([][]float64, nb)
+	covs := make([]*mat.Dense, nb)
 	ys := make([]float64, n)
 	for b := range nb {
 		for i := range n {
 			fit := 0.0
 			for j := range k {
-				fit += toy.x.At(i, j) * rb[j]
+				fit += toy.x.At(i, j) * rest[j]
 			}
 			ys[i] = fit + v.At(b, idx[toy.cl[i]])*(toy.y[i]-fit)
 		}
-		bs, vs := wcrNaive(tb, toy.x, ys, toy.w, toy.cl)
-		se := math.Sqrt(mat.Inner(av, vs, av))
-		out[b] = (mat.Dot(av, mat.NewVecDense(k, bs)) - r) / se
+		betas[b], covs[b] = wcrNaive(tb, toy.x, ys, toy.w, toy.cl)
+	}
+	return betas, covs
+}
+
+// wcrBruteT returns the bootstrap t statistics of a'β = r by brute force.
+func wcrBruteT(tb testing.TB, toy wcrToy, a []float64, r float64, v *mat.Dense) []float64 {
+	tb.Helper()
+	betas, covs := wcrBruteRefits(tb, toy, mat.NewDense(1, len(a), a), []float64{r}, v)
+	av := mat.NewVecDense(len(a), a)
+	out := make([]float64, len(betas))
+	for b := range betas {
+		out[b] = (mat.Dot(av, mat.NewVecDense(len(a), betas[b])) - r) / math.Sqrt(mat.Inner(av, covs[b], av))
 	}
 	return out
 }
