@@ -2,6 +2,7 @@ package infer
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -444,5 +445,49 @@ func TestChooseByTreatedClusters(t *testing.T) {
 				t.Errorf("method %v, want %v", got, c.method)
 			}
 		})
+	}
+}
+
+func TestWildBadRequest(t *testing.T) {
+	toy := wcrMakeToy(t, 8, 3, 1)
+	fit, err := FitOLS(Design{X: toy.x, Y: toy.y, Weights: toy.w, Cluster: toy.cl})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ctx := context.Background()
+	cases := []struct {
+		name string
+		a    []float64
+		r    float64
+		o    WildOptions
+	}{
+		{"short restriction", []float64{0, 1}, 0, WildOptions{Weights: Webb}},
+		{"zero restriction", []float64{0, 0, 0}, 0, WildOptions{Weights: Webb}},
+		{"NaN null", []float64{0, 1, 0}, math.NaN(), WildOptions{Weights: Webb}},
+		{"level", []float64{0, 1, 0}, 0, WildOptions{Weights: Webb, Level: 1.5}},
+		{"negative draws", []float64{0, 1, 0}, 0, WildOptions{Weights: Webb, Draws: -1}},
+		{"auto without treated count", []float64{0, 1, 0}, 0, WildOptions{}},
+		{"more treated than clusters", []float64{0, 1, 0}, 0, WildOptions{TreatedClusters: 9}},
+		{"unknown weights", []float64{0, 1, 0}, 0, WildOptions{Weights: WeightScheme(7)}},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			if _, err := fit.WildTest(ctx, c.a, c.r, c.o); !errors.Is(err, ErrRequest) {
+				t.Fatalf("WildTest error %v, want ErrRequest", err)
+			}
+			if len(c.a) == 3 && !math.IsNaN(c.r) && c.a[1] != 0 {
+				if _, err := fit.WildWald(ctx, mat.NewDense(1, 3, c.a), nil, c.o); !errors.Is(err, ErrRequest) {
+					t.Fatalf("WildWald error %v, want ErrRequest", err)
+				}
+			}
+		})
+	}
+	cctx, cancel := context.WithCancel(ctx)
+	cancel()
+	if _, err := fit.WildTest(cctx, []float64{0, 1, 0}, 0, WildOptions{Weights: Webb}); !errors.Is(err, context.Canceled) {
+		t.Fatalf("cancelled WildTest: %v", err)
+	}
+	if _, err := fit.WildWald(cctx, mat.NewDense(1, 3, []float64{0, 1, 0}), nil, WildOptions{Weights: Webb}); !errors.Is(err, context.Canceled) {
+		t.Fatalf("cancelled WildWald: %v", err)
 	}
 }
