@@ -113,11 +113,6 @@ func FitOLS(d Design) (*OLS, error) {
 		if !wcrFinite(d.Y[i]) {
 			return nil, fmt.Errorf("%w: outcome %v at row %d", ErrDesign, d.Y[i], i)
 		}
-		for j := range k {
-			if v := d.X.At(i, j); !wcrFinite(v) {
-				return nil, fmt.Errorf("%w: X[%d, %d] = %v", ErrDesign, i, j, v)
-			}
-		}
 		rows = append(rows, i)
 	}
 	sort.SliceStable(rows, func(a, b int) bool { return d.Cluster[rows[a]] < d.Cluster[rows[b]] })
@@ -127,9 +122,20 @@ func FitOLS(d Design) (*OLS, error) {
 	w := make([]float64, N)
 	cl := make([]int, N)
 	var ids []int
+	raw, isDense := d.X.(*mat.Dense)
 	for r, i := range rows {
-		for j := range k {
-			x.Set(r, j, d.X.At(i, j))
+		dst := x.RawRowView(r)
+		if isDense {
+			copy(dst, raw.RawRowView(i))
+		} else {
+			for j := range k {
+				dst[j] = d.X.At(i, j)
+			}
+		}
+		for j, v := range dst {
+			if !wcrFinite(v) {
+				return nil, fmt.Errorf("%w: X[%d, %d] = %v", ErrDesign, i, j, v)
+			}
 		}
 		y[r] = d.Y[i]
 		w[r] = 1
@@ -160,8 +166,9 @@ func FitOLS(d Design) (*OLS, error) {
 	xs := mat.NewDense(N, k, nil)
 	for r := range N {
 		sw := math.Sqrt(w[r])
+		dst, src := xs.RawRowView(r), x.RawRowView(r)
 		for j := range k {
-			xs.Set(r, j, sw*x.At(r, j))
+			dst[j] = sw * src[j]
 		}
 	}
 	xtx := mat.NewSymDense(k, nil)
@@ -179,8 +186,9 @@ func FitOLS(d Design) (*OLS, error) {
 	}
 	xty := make([]float64, k)
 	for r := range N {
-		for j := range k {
-			xty[j] += w[r] * x.At(r, j) * y[r]
+		wy := w[r] * y[r]
+		for j, v := range x.RawRowView(r) {
+			xty[j] += wy * v
 		}
 	}
 	beta := make([]float64, k)
@@ -252,15 +260,16 @@ func wcrAbsorb(x *mat.Dense, y, w []float64, cl, rows, grp []int) (int, error) {
 	for r := range rows {
 		sw[g[r]] += w[r]
 		o := g[r] * (k + 1)
-		for j := range k {
-			sum[o+j] += w[r] * x.At(r, j)
+		for j, v := range x.RawRowView(r) {
+			sum[o+j] += w[r] * v
 		}
 		sum[o+k] += w[r] * y[r]
 	}
 	for r := range rows {
 		o := g[r] * (k + 1)
-		for j := range k {
-			x.Set(r, j, x.At(r, j)-sum[o+j]/sw[g[r]])
+		row := x.RawRowView(r)
+		for j := range row {
+			row[j] -= sum[o+j] / sw[g[r]]
 		}
 		y[r] -= sum[o+k] / sw[g[r]]
 	}

@@ -167,3 +167,11 @@ func TestFitOLSBadInput(t *testing.T) {
 		})
 	}
 }
+
+func TestFitOLSNonFiniteX(t *testing.T) {
+	x := mat.NewDense(4, 2, []float64{1, 0, 1, math.Inf(1), 1, 2, 1, 3})
+	_, err := FitOLS(Design{X: x, Y: []float64{1, 2, 3, 4}, Cluster: []int{2, 1, 2, 1}})
+	if !errors.Is(err, ErrDesign) || !strings.Contains(err.Error(), "X[1, 1]") {
+		t.Fatalf("error %v, want ErrDesign naming X[1, 1]", err)
+	}
+}
