@@ -245,68 +245,62 @@ func wcrTableRow(s wcrSimSpec, c wcrSimCounts) string {
 
 const wcrTableHead = " | G | G1 | reps | CR1 t(G−1) | CR1 t(H−1) | WCR Rademacher | WCR Webb | randomization | WCR-R coverage | WCR-W coverage | unbounded R/W | "
 
-// TestSizeQuick is the fast version of the size study (the long one is in
-// sim_validate_test.go behind the validate tag). The bounds are loose but
-// each would catch a broken method: with many treated clusters every test
-// must hold its size within sampling error, and with one treated cluster the
-// CR1 t test must show its known over-rejection (MacKinnon & Webb 2017)
-// while WCR and randomization must not over-reject.
+// TestSizeQuick is the fast version of the size studies (the long ones are
+// in sim_validate_test.go behind the validate tag). The bounds are loose but
+// each would catch a broken method. Single coefficient: with half the
+// clusters treated every test must hold its size within sampling error; with
+// one treated cluster the CR1 t test must show its known over-rejection
+// (MacKinnon & Webb 2017) while WCR and randomization must not over-reject,
+// and every interval must agree with its p-value. Two leads tested jointly:
+// with three treated clusters the chi-square must over-reject (the failure
+// the treated degrees of freedom fix) while the F on treated degrees of
+// freedom and the WCR bootstrap must not; with half treated the bootstrap
+// must hold 5% within sampling error.
 func TestSizeQuick(t *testing.T) {
 	if testing.Short() {
 		t.Skip("simulation")
 	}
-	const reps = 150
-	for _, s := range []wcrSimSpec{
-		{G: 30, G1: 1, T: 4, Start: 2, Draws: 199, PermDraws: 99},
-		{G: 30, G1: 15, T: 4, Start: 2, Draws: 199, PermDraws: 99},
-	} {
-		t.Run(fmt.Sprintf("G=%d G1=%d", s.G, s.G1), func(t *testing.T) {
-			c := wcrSimulate(t, s, reps, 1)
-			t.Log(wcrTableHead)
-			t.Log(wcrTableRow(s, c))
-			within := func(name string, x, n int, lo, hi float64) { t.Helper(); wcrWithin(t, name, x, n, lo, hi) }
-			within("randomization", c.perm, c.reps, 0.02, 0.08)
-			within("WCR Webb", c.webb, c.reps, 0, 0.08)
-			within("WCR Rademacher", c.rad, c.reps, 0, 0.08)
-			if c.covRad+c.rad != c.reps || c.covWebb+c.webb != c.reps {
-				t.Errorf("interval and p-value disagree: coverage %d+%d, rejections %d+%d of %d", c.covRad, c.covWebb, c.rad, c.webb, c.reps)
-			}
-			if s.G1 == 1 {
-				within("CR1 t(G−1), one treated cluster", c.cr1G, c.reps, 0.15, 1)
-			} else {
-				within("CR1 t(G−1)", c.cr1G, c.reps, 0.02, 0.08)
-				within("WCR Webb", c.webb, c.reps, 0.02, 0.08)
-				within("WCR Rademacher", c.rad, c.reps, 0.02, 0.08)
-			}
-		})
-	}
-}
-
-// TestLeadsQuick is the fast version of the joint lead test's size study:
-// with three treated clusters the plain chi-square must over-reject (the
-// failure the treated degrees of freedom fix) while the F on treated degrees
-// of freedom and the WCR bootstrap must not; with half the clusters treated
-// the bootstrap must hold 5% within sampling error.
-func TestLeadsQuick(t *testing.T) {
-	if testing.Short() {
-		t.Skip("simulation")
-	}
-	const reps = 120
-	for _, s := range []wcrSimSpec{
-		{G: 30, G1: 3, T: 6, Start: 4, Draws: 199, Leads: 2},
-		{G: 30, G1: 15, T: 6, Start: 4, Draws: 199, Leads: 2},
-	} {
-		t.Run(fmt.Sprintf("G=%d G1=%d", s.G, s.G1), func(t *testing.T) {
-			c := wcrSimulate(t, s, reps, 3)
-			t.Logf("chi2 %s, F(q,G-1) %s, F(q,H-1) %s, WCR Wald %s", wcrRate(c.chi2, c.reps), wcrRate(c.fG, c.reps),
-				wcrRate(c.fH, c.nFH), wcrRate(c.wild, c.reps))
+	cases := []struct {
+		s     wcrSimSpec
+		reps  int
+		check func(t *testing.T, c wcrSimCounts)
+	}{
+		{wcrSimSpec{G: 30, G1: 1, T: 4, Start: 2, Draws: 199, PermDraws: 99}, 150, func(t *testing.T, c wcrSimCounts) {
+			wcrWithin(t, "CR1 t(G−1), one treated cluster (known over-rejection)", c.cr1G, c.reps, 0.15, 1)
+			wcrWithin(t, "WCR Webb", c.webb, c.reps, 0, 0.08)
+			wcrWithin(t, "WCR Rademacher", c.rad, c.reps, 0, 0.08)
+		}},
+		{wcrSimSpec{G: 30, G1: 15, T: 4, Start: 2, Draws: 199, PermDraws: 99}, 150, func(t *testing.T, c wcrSimCounts) {
+			wcrWithin(t, "CR1 t(G−1)", c.cr1G, c.reps, 0.02, 0.08)
+			wcrWithin(t, "WCR Webb", c.webb, c.reps, 0.02, 0.08)
+			wcrWithin(t, "WCR Rademacher", c.rad, c.reps, 0.02, 0.08)
+		}},
+		{wcrSimSpec{G: 30, G1: 3, T: 6, Start: 4, Draws: 199, Leads: 2}, 120, func(t *testing.T, c wcrSimCounts) {
+			wcrWithin(t, "chi-square with three treated clusters (known over-rejection)", c.chi2, c.reps, 0.10, 1)
 			wcrWithin(t, "F(q, H−1)", c.fH, c.nFH, 0, 0.08)
-			if s.G1 == 15 {
-				wcrWithin(t, "WCR Wald", c.wild, c.reps, 0.02, 0.08)
+			wcrWithin(t, "WCR Wald", c.wild, c.reps, 0, 0.08)
+		}},
+		{wcrSimSpec{G: 30, G1: 15, T: 6, Start: 4, Draws: 199, Leads: 2}, 120, func(t *testing.T, c wcrSimCounts) {
+			wcrWithin(t, "F(q, H−1)", c.fH, c.nFH, 0, 0.08)
+			wcrWithin(t, "WCR Wald", c.wild, c.reps, 0.02, 0.08)
+		}},
+	}
+	for _, tc := range cases {
+		s := tc.s
+		t.Run(fmt.Sprintf("G=%d G1=%d leads=%d", s.G, s.G1, s.Leads), func(t *testing.T) {
+			c := wcrSimulate(t, s, tc.reps, uint64(1+s.Leads))
+			if s.Leads > 0 {
+				t.Logf("chi2 %s, F(q,G-1) %s, F(q,H-1) %s, WCR Wald %s", wcrRate(c.chi2, c.reps), wcrRate(c.fG, c.reps),
+					wcrRate(c.fH, c.nFH), wcrRate(c.wild, c.reps))
 			} else {
-				wcrWithin(t, "WCR Wald", c.wild, c.reps, 0, 0.08)
-				wcrWithin(t, "chi-square with three treated clusters (known over-rejection)", c.chi2, c.reps, 0.10, 1)
+				t.Log(wcrTableHead)
+				t.Log(wcrTableRow(s, c))
+				wcrWithin(t, "randomization", c.perm, c.reps, 0.02, 0.08)
+				if c.covRad+c.rad != c.reps || c.covWebb+c.webb != c.reps {
+					t.Errorf("interval and p-value disagree: coverage %d+%d, rejections %d+%d of %d", c.covRad, c.covWebb, c.rad, c.webb, c.reps)
+				}
 			}
+			tc.check(t, c)
 		})
 	}
 }
