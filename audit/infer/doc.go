@@ -52,12 +52,13 @@
 // MinTreatedForInterval (4) treated clusters, report the randomization test
 // and no interval.
 //
-// Measured in the simulation (sim_test.go; 1000 null panels per cell, G = 40
-// clusters of 1–12 units, heteroskedastic clustered errors, rejection at 5%
-// with Wilson 95% intervals in the tests' log): the CR1 t test on G − 1
-// degrees of freedom rejects 59% with one treated cluster, 24% with two and
-// 11% with four; WCR rejects 0–0.1% with one or two, 3.3–3.5% with four and
-// 4.2–6.2% with 8 or 20; randomization 4.5–6.0% throughout.
+// Measured in the simulation (sim_test.go; 1000 null panels per cell, G = 20
+// and 40 clusters of 1–12 units, heteroskedastic clustered errors, rejection
+// at 5% with Wilson 95% intervals in the tests' log): the CR1 t test on G − 1
+// degrees of freedom rejects 50–59% with one treated cluster, 24% with two
+// and 9–11% with three or four; WCR rejects 0–0.1% with one or two, 1.5–1.8%
+// with three, 3.3–3.5% with four and 4.2–6.2% with 8 to 20; randomization
+// 4.1–6.0% throughout.
 //
 // # Randomization
 //
