@@ -1,18 +1,14 @@
-// Package audit finds past imports in an edit history and measures what
-// followed them.
+// Package audit runs the audit of one past import: one request in (the
+// import, its units and the study options), the study built once (package
+// study) and handed to the estimators (did) and the checklist (checklist),
+// and the JSON contract out (Report; README, "The audit JSON"). It also
+// audits the past imports an assessment of a proposal names (AssessPast).
 //
-// The steps, each usable on its own:
-//   - DetectImports groups import changesets into episodes (imports.go), by the
-//     import rules of a rules.RuleSet or by changesets and accounts a user names;
-//   - spatial units, panels of follow-on activity per unit and month, matching
-//     of import areas with untouched areas, and the difference-in-differences
-//     estimators (plain and staggered) compare what happened next;
-//   - checklists list attribute keys imported features went without, and a
-//     proposal is assessed against past imports.
-//
-// audit reads history through small interfaces it declares (HistorySource and
-// the readers of the other steps); *ingest.Store meets them, and audit does not
-// import ingest. It uses the layers and rules packages.
+// The jobs live in sub-packages, each usable on its own: episode (finding
+// imports), spatial (units), panel, match, did, study, checklist, proposal,
+// markdown (escaping), report (files a reviewer posts) and sim (invented
+// worlds). audit reads the store through the small interfaces they declare;
+// *ingest.Store meets them and no audit package imports ingest.
 //
 // Figures from this package are evidence for a community's review of an
 // import, not a verdict on it or on the people who made it: imports follow the
