@@ -145,7 +145,8 @@ func demoStore(ctx context.Context, cfg sim.Config, p demoPaths) (*ingest.Store,
 		return nil, err
 	}
 	paths := []string{filepath.Join(p.world, sim.HistoryFile), filepath.Join(p.world, sim.ChangesetsFile)}
-	if _, err := ingest.Ingest(ctx, st, paths, ingest.IngestOptions{}); err == nil {
+	_, err = ingest.Ingest(ctx, st, paths, ingest.IngestOptions{})
+	if err == nil {
 		_, err = layers.Run(ctx, st, rules.Default(), layers.Options{})
 	}
 	if err != nil {
