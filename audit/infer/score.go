@@ -109,12 +109,15 @@ type ScoreOptions struct {
 	// Tol is the precision of the interval's ends, as a fraction of the
 	// CR1 standard error at the estimate.
 	Tol float64
+	// MaxSE bounds the search for each end to MaxSE standard errors from
+	// the estimate; an end not rejected there is reported as infinite.
+	MaxSE float64
 }
 
 // DefaultScoreOptions returns level 0.95, 9999 draws, automatic weights,
-// seed 1 and ends to 1e-6 standard errors.
+// seed 1, ends to 1e-6 standard errors searched up to 50 standard errors.
 func DefaultScoreOptions() ScoreOptions {
-	return ScoreOptions{Level: 0.95, Draws: 9999, Weights: ScoreWeightsAuto, Seed: 1, Tol: 1e-6}
+	return ScoreOptions{Level: 0.95, Draws: 9999, Weights: ScoreWeightsAuto, Seed: 1, Tol: 1e-6, MaxSE: 50}
 }
 
 // ScoreResult is the outcome of ScoreBootstrap.
@@ -123,7 +126,10 @@ type ScoreResult struct {
 	Stat float64 // score statistic t at Null (signed, with the factor f)
 	P    float64 // bootstrap p-value at Null
 	// Lo and Hi bound the set of b0 not rejected at 1 − Level: the last
-	// accepted values found on either side of the estimate.
+	// accepted values found on either side of the estimate, −Inf or +Inf
+	// when nothing within MaxSE standard errors is rejected (common with
+	// very few treated clusters: the bootstrap distribution then has few
+	// distinct values and cannot reach below 1 − Level).
 	Lo, Hi     float64
 	SE         float64      // CR1 standard error of a'β̂ at the estimate
 	Weights    ScoreWeights // the weights used (never auto)
@@ -139,8 +145,7 @@ var (
 	// Hessian that is not positive definite, fewer than 2 clusters.
 	ErrScoreInput = errors.New("infer: score bootstrap input")
 	// ErrScoreInterval marks an interval that cannot be found: the estimate
-	// itself is rejected, or no rejected value lies within 2^40 standard
-	// errors.
+	// itself is rejected.
 	ErrScoreInterval = errors.New("infer: score bootstrap interval")
 )
 
@@ -149,8 +154,8 @@ var (
 // unrestricted estimate. fit is called for null, est and each candidate end
 // point (about 2·(log2(1/Tol)+5) times). ctx is checked before each fit.
 func ScoreBootstrap(ctx context.Context, fit ScoreFitter, a []float64, est, null float64, opts ScoreOptions) (*ScoreResult, error) {
-	if len(a) == 0 || !(opts.Level > 0 && opts.Level < 1) || opts.Draws < 1 || !(opts.Tol > 0) || !finiteScore(est) || !finiteScore(null) {
-		return nil, fmt.Errorf("%w: need a restriction, 0 < level < 1, draws ≥ 1, tol > 0 and finite values", ErrScoreInput)
+	if len(a) == 0 || !(opts.Level > 0 && opts.Level < 1) || opts.Draws < 1 || !(opts.Tol > 0) || !(opts.MaxSE >= 1) || !finiteScore(est) || !finiteScore(null) {
+		return nil, fmt.Errorf("%w: need a restriction, 0 < level < 1, draws ≥ 1, tol > 0, max_se ≥ 1 and finite values", ErrScoreInput)
 	}
 	sb := &scoreBoot{ctx: ctx, fit: fit, a: a, opts: opts}
 	alpha := 1 - opts.Level
@@ -356,28 +361,28 @@ func (sb *scoreBoot) pvalue(c []float64, f float64) float64 {
 	return float64(hits+1) / float64(sb.b+1)
 }
 
-// end finds the interval's end on one side of est: doubling steps of se
-// until a rejected b0, then bisection to Tol·se; it returns the last
-// accepted value.
+// end finds the interval's end on one side of est: steps of se doubling up
+// to MaxSE·se until a rejected b0, then bisection to Tol·se; it returns the
+// last accepted value, or ±Inf when MaxSE·se is accepted.
 func (sb *scoreBoot) end(est, side, se, alpha float64) (float64, error) {
 	in, step := est, se
 	var out float64
-	found := false
-	for range 40 {
+	for {
+		step = min(step, sb.opts.MaxSE*se)
 		b0 := est + side*step
 		c, f, err := sb.contributions(b0)
 		if err != nil {
 			return 0, err
 		}
 		if sb.pvalue(c, f) <= alpha {
-			out, found = b0, true
+			out = b0
 			break
+		}
+		if step >= sb.opts.MaxSE*se {
+			return math.Inf(int(side)), nil
 		}
 		in = b0
 		step *= 2
-	}
-	if !found {
-		return 0, fmt.Errorf("%w: no rejected value within 2^40 standard errors of %g", ErrScoreInterval, est)
 	}
 	for math.Abs(out-in) > sb.opts.Tol*se {
 		mid := (in + out) / 2

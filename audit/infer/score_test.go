@@ -529,3 +529,25 @@ func TestScoreBootstrapErrors(t *testing.T) {
 		t.Errorf("cancelled: %v", err)
 	}
 }
+
+// TestScoreUnboundedWithOneTreated: with one treated cluster its score
+// dominates every restricted fit far from the estimate, each |t*| then
+// equals |t| and nothing is rejected: the interval must be reported as
+// unbounded rather than cut at the search limit.
+func TestScoreUnboundedWithOneTreated(t *testing.T) {
+	rng := rand.New(rand.NewPCG(5, 5))
+	p := scoreSimPanel(rng, 12, 1, 6, -0.2)
+	est := scorePanelEstimate(t, p)
+	opts := DefaultScoreOptions()
+	opts.Weights, opts.MaxSE = ScoreRademacher, 20
+	r, err := ScoreBootstrap(context.Background(), p.fitter(), []float64{1, 0, 0, 0, 0, 0}, est, est+3*0.2, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !math.IsInf(r.Lo, -1) || !math.IsInf(r.Hi, 1) {
+		t.Errorf("interval [%g, %g], want unbounded on both sides", r.Lo, r.Hi)
+	}
+	if r.P <= 0.05 {
+		t.Errorf("p = %g inside an unbounded interval", r.P)
+	}
+}
