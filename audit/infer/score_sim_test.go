@@ -14,6 +14,7 @@ import (
 type scoreSimResult struct {
 	reps, rejected, covered int
 	wald                    int // rejections by the analytic CR1 Wald t against t(G−1), for comparison
+	unbounded               int // intervals with an infinite end
 }
 
 // scoreSimStudy draws reps invented panels (scoreSimPanel: g units, nt
@@ -43,6 +44,9 @@ func scoreSimStudy(tb testing.TB, seed uint64, reps, g, nt, T, draws int) scoreS
 		}
 		if res.Lo <= beta && beta <= res.Hi {
 			r.covered++
+		}
+		if math.IsInf(res.Lo, 0) || math.IsInf(res.Hi, 0) {
+			r.unbounded++
 		}
 		crit := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(res.Clusters - 1)}.Quantile(0.975)
 		if math.Abs(est-beta)/res.SE > crit {
