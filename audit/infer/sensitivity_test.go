@@ -96,7 +96,7 @@ func TestRMIdentifiedSetAgainstGrid(t *testing.T) {
 	}
 }
 
-// rrTestStudy is an invented event study: 3 leads, 2 lags, covariance
+// rrTestStudy is an invented event study with covariance
 // σ²(0.5^|i−j|).
 func rrTestStudy(pre, post []float64, sigma float64) EventStudy {
 	n := len(pre) + len(post)
