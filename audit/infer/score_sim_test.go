@@ -67,7 +67,7 @@ func scoreWilson(k, n int) (lo, hi float64) {
 	return c - h, c + h
 }
 
-// TestScoreSimulationQuick: 120 invented panels with 8 treated of 40
+// TestScoreSimulationQuick: 100 invented panels with 8 treated of 40
 // clusters. The restricted score bootstrap must hold its size: the Wilson
 // interval of the rejection rate must reach down to 5% or below and must not
 // lie entirely under 1% (a test that never rejects is useless), and
@@ -77,7 +77,7 @@ func TestScoreSimulationQuick(t *testing.T) {
 	if testing.Short() {
 		t.Skip("simulation")
 	}
-	r := scoreSimStudy(t, 42, 120, 40, 8, 8, 399)
+	r := scoreSimStudy(t, 42, 100, 40, 8, 8, 299)
 	lo, hi := scoreWilson(r.rejected, r.reps)
 	clo, chi := scoreWilson(r.covered, r.reps)
 	t.Logf("8 of 40 treated: size %d/%d [%.3f, %.3f], coverage %d/%d [%.3f, %.3f]", r.rejected, r.reps, lo, hi, r.covered, r.reps, clo, chi)

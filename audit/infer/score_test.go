@@ -190,7 +190,7 @@ func TestScoreBootstrapFatalities(t *testing.T) {
 	a := make([]float64, k)
 	a[1] = 1
 	opts := DefaultScoreOptions()
-	opts.Draws, opts.Tol = 999, 1e-4
+	opts.Draws, opts.Tol = 999, 1e-3
 	ctx := context.Background()
 	r, err := ScoreBootstrap(ctx, d.fitter(0), a, est, 0, opts)
 	if err != nil {

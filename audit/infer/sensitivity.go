@@ -334,6 +334,7 @@ type rr struct {
 	ginv  *mat.Dense // Γ⁻¹
 	seTh  float64    // standard error of l'β̂_post
 	lfMem map[rrKey]float64
+	eager bool // always simulate c_LF (tests compare the shortcut against it)
 }
 
 type rrKey struct {
@@ -507,19 +508,22 @@ func (r *rr) lfCritical(mo *rrMoments, key rrKey, kappa float64) (float64, error
 		}
 		etas[d] = e
 	}
-	sort.Float64s(etas)
-	// type 7 quantile
-	h := float64(len(etas)-1) * (1 - kappa)
-	i := int(h)
-	c := etas[i]
-	if i+1 < len(etas) {
-		c += (h - float64(i)) * (etas[i+1] - etas[i])
-	}
+	c := rrQuantile(etas, 1-kappa)
 	r.lfMem[key] = c
 	return c, nil
 }
 
 // reject runs the hybrid (or conditional) test of θ̄ on one cone.
+//
+// The least-favourable critical value costs LFDraws linear programs per
+// cone and M̄, so it is simulated only when the decision needs it. The
+// conditional p-value P(η ≥ η̂ | V^lo ≤ η ≤ u) grows with the upper cut u,
+// and c_LF is at least c_low, the same quantile of γ̂'ξ over the same
+// draws (η(ξ) ≥ γ̂'ξ for each draw, γ̂ being dual-feasible). Hence: a
+// rejection with u = V^up is a rejection whatever c_LF is, and acceptance
+// with η̂ ≤ c_low and u = min(V^up, c_low) is an acceptance whatever c_LF
+// is; only the remaining cases simulate c_LF. The decisions are those of
+// the test with c_LF always computed (checked in the tests).
 func (r *rr) reject(mo *rrMoments, key rrKey, theta float64) (bool, error) {
 	m := len(mo.y0)
 	y := make([]float64, m)
@@ -530,24 +534,68 @@ func (r *rr) reject(mo *rrMoments, key rrKey, theta float64) (bool, error) {
 	if err != nil {
 		return false, err
 	}
+	// γ̂'Y without variance (γ̂ on a pair of opposite moments, as M̄ = 0
+	// makes the post rows): γ̂'Y = γ̂'E[Y] ≤ 0 under the null, so the exact
+	// test rejects when η̂ > 0 (σ'γ̂ = 1 makes γ̂'Σ_Yγ̂ of order 1)
+	gv := mat.NewVecDense(m, g)
+	if mat.Inner(gv, mo.sy, gv) < 1e-10 {
+		return eta > 1e-9, nil
+	}
 	alpha := r.opts.Alpha
-	cLF := math.Inf(1)
-	if r.opts.LFDraws > 0 {
-		kappa := alpha / 10
-		if cLF, err = r.lfCritical(mo, key, kappa); err != nil {
-			return false, err
-		}
-		if eta > cLF {
-			return true, nil
-		}
-		alpha = (alpha - kappa) / (1 - kappa)
+	kappa := alpha / 10
+	if c, ok := r.lfMem[key]; ok && r.opts.LFDraws > 0 && eta > c {
+		return true, nil // the first stage rejects; c_LF already known
 	}
 	sgm, vlo, vup, err := mo.truncation(y, eta, g)
 	if err != nil {
 		return false, err
 	}
-	vup = min(vup, cLF)
-	return rrTruncP(eta/sgm, vlo/sgm, vup/sgm) <= alpha, nil
+	if r.opts.LFDraws == 0 {
+		return rrTruncP(eta/sgm, vlo/sgm, vup/sgm) <= alpha, nil
+	}
+	alpha = (alpha - kappa) / (1 - kappa)
+	if !r.eager {
+		if rrTruncP(eta/sgm, vlo/sgm, vup/sgm) <= alpha {
+			return true, nil
+		}
+		if cLow := r.lfLower(mo, g, kappa); eta <= cLow && rrTruncP(eta/sgm, vlo/sgm, min(vup, cLow)/sgm) > alpha {
+			return false, nil
+		}
+	}
+	cLF, err := r.lfCritical(mo, key, kappa)
+	if err != nil {
+		return false, err
+	}
+	if eta > cLF {
+		return true, nil
+	}
+	return rrTruncP(eta/sgm, vlo/sgm, min(vup, cLF)/sgm) <= alpha, nil
+}
+
+// lfLower returns the 1 − κ quantile (type 7) of γ'ξ over the
+// least-favourable draws ξ = A z: a lower bound of the simulated c_LF for
+// any dual-feasible γ.
+func (r *rr) lfLower(mo *rrMoments, g []float64, kappa float64) float64 {
+	m, n := len(mo.y0), r.tp+r.tq
+	var ga mat.VecDense // A'γ
+	ga.MulVec(mo.a.T(), mat.NewVecDense(m, g))
+	vals := make([]float64, r.opts.LFDraws)
+	for d := range vals {
+		vals[d] = mat.Dot(&ga, mat.NewVecDense(n, r.z.RawRowView(d)))
+	}
+	return rrQuantile(vals, 1-kappa)
+}
+
+// rrQuantile is the type 7 quantile of xs (sorted in place).
+func rrQuantile(xs []float64, q float64) float64 {
+	sort.Float64s(xs)
+	h := float64(len(xs)-1) * q
+	i := int(h)
+	v := xs[i]
+	if i+1 < len(xs) {
+		v += (h - float64(i)) * (xs[i+1] - xs[i])
+	}
+	return v
 }
 
 // truncation returns the standard deviation of γ̂'Y and the interval

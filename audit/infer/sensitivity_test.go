@@ -274,7 +274,7 @@ func TestRMParallelTrendsLimit(t *testing.T) {
 	es := rrTestStudy([]float64{0.02, -0.01, 0.01}, []float64{-0.3, -0.35}, 0.05)
 	l := []float64{0.5, 0.5}
 	opts := DefaultRMOptions()
-	opts.LFDraws = 200
+	opts.LFDraws = 100
 	ivs, err := RelativeMagnitudes(context.Background(), es, l, []float64{0, 1, 3}, opts)
 	if err != nil {
 		t.Fatal(err)
@@ -301,7 +301,7 @@ func TestRMBreakdownAgreesWithIntervals(t *testing.T) {
 	es := rrTestStudy([]float64{0.02, -0.03, 0.01}, []float64{-0.25, -0.3}, 0.04)
 	l := []float64{0.5, 0.5}
 	opts := DefaultRMOptions()
-	opts.LFDraws = 200
+	opts.LFDraws = 100
 	ctx := context.Background()
 	b, err := RMBreakdownValue(ctx, es, l, opts)
 	if err != nil {
@@ -373,4 +373,54 @@ func TestRMErrors(t *testing.T) {
 			}
 		})
 	}
+}
+
+// TestRMShortcutMatchesFullHybrid: skipping the least-favourable
+// simulation where the decision cannot depend on it gives the same
+// decisions as always simulating it, on a grid of θ̄ over every cone.
+func TestRMShortcutMatchesFullHybrid(t *testing.T) {
+	es := rrTestStudy([]float64{0.02, -0.03, 0.01}, []float64{-0.25, -0.3}, 0.04)
+	l := []float64{0.5, 0.5}
+	opts := DefaultRMOptions()
+	opts.LFDraws = 150
+	lazy, err := newRR(es, l, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	full, err := newRR(es, l, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	full.eager = true
+	rejections, skipped := 0, 0
+	for _, mb := range []float64{0, 0.7, 1.5} {
+		for ci, cone := range rrCones(3, 2, mb) {
+			mo := lazy.moments(cone)
+			key := rrKey{mb, ci}
+			for i := range 31 {
+				th := -0.7 + 0.0333*float64(i)
+				a, err := lazy.reject(mo, key, th)
+				if err != nil {
+					t.Fatal(err)
+				}
+				b, err := full.reject(mo, key, th)
+				if err != nil {
+					t.Fatal(err)
+				}
+				if a != b {
+					t.Errorf("M̄ %g cone %d θ̄ %g: shortcut rejects %v, full hybrid %v", mb, ci, th, a, b)
+				}
+				if b {
+					rejections++
+				}
+			}
+			if _, ok := lazy.lfMem[key]; !ok {
+				skipped++
+			}
+		}
+	}
+	if rejections == 0 || rejections == 3*6*31 {
+		t.Errorf("%d rejections of %d: the grid does not cross the sets' ends", rejections, 3*6*31)
+	}
+	t.Logf("%d of %d tests reject; %d of 18 cones never simulated c_LF", rejections, 3*6*31, skipped)
 }
