@@ -455,6 +455,15 @@ func (r *rr) moments(cone [][]float64) *rrMoments {
 	return mo
 }
 
+// at returns the moments Y(θ̄) = y0 − y1·θ̄.
+func (mo *rrMoments) at(theta float64) []float64 {
+	y := make([]float64, len(mo.y0))
+	for i := range y {
+		y[i] = mo.y0[i] - mo.y1[i]*theta
+	}
+	return y
+}
+
 // eta solves max γ'y s.t. γ ≥ 0, X'γ = 0, σ'γ = 1 and returns the value
 // and γ.
 func (mo *rrMoments) eta(y []float64) (float64, []float64, error) {
@@ -526,10 +535,7 @@ func (r *rr) lfCritical(mo *rrMoments, key rrKey, kappa float64) (float64, error
 // the test with c_LF always computed (checked in the tests).
 func (r *rr) reject(mo *rrMoments, key rrKey, theta float64) (bool, error) {
 	m := len(mo.y0)
-	y := make([]float64, m)
-	for i := range m {
-		y[i] = mo.y0[i] - mo.y1[i]*theta
-	}
+	y := mo.at(theta)
 	eta, g, err := mo.eta(y)
 	if err != nil {
 		return false, err

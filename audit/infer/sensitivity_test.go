@@ -126,10 +126,7 @@ func TestRMStatisticAgainstBruteForce(t *testing.T) {
 		mo := r.moments(cone)
 		for _, theta := range []float64{-0.4, -0.22, 0, 0.1} {
 			m := len(mo.y0)
-			y := make([]float64, m)
-			for i := range y {
-				y[i] = mo.y0[i] - mo.y1[i]*theta
-			}
+			y := mo.at(theta)
 			eta, g, err := mo.eta(y)
 			if err != nil {
 				t.Fatal(err)
@@ -214,14 +211,9 @@ func rrNear(a, b, tol float64) bool {
 func rrBruteTruncation(mo *rrMoments, y []float64, eta float64, g []float64) (float64, float64) {
 	m := len(y)
 	_, k := mo.x.Dims()
-	gv := mat.NewVecDense(m, g)
-	sg2 := mat.Inner(gv, mo.sy, gv)
-	c := make([]float64, m)
-	mat.NewVecDense(m, c).MulVec(mo.sy, gv)
-	s := make([]float64, m)
-	for i := range m {
-		c[i] /= sg2
-		s[i] = y[i] - c[i]*eta
+	_, c, s, err := mo.conditioning(y, eta, g) // the definitions of c and S
+	if err != nil {
+		return math.NaN(), math.NaN()
 	}
 	lo, up := math.Inf(-1), math.Inf(1)
 	idx := make([]int, k+1)
