@@ -19,8 +19,8 @@ type scoreSimResult struct {
 
 // scoreSimStudy draws reps invented panels (scoreSimPanel: g units, nt
 // treated, T months, true log effect −0.2) and runs ScoreBootstrap at the
-// true value with draws bootstrap draws and automatic weights.
-func scoreSimStudy(tb testing.TB, seed uint64, reps, g, nt, T, draws int) scoreSimResult {
+// true value with draws bootstrap draws and the given weights.
+func scoreSimStudy(tb testing.TB, seed uint64, reps, g, nt, T, draws int, w ScoreWeights) scoreSimResult {
 	tb.Helper()
 	const beta = -0.2
 	rng := rand.New(rand.NewPCG(seed, uint64(g*1000+nt)))
@@ -28,7 +28,7 @@ func scoreSimStudy(tb testing.TB, seed uint64, reps, g, nt, T, draws int) scoreS
 	a := make([]float64, T)
 	a[0] = 1
 	opts := DefaultScoreOptions()
-	opts.Draws, opts.Tol = draws, 1e-3
+	opts.Draws, opts.Tol, opts.Weights = draws, 1e-3, w
 	var r scoreSimResult
 	for rep := range reps {
 		p := scoreSimPanel(rng, g, nt, T, beta)
@@ -77,7 +77,7 @@ func TestScoreSimulationQuick(t *testing.T) {
 	if testing.Short() {
 		t.Skip("simulation")
 	}
-	r := scoreSimStudy(t, 42, 100, 40, 8, 8, 299)
+	r := scoreSimStudy(t, 42, 100, 40, 8, 8, 299, ScoreWeightsAuto)
 	lo, hi := scoreWilson(r.rejected, r.reps)
 	clo, chi := scoreWilson(r.covered, r.reps)
 	t.Logf("8 of 40 treated: size %d/%d [%.3f, %.3f], coverage %d/%d [%.3f, %.3f]", r.rejected, r.reps, lo, hi, r.covered, r.reps, clo, chi)
