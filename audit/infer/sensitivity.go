@@ -49,11 +49,16 @@ import (
 // max γ'Y s.t. γ ≥ 0, X'γ = 0, σ'γ = 1. Given the optimal vertex γ̂ and
 // the part of Y independent of γ̂'Y, η̂ is normal with mean γ̂'E[Y] ≤ 0
 // under the null and variance γ̂'Σ_Yγ̂, truncated to the interval [V^lo,
-// V^up] of values for which γ̂ stays optimal; the ends are found by
-// bisection on the dual program's value. The hybrid first rejects when η̂
+// V^up] of values for which γ̂ stays optimal; the ends come in closed form
+// from the reduced costs of γ̂'s basis when the vertex is non-degenerate,
+// otherwise by bisection on the dual program's value (both checked against
+// an enumeration of the dual polytope's vertices). A γ̂ with γ̂'Σ_Yγ̂ = 0
+// makes η̂ = γ̂'E[Y] exactly, and the test rejects when η̂ > 0. The hybrid
+// first rejects when η̂
 // exceeds the least-favourable critical value c_LF (the 1 − κ quantile of
 // η̂ when E[Y] = 0, κ = α/10, by simulation), then applies the conditional
-// test at level (α − κ)/(1 − κ) with V^up cut at c_LF. With LFDraws = 0 the
+// test at level (α − κ)/(1 − κ) with V^up cut at c_LF (c_LF is simulated
+// only where the decision depends on it; see reject). With LFDraws = 0 the
 // plain conditional test at level α is used.
 //
 // The robust set of each cone is found on a grid of θ̄ (GridPoints over the
@@ -61,7 +66,14 @@ import (
 // widened again while an end is kept) and its outermost crossings refined by
 // bisection; the reported interval is the hull of the union. The breakdown
 // value M̄* is the largest M̄ at which every cone rejects θ̄ = 0, found by
-// bisection on M̄ (the sets grow with M̄).
+// bisection on M̄: this assumes the robust set grows with M̄, as the cones
+// do (Δ_{s,±}(M̄) are nested in M̄), though the finite-sample tests need not
+// be exactly monotone.
+//
+// No worked example of the paper could be reproduced: its applications'
+// event-study estimates ship with the authors' R package, which no Debian
+// package carries. The checks are brute-force computations instead (see
+// the tests) and simulations of coverage.
 
 // EventStudy is an event study's estimates with the reference period
 // normalised to zero: the leads before it, oldest first, and the lags after
