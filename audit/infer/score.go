@@ -138,6 +138,11 @@ type ScoreResult struct {
 	Clusters   int          // G
 	Factor     float64      // the small-sample factor f at the estimate
 	Fits       int          // restricted fits made
+	// FitFailed is true when an end is infinite because the restricted
+	// fit failed while stepping outward (typically far from the estimate,
+	// where a Poisson fit's Hessian underflows) before any value was
+	// rejected: an honest "unbounded as far as the model can be fitted".
+	FitFailed bool
 }
 
 var (
@@ -183,10 +188,11 @@ func ScoreBootstrap(ctx context.Context, fit ScoreFitter, a []float64, est, null
 	}
 	r.Stat, r.P = scoreStat(cn, fn), sb.pvalue(cn, fn)
 	for _, side := range []float64{-1, 1} {
-		end, err := sb.end(est, side, r.SE, alpha)
+		end, failed, err := sb.end(est, side, r.SE, alpha)
 		if err != nil {
 			return nil, err
 		}
+		r.FitFailed = r.FitFailed || failed
 		if side < 0 {
 			r.Lo = end
 		} else {
@@ -363,8 +369,9 @@ func (sb *scoreBoot) pvalue(c []float64, f float64) float64 {
 
 // end finds the interval's end on one side of est: steps of se doubling up
 // to MaxSE·se until a rejected b0, then bisection to Tol·se; it returns the
-// last accepted value, or ±Inf when MaxSE·se is accepted.
-func (sb *scoreBoot) end(est, side, se, alpha float64) (float64, error) {
+// last accepted value, or ±Inf when MaxSE·se is accepted or the fit fails
+// while stepping outward (failed true; a cancelled ctx is still an error).
+func (sb *scoreBoot) end(est, side, se, alpha float64) (float64, bool, error) {
 	in, step := est, se
 	var out float64
 	for {
@@ -372,14 +379,17 @@ func (sb *scoreBoot) end(est, side, se, alpha float64) (float64, error) {
 		b0 := est + side*step
 		c, f, err := sb.contributions(b0)
 		if err != nil {
-			return 0, err
+			if sb.ctx.Err() != nil {
+				return 0, false, err
+			}
+			return math.Inf(int(side)), true, nil
 		}
 		if sb.pvalue(c, f) <= alpha {
 			out = b0
 			break
 		}
 		if step >= sb.opts.MaxSE*se {
-			return math.Inf(int(side)), nil
+			return math.Inf(int(side)), false, nil
 		}
 		in = b0
 		step *= 2
@@ -388,7 +398,7 @@ func (sb *scoreBoot) end(est, side, se, alpha float64) (float64, error) {
 		mid := (in + out) / 2
 		c, f, err := sb.contributions(mid)
 		if err != nil {
-			return 0, err
+			return 0, false, err
 		}
 		if sb.pvalue(c, f) <= alpha {
 			out = mid
@@ -396,7 +406,7 @@ func (sb *scoreBoot) end(est, side, se, alpha float64) (float64, error) {
 			in = mid
 		}
 	}
-	return in, nil
+	return in, false, nil
 }
 
 func finiteScore(x float64) bool { return !math.IsNaN(x) && !math.IsInf(x, 0) }

@@ -15,6 +15,7 @@ type scoreSimResult struct {
 	reps, rejected, covered int
 	wald                    int // rejections by the analytic CR1 Wald t against t(G−1), for comparison
 	unbounded               int // intervals with an infinite end
+	fitFailed               int // of which the fit failed while stepping outward
 }
 
 // scoreSimStudy draws reps invented panels (scoreSimPanel: g units, nt
@@ -47,6 +48,9 @@ func scoreSimStudy(tb testing.TB, seed uint64, reps, g, nt, T, draws int, w Scor
 		}
 		if math.IsInf(res.Lo, 0) || math.IsInf(res.Hi, 0) {
 			r.unbounded++
+		}
+		if res.FitFailed {
+			r.fitFailed++
 		}
 		crit := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(res.Clusters - 1)}.Quantile(0.975)
 		if math.Abs(est-beta)/res.SE > crit {

@@ -550,4 +550,22 @@ func TestScoreUnboundedWithOneTreated(t *testing.T) {
 	if r.P <= 0.05 {
 		t.Errorf("p = %g inside an unbounded interval", r.P)
 	}
+	if r.FitFailed {
+		t.Error("FitFailed set though every fit succeeded")
+	}
+	// a model that cannot be fitted above est + 1: that end is unbounded
+	// as far as the model goes, and says so
+	limited := func(ctx context.Context, a []float64, b0 float64) (ScoreFit, error) {
+		if b0 > est+1 {
+			return ScoreFit{}, errors.New("no fit")
+		}
+		return p.fitter()(ctx, a, b0)
+	}
+	r, err = ScoreBootstrap(context.Background(), limited, []float64{1, 0, 0, 0, 0, 0}, est, est+0.5, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !math.IsInf(r.Hi, 1) || !r.FitFailed {
+		t.Errorf("upper end %g, fit failed %v; want +Inf and true", r.Hi, r.FitFailed)
+	}
 }

@@ -37,9 +37,9 @@ func TestScoreSimulationValidate(t *testing.T) {
 			lo, hi := scoreWilson(r.rejected, r.reps)
 			clo, chi := scoreWilson(r.covered, r.reps)
 			wlo, whi := scoreWilson(r.wald, r.reps)
-			t.Logf("| %s | %d | size %.3f [%.3f, %.3f] | coverage %.3f [%.3f, %.3f] | CR1 Wald t(G-1) size %.3f [%.3f, %.3f] | unbounded %d |",
+			t.Logf("| %s | %d | size %.3f [%.3f, %.3f] | coverage %.3f [%.3f, %.3f] | CR1 Wald t(G-1) size %.3f [%.3f, %.3f] | unbounded %d (fit failed %d) |",
 				tc.name, r.reps, float64(r.rejected)/float64(r.reps), lo, hi,
-				float64(r.covered)/float64(r.reps), clo, chi, float64(r.wald)/float64(r.reps), wlo, whi, r.unbounded)
+				float64(r.covered)/float64(r.reps), clo, chi, float64(r.wald)/float64(r.reps), wlo, whi, r.unbounded, r.fitFailed)
 			if lo > 0.075 {
 				t.Errorf("over-rejects: %d/%d", r.rejected, r.reps)
 			}
