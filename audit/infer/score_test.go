@@ -2,52 +2,16 @@ package infer
 
 import (
 	"context"
-	"encoding/csv"
 	"errors"
 	"math"
 	"math/rand/v2"
-	"os"
 	"path/filepath"
 	"slices"
-	"strconv"
-	"strings"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/internal/reftest"
 	"gonum.org/v1/gonum/mat"
 )
-
-// scoreReadCSV reads a committed CSV with a header into maps keyed by
-// column, trimming R's padding.
-func scoreReadCSV(tb testing.TB, name string) []map[string]string {
-	tb.Helper()
-	f, err := os.Open(filepath.Join("testdata", name))
-	if err != nil {
-		tb.Fatal(err)
-	}
-	defer f.Close()
-	recs, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		tb.Fatalf("%s: %v", name, err)
-	}
-	var out []map[string]string
-	for _, r := range recs[1:] {
-		m := map[string]string{}
-		for j, h := range recs[0] {
-			m[h] = strings.TrimSpace(r[j])
-		}
-		out = append(out, m)
-	}
-	return out
-}
-
-func scoreNum(tb testing.TB, s string) float64 {
-	tb.Helper()
-	v, err := strconv.ParseFloat(s, 64)
-	if err != nil {
-		tb.Fatalf("parse %q: %v", s, err)
-	}
-	return v
-}
 
 // scoreFatalities builds R's model.matrix(~ beertax + unemp + state + year)
 // for testdata/score_fatalities.csv: intercept, beertax, unemp, dummies for
@@ -55,7 +19,7 @@ func scoreNum(tb testing.TB, s string) float64 {
 // clusters are the states in sorted order.
 func scoreFatalities(tb testing.TB) (*scoreDense, []string) {
 	tb.Helper()
-	rows := scoreReadCSV(tb, "score_fatalities.csv")
+	rows := reftest.Load(tb, filepath.Join("testdata", "score_fatalities.csv")).Rows
 	var states, years []string
 	for _, r := range rows {
 		if !slices.Contains(states, r["state"]) {
@@ -70,13 +34,13 @@ func scoreFatalities(tb testing.TB) (*scoreDense, []string) {
 	k := 3 + len(states) - 1 + len(years) - 1
 	d := &scoreDense{x: mat.NewDense(len(rows), k, nil), g: len(states)}
 	for i, r := range rows {
-		d.y = append(d.y, scoreNum(tb, r["fatal"]))
+		d.y = append(d.y, reftest.Atof(tb, r["fatal"]))
 		s := slices.Index(states, r["state"])
 		y := slices.Index(years, r["year"])
 		d.cl = append(d.cl, s)
 		d.x.Set(i, 0, 1)
-		d.x.Set(i, 1, scoreNum(tb, r["beertax"]))
-		d.x.Set(i, 2, scoreNum(tb, r["unemp"]))
+		d.x.Set(i, 1, reftest.Atof(tb, r["beertax"]))
+		d.x.Set(i, 2, reftest.Atof(tb, r["unemp"]))
 		if s > 0 {
 			d.x.Set(i, 2+s, 1)
 		}
@@ -100,14 +64,14 @@ func scoreClose(tb testing.TB, what string, got, want, rel float64) {
 // offset (testdata/R/score_fatalities.R; data: AER 1.2.10 Fatalities).
 func TestScoreRestrictedFitAgainstR(t *testing.T) {
 	d, states := scoreFatalities(t)
-	refs := scoreReadCSV(t, "score_fatalities_ref.csv")
-	cls := scoreReadCSV(t, "score_fatalities_clusters.csv")
+	refs := reftest.Load(t, filepath.Join("testdata", "score_fatalities_ref.csv")).Rows
+	cls := reftest.Load(t, filepath.Join("testdata", "score_fatalities_clusters.csv")).Rows
 	_, k := d.x.Dims()
 	for _, ref := range refs {
 		t.Run(ref["case"], func(t *testing.T) {
 			a := make([]float64, k)
-			a[1], a[2] = scoreNum(t, ref["a1"]), scoreNum(t, ref["a2"])
-			b0 := scoreNum(t, ref["b0"])
+			a[1], a[2] = reftest.Atof(t, ref["a1"]), reftest.Atof(t, ref["a2"])
+			b0 := reftest.Atof(t, ref["b0"])
 			n, _ := d.x.Dims()
 			th := make([]float64, k)
 			th[0] = math.Log(mat.Sum(mat.NewVecDense(n, d.y)) / float64(n))
@@ -115,8 +79,8 @@ func TestScoreRestrictedFitAgainstR(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			scoreClose(t, "beertax", beta[1], scoreNum(t, ref["beertax"]), 1e-8)
-			scoreClose(t, "unemp", beta[2], scoreNum(t, ref["unemp"]), 1e-8)
+			scoreClose(t, "beertax", beta[1], reftest.Atof(t, ref["beertax"]), 1e-8)
+			scoreClose(t, "unemp", beta[2], reftest.Atof(t, ref["unemp"]), 1e-8)
 			fr, err := d.fitter(0)(context.Background(), a, b0)
 			if err != nil {
 				t.Fatal(err)
@@ -125,11 +89,11 @@ func TestScoreRestrictedFitAgainstR(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			scoreClose(t, "stat", scoreStat(c, f), scoreNum(t, ref["stat"]), 1e-8)
+			scoreClose(t, "stat", scoreStat(c, f), reftest.Atof(t, ref["stat"]), 1e-8)
 			h := fr.Hessian
-			scoreClose(t, "H[beertax,beertax]", h.At(1, 1), scoreNum(t, ref["h11"]), 1e-8)
-			scoreClose(t, "H[beertax,unemp]", h.At(1, 2), scoreNum(t, ref["h12"]), 1e-8)
-			scoreClose(t, "H[unemp,unemp]", h.At(2, 2), scoreNum(t, ref["h22"]), 1e-8)
+			scoreClose(t, "H[beertax,beertax]", h.At(1, 1), reftest.Atof(t, ref["h11"]), 1e-8)
+			scoreClose(t, "H[beertax,unemp]", h.At(1, 2), reftest.Atof(t, ref["h12"]), 1e-8)
+			scoreClose(t, "H[unemp,unemp]", h.At(2, 2), reftest.Atof(t, ref["h22"]), 1e-8)
 			var hi mat.SymDense
 			var ch mat.Cholesky
 			if !ch.Factorize(h) {
@@ -146,9 +110,9 @@ func TestScoreRestrictedFitAgainstR(t *testing.T) {
 			if err := ch.InverseTo(&schur); err != nil {
 				t.Fatal(err)
 			}
-			scoreClose(t, "Schur[1,1]", schur.At(0, 0), scoreNum(t, ref["schur11"]), 1e-7)
-			scoreClose(t, "Schur[1,2]", schur.At(0, 1), scoreNum(t, ref["schur12"]), 1e-7)
-			scoreClose(t, "Schur[2,2]", schur.At(1, 1), scoreNum(t, ref["schur22"]), 1e-7)
+			scoreClose(t, "Schur[1,1]", schur.At(0, 0), reftest.Atof(t, ref["schur11"]), 1e-7)
+			scoreClose(t, "Schur[1,2]", schur.At(0, 1), reftest.Atof(t, ref["schur12"]), 1e-7)
+			scoreClose(t, "Schur[2,2]", schur.At(1, 1), reftest.Atof(t, ref["schur22"]), 1e-7)
 			seen := 0
 			for _, r := range cls {
 				if r["case"] != ref["case"] {
@@ -161,13 +125,13 @@ func TestScoreRestrictedFitAgainstR(t *testing.T) {
 				seen++
 				// score sums are differences of large numbers: absolute
 				// tolerance on the scale of the counts
-				if got, want := fr.Scores.At(g, 1), scoreNum(t, r["s_beertax"]); math.Abs(got-want) > 1e-6 {
+				if got, want := fr.Scores.At(g, 1), reftest.Atof(t, r["s_beertax"]); math.Abs(got-want) > 1e-6 {
 					t.Errorf("%s: beertax score %.10g, want %.10g", r["state"], got, want)
 				}
-				if got, want := fr.Scores.At(g, 2), scoreNum(t, r["s_unemp"]); math.Abs(got-want) > 1e-5 {
+				if got, want := fr.Scores.At(g, 2), reftest.Atof(t, r["s_unemp"]); math.Abs(got-want) > 1e-5 {
 					t.Errorf("%s: unemp score %.10g, want %.10g", r["state"], got, want)
 				}
-				if got, want := c[g], scoreNum(t, r["c"]); math.Abs(got-want) > 1e-9 {
+				if got, want := c[g], reftest.Atof(t, r["c"]); math.Abs(got-want) > 1e-9 {
 					t.Errorf("%s: c = %.12g, want %.12g", r["state"], got, want)
 				}
 			}
@@ -184,8 +148,8 @@ func TestScoreRestrictedFitAgainstR(t *testing.T) {
 // estimate, and the p-value at each end is on the right side of 0.05.
 func TestScoreBootstrapFatalities(t *testing.T) {
 	d, _ := scoreFatalities(t)
-	un := scoreReadCSV(t, "score_fatalities_unrestricted.csv")[0]
-	est, se := scoreNum(t, un["estimate"]), scoreNum(t, un["se_hc1"])
+	un := reftest.Load(t, filepath.Join("testdata", "score_fatalities_unrestricted.csv")).Rows[0]
+	est, se := reftest.Atof(t, un["estimate"]), reftest.Atof(t, un["se_hc1"])
 	_, k := d.x.Dims()
 	a := make([]float64, k)
 	a[1] = 1
