@@ -25,16 +25,17 @@ var allowed = map[string][]string{
 	"layers":            {"rules"},
 
 	// audit: leaves first, then the packages built on them.
-	"audit/markdown":  {},
-	"audit/spatial":   {},
-	"audit/panel":     {},
-	"audit/match":     {},
-	"audit/infer":     {},
-	"audit/sim":       {},
-	"audit/episode":   {"rules"},
-	"audit/did":       {"audit/panel", "audit/infer"},
-	"audit/study":     {"audit/episode", "audit/match", "audit/panel", "layers"},
-	"audit/checklist": {"audit/markdown", "audit/study", "audit/episode", "audit/spatial", "layers", "rules"},
+	"audit/markdown":    {},
+	"audit/spatial":     {},
+	"audit/panel":       {},
+	"audit/match":       {},
+	"audit/infer":       {},
+	"audit/sensitivity": {},
+	"audit/sim":         {},
+	"audit/episode":     {"rules"},
+	"audit/did":         {"audit/panel", "audit/infer", "audit/sensitivity"},
+	"audit/study":       {"audit/episode", "audit/match", "audit/panel", "layers"},
+	"audit/checklist":   {"audit/markdown", "audit/study", "audit/episode", "audit/spatial", "layers", "rules"},
 	"audit/proposal": {"audit/checklist", "audit/did", "audit/episode", "audit/markdown", "audit/study",
 		"audit/spatial", "layers", "rules"},
 	"audit": {"audit/checklist", "audit/did", "audit/episode", "audit/match", "audit/panel", "audit/proposal",
@@ -45,6 +46,7 @@ var allowed = map[string][]string{
 	// Test support, imported only by _test files.
 	"audit/panel/paneltest":    {"audit/panel"},
 	"audit/internal/reftest":   {},
+	"audit/internal/simtest":   {"audit/checklist"},
 	"audit/internal/worldtest": {"audit/episode", "audit/sim", "audit/spatial", "ingest", "layers", "rules"},
 }
 

@@ -82,17 +82,6 @@
 // clusters. The small-sample factor G/(G−1)·(N−1)/(N−K), or G/(G−1) without N
 // and K, scales the statistic only.
 //
-// # Sensitivity to parallel trends
-//
-// RelativeMagnitudes and RMBreakdownValue implement the relative-magnitudes
-// restriction Δ^RM(M̄) of Rambachan & Roth (2023, Review of Economic Studies,
-// "A more credible approach to parallel trends") on an event study with a
-// normalised reference period: the identified set by linear programming, the
-// robust confidence set as the union over the restriction's polyhedral cones
-// of the sets kept by the conditional–least-favourable hybrid test of
-// Andrews, Roth & Pakes (2023), and the breakdown value M̄*, the largest M̄ at
-// which that set excludes zero, in plain words by RMBreakdown.Sentence.
-//
 // # Multiplicity
 //
 // Holm gives Holm's (1979) step-down adjusted p-values (R's

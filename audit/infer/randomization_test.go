@@ -6,6 +6,8 @@ import (
 	"math"
 	"math/rand/v2"
 	"testing"
+
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 )
 
 // permToyStat is a statistic of an assignment on made-up outcomes: the mean
@@ -159,7 +161,7 @@ func TestRandomizationSizeUnderSharpNull(t *testing.T) {
 					rej++
 				}
 			}
-			lo, hi := wcrWilson(rej, reps)
+			lo, hi := simtest.Wilson(rej, reps)
 			t.Logf("%d treated: rejection %.3f (Wilson 95%% %.3f–%.3f)", k, float64(rej)/reps, lo, hi)
 			if lo > 0.05 || hi < 0.01 {
 				t.Fatalf("rejection rate %d/%d is not about 5%%", rej, reps)

@@ -6,6 +6,7 @@ import (
 	"math/rand/v2"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 	"gonum.org/v1/gonum/stat/distuv"
 )
 
@@ -60,17 +61,6 @@ func scoreSimStudy(tb testing.TB, seed uint64, reps, g, nt, T, draws int, w Scor
 	return r
 }
 
-// scoreWilson returns the Wilson score interval for k successes in n trials
-// at 95% (Wilson 1927, JASA 22; z = 1.959964).
-func scoreWilson(k, n int) (lo, hi float64) {
-	const z = 1.959963984540054
-	p, nn := float64(k)/float64(n), float64(n)
-	den := 1 + z*z/nn
-	c := (p + z*z/(2*nn)) / den
-	h := z * math.Sqrt(p*(1-p)/nn+z*z/(4*nn*nn)) / den
-	return c - h, c + h
-}
-
 // TestScoreSimulationQuick: 100 invented panels with 8 treated of 40
 // clusters. The restricted score bootstrap must hold its size: the Wilson
 // interval of the rejection rate must reach down to 5% or below and must not
@@ -82,8 +72,8 @@ func TestScoreSimulationQuick(t *testing.T) {
 		t.Skip("simulation")
 	}
 	r := scoreSimStudy(t, 42, 100, 40, 8, 8, 299, ScoreWeightsAuto)
-	lo, hi := scoreWilson(r.rejected, r.reps)
-	clo, chi := scoreWilson(r.covered, r.reps)
+	lo, hi := simtest.Wilson(r.rejected, r.reps)
+	clo, chi := simtest.Wilson(r.covered, r.reps)
 	t.Logf("8 of 40 treated: size %d/%d [%.3f, %.3f], coverage %d/%d [%.3f, %.3f]", r.rejected, r.reps, lo, hi, r.covered, r.reps, clo, chi)
 	if lo > 0.05 || hi < 0.01 {
 		t.Errorf("rejection rate %d/%d, Wilson [%.3f, %.3f]: not a 5%% test", r.rejected, r.reps, lo, hi)

@@ -2,7 +2,11 @@
 
 package infer
 
-import "testing"
+import (
+	"testing"
+
+	"github.com/loadwake/loadwake/audit/internal/simtest"
+)
 
 // TestScoreSimulationValidate is the full size and coverage study of the
 // restricted score bootstrap on invented Poisson panels (scoreSimPanel):
@@ -34,9 +38,9 @@ func TestScoreSimulationValidate(t *testing.T) {
 	for i, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
 			r := scoreSimStudy(t, uint64(100+i), tc.reps, tc.g, tc.nt, tc.T, 999, tc.w)
-			lo, hi := scoreWilson(r.rejected, r.reps)
-			clo, chi := scoreWilson(r.covered, r.reps)
-			wlo, whi := scoreWilson(r.wald, r.reps)
+			lo, hi := simtest.Wilson(r.rejected, r.reps)
+			clo, chi := simtest.Wilson(r.covered, r.reps)
+			wlo, whi := simtest.Wilson(r.wald, r.reps)
 			t.Logf("| %s | %d | size %.3f [%.3f, %.3f] | coverage %.3f [%.3f, %.3f] | CR1 Wald t(G-1) size %.3f [%.3f, %.3f] | unbounded %d (fit failed %d) |",
 				tc.name, r.reps, float64(r.rejected)/float64(r.reps), lo, hi,
 				float64(r.covered)/float64(r.reps), clo, chi, float64(r.wald)/float64(r.reps), wlo, whi, r.unbounded, r.fitFailed)

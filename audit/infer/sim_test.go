@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
 )
@@ -231,7 +232,7 @@ func wcrRate(x, n int) string {
 	if n == 0 {
 		return "n/a"
 	}
-	lo, hi := wcrWilson(x, n)
+	lo, hi := simtest.Wilson(x, n)
 	return fmt.Sprintf("%.3f [%.3f, %.3f]", float64(x)/float64(n), lo, hi)
 }
 
@@ -309,7 +310,7 @@ func TestSizeQuick(t *testing.T) {
 // rate x/n does not reach [lo, hi].
 func wcrWithin(tb testing.TB, name string, x, n int, lo, hi float64) {
 	tb.Helper()
-	wl, wh := wcrWilson(x, n)
+	wl, wh := simtest.Wilson(x, n)
 	if wh < lo || wl > hi {
 		tb.Errorf("%s: rejection %s outside [%v, %v]", name, wcrRate(x, n), lo, hi)
 	}

@@ -1,4 +1,4 @@
-package infer
+package sensitivity
 
 import (
 	"context"
@@ -67,7 +67,7 @@ func TestRMIdentifiedSetAgainstGrid(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			lo, hi, err := RMIdentifiedSet(tc.pre, tc.post, tc.l, tc.mbar)
+			lo, hi, err := IdentifiedSet(tc.pre, tc.post, tc.l, tc.mbar)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -117,7 +117,7 @@ func rrTestStudy(pre, post []float64, sigma float64) EventStudy {
 // over γ'c > 1 (Andrews, Roth & Pakes 2023, the conditioning event).
 func TestRMStatisticAgainstBruteForce(t *testing.T) {
 	es := rrTestStudy([]float64{0.05, -0.02, 0.03}, []float64{-0.2, -0.25}, 0.04)
-	r, err := newRR(es, []float64{0.5, 0.5}, DefaultRMOptions())
+	r, err := newRR(es, []float64{0.5, 0.5}, DefaultOptions())
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -265,7 +265,7 @@ func rrBruteTruncation(mo *rrMoments, y []float64, eta float64, g []float64) (fl
 func TestRMParallelTrendsLimit(t *testing.T) {
 	es := rrTestStudy([]float64{0.02, -0.01, 0.01}, []float64{-0.3, -0.35}, 0.05)
 	l := []float64{0.5, 0.5}
-	opts := DefaultRMOptions()
+	opts := DefaultOptions()
 	opts.LFDraws = 100
 	ivs, err := RelativeMagnitudes(context.Background(), es, l, []float64{0, 1, 3}, opts)
 	if err != nil {
@@ -292,10 +292,10 @@ func TestRMParallelTrendsLimit(t *testing.T) {
 func TestRMBreakdownAgreesWithIntervals(t *testing.T) {
 	es := rrTestStudy([]float64{0.02, -0.03, 0.01}, []float64{-0.25, -0.3}, 0.04)
 	l := []float64{0.5, 0.5}
-	opts := DefaultRMOptions()
+	opts := DefaultOptions()
 	opts.LFDraws = 100
 	ctx := context.Background()
-	b, err := RMBreakdownValue(ctx, es, l, opts)
+	b, err := BreakdownValue(ctx, es, l, opts)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -323,13 +323,13 @@ func TestRMBreakdownAgreesWithIntervals(t *testing.T) {
 func TestRMSentence(t *testing.T) {
 	tests := []struct {
 		name string
-		b    RMBreakdown
+		b    Breakdown
 		want string
 	}{
-		{"typical", RMBreakdown{MBar: 1.43, Significant: true}, "the drop holds unless post-import trends diverged more than 1.4 times the largest pre-import change"},
-		{"not significant", RMBreakdown{}, "the drop is not distinguishable from no change even if post-import trends stayed exactly parallel"},
-		{"capped", RMBreakdown{MBar: 20, Significant: true, Capped: true}, "the drop holds even if post-import trends diverged 20 times the largest pre-import change"},
-		{"fragile", RMBreakdown{MBar: 0, Significant: true}, "the drop holds only if post-import trends stayed exactly parallel: any divergence undoes it"},
+		{"typical", Breakdown{MBar: 1.43, Significant: true}, "the drop holds unless post-import trends diverged more than 1.4 times the largest pre-import change"},
+		{"not significant", Breakdown{}, "the drop is not distinguishable from no change even if post-import trends stayed exactly parallel"},
+		{"capped", Breakdown{MBar: 20, Significant: true, Capped: true}, "the drop holds even if post-import trends diverged 20 times the largest pre-import change"},
+		{"fragile", Breakdown{MBar: 0, Significant: true}, "the drop holds only if post-import trends stayed exactly parallel: any divergence undoes it"},
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
@@ -359,9 +359,9 @@ func TestRMErrors(t *testing.T) {
 	}
 	for _, tc := range tests {
 		t.Run(tc.name, func(t *testing.T) {
-			_, err := RelativeMagnitudes(context.Background(), tc.es, tc.l, []float64{tc.mbar}, DefaultRMOptions())
-			if !errors.Is(err, ErrRMInput) {
-				t.Errorf("error %v, want ErrRMInput", err)
+			_, err := RelativeMagnitudes(context.Background(), tc.es, tc.l, []float64{tc.mbar}, DefaultOptions())
+			if !errors.Is(err, ErrInput) {
+				t.Errorf("error %v, want ErrInput", err)
 			}
 		})
 	}
@@ -373,7 +373,7 @@ func TestRMErrors(t *testing.T) {
 func TestRMShortcutMatchesFullHybrid(t *testing.T) {
 	es := rrTestStudy([]float64{0.02, -0.03, 0.01}, []float64{-0.25, -0.3}, 0.04)
 	l := []float64{0.5, 0.5}
-	opts := DefaultRMOptions()
+	opts := DefaultOptions()
 	opts.LFDraws = 150
 	lazy, err := newRR(es, l, opts)
 	if err != nil {

@@ -1,10 +1,11 @@
-package infer
+package sensitivity
 
 import (
 	"context"
 	"math/rand/v2"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 	"gonum.org/v1/gonum/mat"
 )
 
@@ -49,7 +50,7 @@ func (c rrSimCase) truth() (pre, post []float64, theta float64) {
 // M̄ keeps the true θ (coverage of the union of the cones' sets; the
 // reported hull is wider) and how often it excludes zero (a false claim of
 // robustness when θ = 0).
-func rrSimStudy(tb testing.TB, seed uint64, reps int, c rrSimCase, opts RMOptions) (covered, excluded int) {
+func rrSimStudy(tb testing.TB, seed uint64, reps int, c rrSimCase, opts Options) (covered, excluded int) {
 	tb.Helper()
 	pre, post, theta := c.truth()
 	base := rrTestStudy(pre, post, c.sigma)
@@ -127,14 +128,14 @@ func TestRMSimulationQuick(t *testing.T) {
 	if testing.Short() {
 		t.Skip("simulation")
 	}
-	opts := DefaultRMOptions()
+	opts := DefaultOptions()
 	opts.LFDraws = 300
 	c := rrSimCase{tp: 3, tq: 2, slope: 0.05, mbar: 1, tau: -0.2, sigma: 0.01, bend: 1, kink: true}
 	cov, _ := rrSimStudy(t, 1, 300, c, opts)
 	c.tau = 0
 	_, excl := rrSimStudy(t, 2, 300, c, opts)
-	clo, chi := scoreWilson(cov, 300)
-	elo, ehi := scoreWilson(excl, 300)
+	clo, chi := simtest.Wilson(cov, 300)
+	elo, ehi := simtest.Wilson(excl, 300)
 	t.Logf("coverage %d/300 [%.3f, %.3f]; false claims %d/300 [%.3f, %.3f]", cov, clo, chi, excl, elo, ehi)
 	if chi < 0.95 {
 		t.Errorf("coverage %d/300, Wilson [%.3f, %.3f] below 95%%", cov, clo, chi)

@@ -1,11 +1,13 @@
 //go:build validate
 
-package infer
+package sensitivity
 
 import (
 	"context"
 	"fmt"
 	"testing"
+
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 )
 
 // TestRMSimulationValidate is the full coverage and false-claim study of
@@ -18,14 +20,14 @@ import (
 // over 7%. Run: go test -tags validate -run RMSimulationValidate -v ./audit/infer
 func TestRMSimulationValidate(t *testing.T) {
 	const reps = 2000
-	hybrid := DefaultRMOptions()
+	hybrid := DefaultOptions()
 	hybrid.LFDraws = 1000
 	cond := hybrid
 	cond.LFDraws = 0
 	tests := []struct {
 		name string
 		c    rrSimCase
-		opts RMOptions
+		opts Options
 	}{
 		{"hybrid, 3 leads 2 lags, M̄ 1, one-step pre change", rrSimCase{tp: 3, tq: 2, slope: 0.05, mbar: 1, tau: -0.2, sigma: 0.01, bend: 1, kink: true}, hybrid},
 		{"hybrid, 3 leads 2 lags, M̄ 2, one-step pre change", rrSimCase{tp: 3, tq: 2, slope: 0.05, mbar: 2, tau: -0.2, sigma: 0.01, bend: 1, kink: true}, hybrid},
@@ -41,8 +43,8 @@ func TestRMSimulationValidate(t *testing.T) {
 			c0 := tc.c
 			c0.tau = 0
 			_, excl := rrSimStudy(t, uint64(50+i), reps, c0, tc.opts)
-			clo, chi := scoreWilson(cov, reps)
-			elo, ehi := scoreWilson(excl, reps)
+			clo, chi := simtest.Wilson(cov, reps)
+			elo, ehi := simtest.Wilson(excl, reps)
 			t.Logf("| %s | coverage %.3f [%.3f, %.3f] | false claims %.3f [%.3f, %.3f] |", tc.name,
 				float64(cov)/reps, clo, chi, float64(excl)/reps, elo, ehi)
 			if chi < 0.93 || elo > 0.07 {
@@ -56,8 +58,8 @@ func TestRMSimulationValidate(t *testing.T) {
 		const n = 300
 		c := rrSimCase{tp: 3, tq: 2, slope: 0.05, mbar: 1, tau: -0.2, sigma: 0.01, bend: 1, kink: true}
 		hull, claims := rrSimHullBreakdown(t, 99, n, c, hybrid)
-		clo, chi := scoreWilson(hull, n)
-		elo, ehi := scoreWilson(claims, n)
+		clo, chi := simtest.Wilson(hull, n)
+		elo, ehi := simtest.Wilson(claims, n)
 		t.Logf("| hull coverage at M̄ 1 | %.3f [%.3f, %.3f] | breakdown M̄* ≥ 1 with no effect | %.3f [%.3f, %.3f] |",
 			float64(hull)/n, clo, chi, float64(claims)/n, elo, ehi)
 		if chi < 0.93 || elo > 0.07 {
@@ -68,7 +70,7 @@ func TestRMSimulationValidate(t *testing.T) {
 
 // rrSimHullBreakdown counts worlds whose reported hull at the true M̄
 // holds θ, and no-effect worlds whose breakdown value reaches the true M̄.
-func rrSimHullBreakdown(tb testing.TB, seed uint64, reps int, c rrSimCase, opts RMOptions) (hull, claims int) {
+func rrSimHullBreakdown(tb testing.TB, seed uint64, reps int, c rrSimCase, opts Options) (hull, claims int) {
 	tb.Helper()
 	ctx := context.Background()
 	draws := rrSimDraws(tb, seed, reps, c)
@@ -87,7 +89,7 @@ func rrSimHullBreakdown(tb testing.TB, seed uint64, reps int, c rrSimCase, opts 
 		if ivs[0].Lo <= c.tau && c.tau <= ivs[0].Hi {
 			hull++
 		}
-		b, err := RMBreakdownValue(ctx, draws0[i], l, opts)
+		b, err := BreakdownValue(ctx, draws0[i], l, opts)
 		if err != nil {
 			tb.Fatal(fmt.Errorf("breakdown: %w", err))
 		}

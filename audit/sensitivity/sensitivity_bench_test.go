@@ -1,4 +1,4 @@
-package infer
+package sensitivity
 
 import (
 	"context"
@@ -13,7 +13,7 @@ func BenchmarkRelativeMagnitudes(b *testing.B) {
 	ctx := context.Background()
 	b.ReportAllocs()
 	for b.Loop() {
-		if _, err := RelativeMagnitudes(ctx, es, []float64{0.5, 0.5}, []float64{1}, DefaultRMOptions()); err != nil {
+		if _, err := RelativeMagnitudes(ctx, es, []float64{0.5, 0.5}, []float64{1}, DefaultOptions()); err != nil {
 			b.Fatal(err)
 		}
 	}
@@ -26,7 +26,7 @@ func BenchmarkRMBreakdownValue(b *testing.B) {
 	ctx := context.Background()
 	b.ReportAllocs()
 	for b.Loop() {
-		if _, err := RMBreakdownValue(ctx, es, []float64{0.5, 0.5}, DefaultRMOptions()); err != nil {
+		if _, err := BreakdownValue(ctx, es, []float64{0.5, 0.5}, DefaultOptions()); err != nil {
 			b.Fatal(err)
 		}
 	}

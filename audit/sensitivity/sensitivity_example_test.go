@@ -1,17 +1,17 @@
-package infer_test
+package sensitivity_test
 
 import (
 	"context"
 	"fmt"
 
-	"github.com/loadwake/loadwake/audit/infer"
+	"github.com/loadwake/loadwake/audit/sensitivity"
 	"gonum.org/v1/gonum/mat"
 )
 
 // An invented event study of a log outcome: three leads close to zero and
 // two lags near −0.3, standard errors 0.04 with correlation 0.5^|i−j|.
 // The target is the mean of the lags.
-func ExampleRMBreakdownValue() {
+func ExampleBreakdownValue() {
 	pre, post := []float64{0.02, -0.03, 0.01}, []float64{-0.25, -0.3}
 	cov := mat.NewSymDense(5, nil)
 	for i := range 5 {
@@ -23,9 +23,9 @@ func ExampleRMBreakdownValue() {
 			cov.SetSym(i, j, v)
 		}
 	}
-	es := infer.EventStudy{Pre: pre, Post: post, Cov: cov}
-	opts := infer.DefaultRMOptions()
-	b, err := infer.RMBreakdownValue(context.Background(), es, []float64{0.5, 0.5}, opts)
+	es := sensitivity.EventStudy{Pre: pre, Post: post, Cov: cov}
+	opts := sensitivity.DefaultOptions()
+	b, err := sensitivity.BreakdownValue(context.Background(), es, []float64{0.5, 0.5}, opts)
 	if err != nil {
 		fmt.Println(err)
 		return

@@ -1,4 +1,4 @@
-package infer
+package sensitivity
 
 import (
 	"context"
@@ -13,68 +13,6 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 )
 
-// Sensitivity of an event-study conclusion to departures from parallel
-// trends: the relative-magnitudes restriction of Rambachan & Roth (2023, "A
-// more credible approach to parallel trends", Review of Economic Studies
-// 90(5)).
-//
-// The event-study coefficients are β = τ + δ: the effect τ (zero before the
-// start) plus the bias δ from differing trends. With the reference period
-// normalised (δ_0 = 0 between the last lead and the first lag), Δ^RM(M̄)
-// allows every change of δ from one period to the next after the start to
-// be at most M̄ times the largest such change before it:
-//
-//	|δ_{t+1} − δ_t| ≤ M̄ · max_{s<0} |δ_{s+1} − δ_s|   for t ≥ 0.
-//
-// The target θ = l'τ_post (for example the mean of the lags) is then only
-// partly identified. Inference follows the paper's: Δ^RM(M̄) is the union
-// over the pre-period change s that is largest and its sign of polyhedral
-// cones
-//
-//	Δ_{s,±} = {δ: ±(δ_{s+1} − δ_s) ≥ |δ_{r+1} − δ_r| for every pre r,
-//	              M̄·±(δ_{s+1} − δ_s) ≥ |δ_{t+1} − δ_t| for every post t},
-//
-// each cone is tested with the conditional-least-favourable hybrid test of
-// Andrews, Roth & Pakes (2023, "Inference for linear conditional moment
-// inequalities", Review of Economic Studies 90(6)), and the robust
-// confidence set is the union of the cones' sets: θ̄ is kept when some cone
-// does not reject it. Each cone's test has size at most α under its own null
-// and the true δ lies in at least one cone, so the union covers θ with
-// probability at least 1 − α.
-//
-// The test of a cone Aδ ≤ 0 at θ̄: with τ_post = Γ⁻¹(θ̄, τ̃) (Γ's first row l'),
-// the moments Y = Aβ̂ − A_post Γ⁻¹e₁θ̄ must satisfy E[Y] − Xτ̃ ≤ 0 for some
-// nuisance τ̃, X = A_post Γ⁻¹[·, 2:]. The statistic is
-// η̂ = min_{τ̃} max_j (Y_j − X_jτ̃)/σ_j, found by its dual linear program
-// max γ'Y s.t. γ ≥ 0, X'γ = 0, σ'γ = 1. Given the optimal vertex γ̂ and
-// the part of Y independent of γ̂'Y, η̂ is normal with mean γ̂'E[Y] ≤ 0
-// under the null and variance γ̂'Σ_Yγ̂, truncated to the interval [V^lo,
-// V^up] of values for which γ̂ stays optimal; the ends come in closed form
-// from the reduced costs of γ̂'s basis when the vertex is non-degenerate,
-// otherwise by bisection on the dual program's value (both checked against
-// an enumeration of the dual polytope's vertices). A γ̂ with γ̂'Σ_Yγ̂ = 0
-// makes η̂ = γ̂'E[Y] exactly, and the test rejects when η̂ > 0. The hybrid
-// first rejects when η̂
-// exceeds the least-favourable critical value c_LF (the 1 − κ quantile of
-// η̂ when E[Y] = 0, κ = α/10, by simulation), then applies the conditional
-// test at level (α − κ)/(1 − κ) with V^up cut at c_LF (c_LF is simulated
-// only where the decision depends on it; see reject). With LFDraws = 0 the
-// plain conditional test at level α is used.
-//
-// The robust set of each cone is found on a grid of θ̄ (GridPoints over the
-// identified set at β̂ widened by 4 standard errors of l'β̂_post each side,
-// widened again while an end is kept) and its outermost crossings refined by
-// bisection; the reported interval is the hull of the union. The breakdown
-// value M̄* is the largest M̄ at which every cone rejects θ̄ = 0, found by
-// bisection on M̄: this assumes the robust set grows with M̄, as the cones
-// do (Δ_{s,±}(M̄) are nested in M̄), though the finite-sample tests need not
-// be exactly monotone.
-//
-// No worked example of the paper could be reproduced: its applications'
-// event-study estimates ship with the authors' R package, which no Debian
-// package carries. The checks are brute-force computations instead (see
-// the tests) and simulations of coverage.
-
 // EventStudy is an event study's estimates with the reference period
 // normalised to zero: the leads before it, oldest first, and the lags after
 // it, with the covariance of (Pre, Post) stacked in that order.
@@ -84,9 +22,9 @@ type EventStudy struct {
 	Cov  *mat.SymDense // (len(Pre)+len(Post))² covariance
 }
 
-// RMOptions configures the relative-magnitudes analysis. Start from
-// DefaultRMOptions.
-type RMOptions struct {
+// Options configures the relative-magnitudes analysis. Start from
+// DefaultOptions.
+type Options struct {
 	Alpha      float64 // size of each test; the robust set has level 1 − Alpha
 	LFDraws    int     // draws for the least-favourable critical value; 0 for the conditional test alone
 	Seed       uint64  // PCG seed of those draws
@@ -94,14 +32,14 @@ type RMOptions struct {
 	MaxMBar    float64 // largest M̄ the breakdown search tries
 }
 
-// DefaultRMOptions returns α = 0.05, 1000 least-favourable draws, seed 1,
+// DefaultOptions returns α = 0.05, 1000 least-favourable draws, seed 1,
 // 60 grid points and M̄ up to 20.
-func DefaultRMOptions() RMOptions {
-	return RMOptions{Alpha: 0.05, LFDraws: 1000, Seed: 1, GridPoints: 60, MaxMBar: 20}
+func DefaultOptions() Options {
+	return Options{Alpha: 0.05, LFDraws: 1000, Seed: 1, GridPoints: 60, MaxMBar: 20}
 }
 
-// RMInterval is the analysis at one M̄.
-type RMInterval struct {
+// Interval is the analysis at one M̄.
+type Interval struct {
 	MBar float64
 	// Lo and Hi bound the robust confidence set (the hull of the cones'
 	// sets); both NaN when every θ̄ is rejected (the data contradict the
@@ -111,8 +49,8 @@ type RMInterval struct {
 	IDLo, IDHi float64
 }
 
-// RMBreakdown is the breakdown value of a conclusion that θ ≠ 0.
-type RMBreakdown struct {
+// Breakdown is the breakdown value of a conclusion that θ ≠ 0.
+type Breakdown struct {
 	// MBar is the largest M̄ at which the robust set excludes zero, to
 	// 0.005; 0 when it includes zero already at M̄ = 0.
 	MBar float64
@@ -124,24 +62,24 @@ type RMBreakdown struct {
 }
 
 var (
-	// ErrRMInput marks an unusable event study or target.
-	ErrRMInput = errors.New("infer: relative magnitudes input")
-	// ErrRMLP marks a linear program the solver could not finish.
-	ErrRMLP = errors.New("infer: relative magnitudes linear program")
+	// ErrInput marks an unusable event study or target.
+	ErrInput = errors.New("sensitivity: relative magnitudes input")
+	// ErrLP marks a linear program the solver could not finish.
+	ErrLP = errors.New("sensitivity: relative magnitudes linear program")
 )
 
 // RelativeMagnitudes returns the robust confidence set of θ = l'τ_post at
 // each M̄ in mbars (non-negative), with the identified set at the point
 // estimates. ctx is checked per M̄ and per cone.
-func RelativeMagnitudes(ctx context.Context, es EventStudy, l []float64, mbars []float64, opts RMOptions) ([]RMInterval, error) {
+func RelativeMagnitudes(ctx context.Context, es EventStudy, l []float64, mbars []float64, opts Options) ([]Interval, error) {
 	rr, err := newRR(es, l, opts)
 	if err != nil {
 		return nil, err
 	}
-	out := make([]RMInterval, 0, len(mbars))
+	out := make([]Interval, 0, len(mbars))
 	for _, mb := range mbars {
 		if !(mb >= 0) || math.IsInf(mb, 0) {
-			return nil, fmt.Errorf("%w: M̄ = %g; need a finite value ≥ 0", ErrRMInput, mb)
+			return nil, fmt.Errorf("%w: M̄ = %g; need a finite value ≥ 0", ErrInput, mb)
 		}
 		iv, err := rr.interval(ctx, mb)
 		if err != nil {
@@ -152,15 +90,15 @@ func RelativeMagnitudes(ctx context.Context, es EventStudy, l []float64, mbars [
 	return out, nil
 }
 
-// RMBreakdownValue returns the largest M̄ (up to opts.MaxMBar) at which the
+// BreakdownValue returns the largest M̄ (up to opts.MaxMBar) at which the
 // robust confidence set of θ = l'τ_post excludes zero.
-func RMBreakdownValue(ctx context.Context, es EventStudy, l []float64, opts RMOptions) (RMBreakdown, error) {
+func BreakdownValue(ctx context.Context, es EventStudy, l []float64, opts Options) (Breakdown, error) {
 	rr, err := newRR(es, l, opts)
 	if err != nil {
-		return RMBreakdown{}, err
+		return Breakdown{}, err
 	}
 	if !(opts.MaxMBar > 0) {
-		return RMBreakdown{}, fmt.Errorf("%w: MaxMBar %g", ErrRMInput, opts.MaxMBar)
+		return Breakdown{}, fmt.Errorf("%w: MaxMBar %g", ErrInput, opts.MaxMBar)
 	}
 	excl := func(mb float64) (bool, error) {
 		kept, err := rr.kept(ctx, mb, 0)
@@ -168,21 +106,21 @@ func RMBreakdownValue(ctx context.Context, es EventStudy, l []float64, opts RMOp
 	}
 	ok, err := excl(0)
 	if err != nil || !ok {
-		return RMBreakdown{}, err
+		return Breakdown{}, err
 	}
 	ok, err = excl(opts.MaxMBar)
 	if err != nil {
-		return RMBreakdown{}, err
+		return Breakdown{}, err
 	}
 	if ok {
-		return RMBreakdown{MBar: opts.MaxMBar, Significant: true, Capped: true}, nil
+		return Breakdown{MBar: opts.MaxMBar, Significant: true, Capped: true}, nil
 	}
 	lo, hi := 0.0, opts.MaxMBar
 	for hi-lo > 0.005 {
 		mid := (lo + hi) / 2
 		ok, err := excl(mid)
 		if err != nil {
-			return RMBreakdown{}, err
+			return Breakdown{}, err
 		}
 		if ok {
 			lo = mid
@@ -190,13 +128,13 @@ func RMBreakdownValue(ctx context.Context, es EventStudy, l []float64, opts RMOp
 			hi = mid
 		}
 	}
-	return RMBreakdown{MBar: lo, Significant: true}, nil
+	return Breakdown{MBar: lo, Significant: true}, nil
 }
 
 // Sentence says in plain words how far the conclusion holds. effect names
 // the estimated change as a noun ("drop", "rise"); before and after name the
 // periods ("pre-import", "post-import").
-func (b RMBreakdown) Sentence(effect, before, after string) string {
+func (b Breakdown) Sentence(effect, before, after string) string {
 	switch {
 	case !b.Significant:
 		return fmt.Sprintf("the %s is not distinguishable from no change even if %s trends stayed exactly parallel", effect, after)
@@ -216,13 +154,13 @@ func rrTimes(x float64) string {
 	return fmt.Sprintf("%.2g", x)
 }
 
-// RMIdentifiedSet returns the bounds of θ = l'τ_post over Δ^RM(M̄) when the
+// IdentifiedSet returns the bounds of θ = l'τ_post over Δ^RM(M̄) when the
 // event-study coefficients are known to be (pre, post): the union over the
 // cones of the linear programs max and min l'(post − δ_post) subject to
 // the cone's constraints with δ_pre = pre.
-func RMIdentifiedSet(pre, post, l []float64, mbar float64) (lo, hi float64, err error) {
+func IdentifiedSet(pre, post, l []float64, mbar float64) (lo, hi float64, err error) {
 	if len(pre) == 0 || len(post) == 0 || len(l) != len(post) || !(mbar >= 0) {
-		return 0, 0, fmt.Errorf("%w: %d leads, %d lags, target of %d, M̄ %g", ErrRMInput, len(pre), len(post), len(l), mbar)
+		return 0, 0, fmt.Errorf("%w: %d leads, %d lags, target of %d, M̄ %g", ErrInput, len(pre), len(post), len(l), mbar)
 	}
 	lo, hi = math.Inf(1), math.Inf(-1)
 	lb := 0.0
@@ -258,7 +196,7 @@ func RMIdentifiedSet(pre, post, l []float64, mbar float64) (lo, hi float64, err 
 				break // the leads contradict this cone
 			}
 			if err != nil {
-				return 0, 0, fmt.Errorf("%w: identified set: %v", ErrRMLP, err)
+				return 0, 0, fmt.Errorf("%w: identified set: %v", ErrLP, err)
 			}
 			// sign +1: v = min l'δ → θ max = lb − v; sign −1: v = −max l'δ
 			if sign > 0 {
@@ -269,7 +207,7 @@ func RMIdentifiedSet(pre, post, l []float64, mbar float64) (lo, hi float64, err 
 		}
 	}
 	if lo > hi {
-		return 0, 0, fmt.Errorf("%w: identified set: no cone admits the leads", ErrRMLP)
+		return 0, 0, fmt.Errorf("%w: identified set: no cone admits the leads", ErrLP)
 	}
 	return lo, hi, nil
 }
@@ -341,7 +279,7 @@ type rr struct {
 	l     []float64
 	tp    int
 	tq    int
-	opts  RMOptions
+	opts  Options
 	z     *mat.Dense // LFDraws × n standard normals times the covariance's Cholesky factor
 	ginv  *mat.Dense // Γ⁻¹
 	seTh  float64    // standard error of l'β̂_post
@@ -354,19 +292,19 @@ type rrKey struct {
 	cone int
 }
 
-func newRR(es EventStudy, l []float64, opts RMOptions) (*rr, error) {
+func newRR(es EventStudy, l []float64, opts Options) (*rr, error) {
 	tp, tq := len(es.Pre), len(es.Post)
 	n := tp + tq
 	if tp == 0 || tq == 0 || len(l) != tq || es.Cov == nil || es.Cov.SymmetricDim() != n {
-		return nil, fmt.Errorf("%w: %d leads, %d lags, target of %d, covariance of %d (want %d)", ErrRMInput, tp, tq, len(l), rrDim(es.Cov), n)
+		return nil, fmt.Errorf("%w: %d leads, %d lags, target of %d, covariance of %d (want %d)", ErrInput, tp, tq, len(l), rrDim(es.Cov), n)
 	}
 	if !(opts.Alpha > 0 && opts.Alpha < 0.5) || opts.LFDraws < 0 || opts.GridPoints < 3 {
-		return nil, fmt.Errorf("%w: alpha %g, LF draws %d, grid %d", ErrRMInput, opts.Alpha, opts.LFDraws, opts.GridPoints)
+		return nil, fmt.Errorf("%w: alpha %g, LF draws %d, grid %d", ErrInput, opts.Alpha, opts.LFDraws, opts.GridPoints)
 	}
 	r := &rr{beta: append(append([]float64(nil), es.Pre...), es.Post...), cov: es.Cov, l: l, tp: tp, tq: tq, opts: opts, lfMem: map[rrKey]float64{}}
 	for _, v := range r.beta {
 		if math.IsNaN(v) || math.IsInf(v, 0) {
-			return nil, fmt.Errorf("%w: non-finite coefficient", ErrRMInput)
+			return nil, fmt.Errorf("%w: non-finite coefficient", ErrInput)
 		}
 	}
 	// Γ: first row l', then unit vectors except at l's largest entry
@@ -377,7 +315,7 @@ func newRR(es EventStudy, l []float64, opts RMOptions) (*rr, error) {
 		}
 	}
 	if l[jmax] == 0 {
-		return nil, fmt.Errorf("%w: target is zero", ErrRMInput)
+		return nil, fmt.Errorf("%w: target is zero", ErrInput)
 	}
 	gam := mat.NewDense(tq, tq, nil)
 	gam.SetRow(0, l)
@@ -390,11 +328,11 @@ func newRR(es EventStudy, l []float64, opts RMOptions) (*rr, error) {
 	}
 	r.ginv = mat.NewDense(tq, tq, nil)
 	if err := r.ginv.Inverse(gam); err != nil {
-		return nil, fmt.Errorf("%w: target: %v", ErrRMInput, err)
+		return nil, fmt.Errorf("%w: target: %v", ErrInput, err)
 	}
 	var ch mat.Cholesky
 	if !ch.Factorize(es.Cov) {
-		return nil, fmt.Errorf("%w: covariance not positive definite", ErrRMInput)
+		return nil, fmt.Errorf("%w: covariance not positive definite", ErrInput)
 	}
 	v := 0.0
 	for i := range tq {
@@ -507,7 +445,7 @@ func (mo *rrMoments) eta(y []float64) (float64, []float64, error) {
 	}
 	v, g, err := lp.Simplex(c, A, b, 1e-10, nil)
 	if err != nil {
-		return 0, nil, fmt.Errorf("%w: test statistic: %v", ErrRMLP, err)
+		return 0, nil, fmt.Errorf("%w: test statistic: %v", ErrLP, err)
 	}
 	return -v, g, nil
 }
@@ -642,7 +580,7 @@ func (mo *rrMoments) conditioning(y []float64, eta float64, g []float64) (float6
 	gv := mat.NewVecDense(m, g)
 	sg2 := mat.Inner(gv, mo.sy, gv)
 	if !(sg2 > 0) {
-		return 0, nil, nil, fmt.Errorf("%w: degenerate statistic variance", ErrRMLP)
+		return 0, nil, nil, fmt.Errorf("%w: degenerate statistic variance", ErrLP)
 	}
 	c := make([]float64, m)
 	mat.NewVecDense(m, c).MulVec(mo.sy, gv)
@@ -734,7 +672,7 @@ func (mo *rrMoments) truncationBisect(y []float64, eta float64, g []float64) (sg
 	gv := mat.NewVecDense(m, g)
 	sg2 := mat.Inner(gv, mo.sy, gv)
 	if !(sg2 > 0) {
-		return 0, 0, 0, fmt.Errorf("%w: degenerate statistic variance", ErrRMLP)
+		return 0, 0, 0, fmt.Errorf("%w: degenerate statistic variance", ErrLP)
 	}
 	sgm = math.Sqrt(sg2)
 	cvec := make([]float64, m)
@@ -827,16 +765,16 @@ func (r *rr) kept(ctx context.Context, mbar, theta float64) (bool, error) {
 }
 
 // interval computes the robust set at M̄.
-func (r *rr) interval(ctx context.Context, mbar float64) (RMInterval, error) {
+func (r *rr) interval(ctx context.Context, mbar float64) (Interval, error) {
 	pre, post := r.beta[:r.tp], r.beta[r.tp:]
-	idLo, idHi, err := RMIdentifiedSet(pre, post, r.l, mbar)
+	idLo, idHi, err := IdentifiedSet(pre, post, r.l, mbar)
 	if err != nil {
-		return RMInterval{}, err
+		return Interval{}, err
 	}
-	iv := RMInterval{MBar: mbar, IDLo: idLo, IDHi: idHi, Lo: math.Inf(1), Hi: math.Inf(-1)}
+	iv := Interval{MBar: mbar, IDLo: idLo, IDHi: idHi, Lo: math.Inf(1), Hi: math.Inf(-1)}
 	for ci, cone := range rrCones(r.tp, r.tq, mbar) {
 		if err := ctx.Err(); err != nil {
-			return RMInterval{}, err
+			return Interval{}, err
 		}
 		mo := r.moments(cone)
 		key := rrKey{mbar, ci}
@@ -846,7 +784,7 @@ func (r *rr) interval(ctx context.Context, mbar float64) (RMInterval, error) {
 		}
 		lo, hi, err := rrAccepted(test, idLo-4*r.seTh, idHi+4*r.seTh, r.seTh, r.opts.GridPoints)
 		if err != nil {
-			return RMInterval{}, err
+			return Interval{}, err
 		}
 		iv.Lo, iv.Hi = min(iv.Lo, lo), max(iv.Hi, hi)
 	}
