@@ -5,7 +5,7 @@ STORE   ?= demo-out/loadwake.db
 OUT     ?= demo-out
 COUNT   ?= 5
 
-.PHONY: all build test vet fmt demo docs-chart bench fuzz browser-test clean
+.PHONY: all build test validate vet fmt demo docs-chart bench fuzz browser-test clean
 
 all: build
 
@@ -18,9 +18,16 @@ fmt:
 vet:
 	$(GO) vet ./...
 
+# test is the everyday check: vet, format and every package's tests in their
+# quick versions (under 90 s on 2 cores with a warm build cache).
 test: vet
 	@test -z "$$(gofmt -l .)" || (echo "gofmt needed on:"; gofmt -l .; exit 1)
-	$(GO) test -timeout 30m ./...
+	$(GO) test -timeout 10m ./...
+
+# validate runs the long studies as well: coverage and size over hundreds of
+# simulated worlds and panels, the default-size worlds (build tag validate).
+validate:
+	$(GO) test -tags validate -timeout 60m ./...
 
 # demo runs the whole job end to end on an invented region with an embedded store.
 demo: build

@@ -11,6 +11,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/orb/geojson"
@@ -325,6 +326,9 @@ func moments(x []float64) (mean, m2, m4 float64) {
 // untreated post/pre), the multiplicative two-group difference-in-differences
 // (common practice), in a one-cohort world with large effects.
 func TestPlantedEffects(t *testing.T) {
+	if !simtest.Validate {
+		t.Skip("a default-size world: make validate runs it")
+	}
 	cfg := sim.DefaultConfig()
 	cfg.Cols, cfg.Rows, cfg.Months = 8, 8, 24
 	cfg.Treated, cfg.Waves = 24, 1
@@ -427,6 +431,9 @@ func TestPlantedNeglect(t *testing.T) {
 // TestSelectionOnLevels: treated districts are drawn with weight λ_d, so their
 // mean rate is above the untreated mean (size-biased Gamma: mean μ(k+1)/k).
 func TestSelectionOnLevels(t *testing.T) {
+	if !simtest.Validate {
+		t.Skip("a default-size world: make validate runs it")
+	}
 	_, tr := generate(t, sim.DefaultConfig())
 	var sum, cnt [2]float64
 	for _, d := range tr.Districts {

@@ -6,6 +6,7 @@ import (
 	"testing"
 	"time"
 
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers"
@@ -16,10 +17,11 @@ import (
 // TestRoundTrip ingests a simulated world into an in-memory store, classifies
 // it with the default rules and checks that the store's counts equal the
 // generator's and that the classifier's per-layer events equal the truth
-// tallies, organic and import edits apart.
+// tallies, organic and import edits apart. make validate runs it on the
+// default-size world.
 func TestRoundTrip(t *testing.T) {
 	cfg := smallConfig()
-	if !testing.Short() {
+	if simtest.Validate {
 		cfg = sim.DefaultConfig() // some 200,000 versions
 		cfg.Dynamic, cfg.TrendSelection = true, true
 	}
