@@ -28,7 +28,7 @@ var update = flag.Bool("update", false, "rewrite the golden files")
 func f64(x float64) *float64 { return &x }
 
 // appendixUnits loads the two units of RFC 7946 appendix A (A.3, a polygon
-// with a hole, and A.6, a multipolygon), kept in audit/testdata.
+// with a hole, and A.6, a multipolygon), kept in audit/spatial/testdata.
 func appendixUnits(tb testing.TB) *spatial.Units {
 	tb.Helper()
 	u, err := spatial.Parse("../spatial/testdata/rfc7946_appendix_a.geojson", spatial.Options{})

@@ -1,6 +1,6 @@
 # props_reference.R: reference values for audit/props_test.go.
 #
-# Run once from audit/testdata:  Rscript R/props_reference.R
+# Run once from audit/checklist/testdata:  Rscript R/props_reference.R
 # Base R only (stats::prop.test, stats::p.adjust). Writes
 #   props_wilson.csv   one-sample prop.test(x, n, correct = FALSE): the Wilson score interval
 #   props_ztest.csv    two-sample prop.test(c(x1, x2), c(n1, n2), correct = FALSE): chi-square and p

@@ -2,7 +2,7 @@
 # 1982-1988, traffic deaths "fatal") and glm_fatalities_ref.csv: Poisson
 # regression fatal ~ beertax + unemp + factor(state) + factor(year) fitted by
 # glm(family = poisson) with state-clustered standard errors from
-# sandwich::vcovCL(type = "HC1"). Run from audit/testdata: Rscript R/glm_fatalities.R
+# sandwich::vcovCL(type = "HC1"). Run from audit/did/testdata: Rscript R/glm_fatalities.R
 suppressPackageStartupMessages({library(AER); library(sandwich)})
 data("Fatalities", package = "AER")
 d <- Fatalities[, c("state", "year", "fatal", "beertax", "unemp")]

@@ -1,7 +1,7 @@
 # Writes petersen.csv (Petersen 2009 test data as shipped in R's sandwich
 # package, data set PetersenCL) and petersen_ref.csv (OLS y ~ x with classic,
 # firm-clustered and year-clustered standard errors, sandwich::vcovCL type HC1).
-# Run from audit/testdata: Rscript R/petersen.R
+# Run from audit/did/testdata: Rscript R/petersen.R
 suppressPackageStartupMessages(library(sandwich))
 data("PetersenCL", package = "sandwich")
 write.csv(PetersenCL[, c("firm", "year", "x", "y")], "petersen.csv", row.names = FALSE)

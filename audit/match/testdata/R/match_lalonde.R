@@ -1,6 +1,6 @@
 # match_lalonde.R: reference values for audit/match_test.go and audit/logit_test.go.
 #
-# Run once from audit/testdata:  Rscript R/match_lalonde.R
+# Run once from audit/match/testdata:  Rscript R/match_lalonde.R
 # Needs R with MatchIt (Debian: r-base-core, r-cran-matchit). Writes
 #   lalonde.csv                the LaLonde data set as shipped in MatchIt (614 rows)
 #   lalonde_glm.csv            glm(binomial) coefficients and standard errors
