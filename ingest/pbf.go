@@ -247,6 +247,13 @@ func (pr *pbfReader) Scan() bool {
 	if pr.err != nil || pr.closed {
 		return false
 	}
+	// A block holds up to 8000 objects; look at the context within it too.
+	if pr.elements%1024 == 1023 {
+		if err := pr.ctx.Err(); err != nil {
+			pr.err = fmt.Errorf("ingest: reading %s: %w", pr.name, err)
+			return false
+		}
+	}
 	for pr.cur == nil || pr.idx >= len(pr.cur.objs) {
 		var b *pbfBlock
 		var ok bool

@@ -68,6 +68,11 @@ func (d *decoder) syntax(data []byte, err error) {
 		msg += fmt.Sprintf(" (%s that starts at line %d, column %d)", le.ContextMsg, le.ContextMark.Line, le.ContextMark.Column)
 	}
 	line, col := le.Mark.Line, le.Mark.Column
+	if line == 0 && le.Stage == yaml.ReaderStage {
+		// Errors of the character reader (a control character, bad
+		// UTF-8) carry only the byte offset.
+		line, col = posOf(data, le.Mark.Index)
+	}
 	// At the end of the input libyaml moves to a fresh line even when the
 	// last line has no newline; point at the real end instead.
 	if endLine, endCol := endOf(data); line > endLine || line == endLine && col > endCol {
@@ -79,8 +84,15 @@ func (d *decoder) syntax(data []byte, err error) {
 // endOf returns the 1-based line and column just after the last character of
 // data, counting columns in characters as yaml does.
 func endOf(data []byte) (line, col int) {
-	i := bytes.LastIndexByte(data, '\n')
-	return bytes.Count(data, []byte{'\n'}) + 1, utf8.RuneCount(data[i+1:]) + 1
+	return posOf(data, len(data))
+}
+
+// posOf returns the 1-based line and column of byte offset off in data.
+func posOf(data []byte, off int) (line, col int) {
+	off = max(0, min(off, len(data)))
+	head := data[:off]
+	i := bytes.LastIndexByte(head, '\n')
+	return bytes.Count(head, []byte{'\n'}) + 1, utf8.RuneCount(head[i+1:]) + 1
 }
 
 func (d *decoder) addf(n *yaml.Node, format string, args ...any) {

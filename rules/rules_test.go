@@ -362,6 +362,8 @@ func TestSyntaxPositions(t *testing.T) {
 		{"wide characters before the error", "format: 1\nkey_families: \"äö\": b\n", 2, 19, "mapping values are not allowed in this context"},
 		{"error on line 1", "format: [\n", 2, 1, "did not find expected node content"},
 		{"unknown alias", "format: *nope\n", 1, 9, "unknown anchor 'nope' referenced"},
+		{"control character", "format: 1\nkey_families: a\x01b\n", 2, 16, "control characters are not allowed"},
+		{"invalid UTF-8", "format: 1\nkey_families: \"é\xff\"\n", 2, 17, "invalid"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
