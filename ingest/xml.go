@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"strconv"
 	"time"
 
@@ -234,10 +235,15 @@ func (r *xmlReader) skip() (ok, stop bool) {
 
 // decodeElement decodes an object or changeset element into r.item and validates it.
 func (r *xmlReader) decodeElement(t xml.StartElement, at Position) error {
-	visibleGiven := false
+	visibleGiven, hasLat, hasLon := false, false, false
 	for _, a := range t.Attr {
-		if a.Name.Local == "visible" {
+		switch a.Name.Local {
+		case "visible":
 			visibleGiven = true
+		case "lat":
+			hasLat = true
+		case "lon":
+			hasLon = true
 		}
 	}
 	var (
@@ -270,6 +276,9 @@ func (r *xmlReader) decodeElement(t xml.StartElement, at Position) error {
 		if c.CreatedAt.IsZero() {
 			return r.errorf(at, label, ErrFormat, "changeset without created_at")
 		}
+		if err := checkChangesetBounds(c); err != nil {
+			return &ParseError{File: r.name, Pos: at, Object: label, Err: err}
+		}
 		r.item = Item{Changeset: c, Pos: at}
 		return nil
 	}
@@ -286,6 +295,9 @@ func (r *xmlReader) decodeElement(t xml.StartElement, at Position) error {
 	case *osm.Node:
 		if r.format == FormatOsmChange || !visibleGiven {
 			o.Visible = visible
+		}
+		if o.Visible && (!hasLat || !hasLon) {
+			o.Lat, o.Lon = math.NaN(), math.NaN() // no location: checkLocation refuses it
 		}
 	case *osm.Way:
 		if r.format == FormatOsmChange || !visibleGiven {

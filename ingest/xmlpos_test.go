@@ -15,7 +15,7 @@ import (
 
 const (
 	xmlHead = `<?xml version="1.0" encoding="UTF-8"?>`
-	xmlMeta    = `version="1" timestamp="2020-01-01T00:00:00Z" changeset="7" uid="3" user="a"`
+	xmlMeta = `version="1" timestamp="2020-01-01T00:00:00Z" changeset="7" uid="3" user="a"`
 )
 
 func xmlLines(lines ...string) []byte {
