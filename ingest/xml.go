@@ -84,7 +84,7 @@ func (e *nestingError) Error() string {
 		return fmt.Sprintf("end tag </%s> closes no open element", e.end)
 	case e.end == "":
 		return fmt.Sprintf("element <%s> is not closed: the file ends at line %d, column %d (truncated?)",
-			e.open.name.Local, e.endPos.Line, e.endPos.Column)
+			xmlName(e.open.name), e.endPos.Line, e.endPos.Column)
 	case e.outer:
 		return fmt.Sprintf("element <%s> is not closed: </%s> at line %d, column %d closes an element around it",
 			xmlName(e.open.name), e.end, e.endPos.Line, e.endPos.Column)
@@ -346,6 +346,9 @@ func (r *xmlReader) syntaxError(err error) error {
 	if errors.As(err, &nest) {
 		p := nest.at()
 		at.Offset, at.Line, at.Column = p.Offset, p.Line, p.Column
+		if !r.inObject() {
+			at.Element = 0 // the open element is the root or an OsmChange block
+		}
 		return &ParseError{File: r.name, Pos: at, Err: fmt.Errorf("%w: %w", ErrFormat, err)}
 	}
 	var syn *xml.SyntaxError
@@ -358,6 +361,23 @@ func (r *xmlReader) syntaxError(err error) error {
 		return &ParseError{File: r.name, Pos: at, Err: fmt.Errorf("%w: %s: %w", ErrFormat, msg, err)}
 	}
 	return &ParseError{File: r.name, Pos: at, Err: fmt.Errorf("%w: %w", ErrFormat, err)}
+}
+
+// inObject reports whether the innermost open element is an object or
+// changeset element or lies inside one.
+func (r *xmlReader) inObject() bool {
+	depth := 2
+	if r.format == FormatOsmChange {
+		depth = 3
+	}
+	if len(r.open.stack) < depth {
+		return false
+	}
+	switch r.open.stack[depth-1].name.Local {
+	case "node", "way", "relation", "changeset":
+		return true
+	}
+	return false
 }
 
 // Item returns the current item; it is owned by the caller.

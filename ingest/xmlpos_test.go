@@ -101,20 +101,21 @@ func TestXMLErrorAtOpenElement(t *testing.T) {
 		name      string
 		data      []byte
 		line, col int
+		element   int64 // element number in the error: the object left open, 0 outside objects
 		msg       string
 	}{
-		{"osm node without end tag", xmlLines(without(osmL, 5)...), 3, 2, "element <node> is not closed: </osm> at line 13, column 1"},
-		{"osm way without end tag", xmlLines(without(osmL, 9)...), 6, 2, "element <way> is not closed: </osm> at line 13, column 1"},
-		{"osm relation without end tag", xmlLines(without(osmL, 12)...), 10, 2, "element <relation> is not closed"},
-		{"osm tag not self-closed", xmlLines(replaced(osmL, 8, `  <tag k="highway" v="track">`)...), 8, 3, "element <tag> is not closed: </way> at line 9, column 2"},
-		{"osm truncated after an object", xmlLines(osmL[:9]...), 2, 1, "element <osm> is not closed: the file ends at line 10, column 1"},
-		{"osm misspelled end tag", xmlLines(replaced(osmL, 9, ` </wya>`)...), 9, 2, "end tag </wya> does not match <way> opened at line 6, column 2"},
-		{"osmChange node without end tag", xmlLines(without(oscL, 6)...), 4, 3, "element <node> is not closed: </create> at line 6, column 2"},
-		{"osmChange way without end tag", xmlLines(without(oscL, 11)...), 9, 3, "element <way> is not closed"},
-		{"osmChange modify without end tag", xmlLines(without(oscL, 12)...), 8, 2, "element <modify> is not closed: </osmChange> at line 15, column 1"},
-		{"osmChange relation not self-closed", xmlLines(replaced(oscL, 14, strings.Replace(oscL[13], "/>", ">", 1))...), 14, 3, "element <relation> is not closed: </delete> at line 15, column 2"},
-		{"changeset without end tag", xmlLines(without(csL, 5)...), 3, 2, "element <changeset> is not closed: </osm> at line 6, column 1"},
-		{"changeset truncated inside", xmlLines(csL[:4]...), 3, 2, "element <changeset> is not closed: the file ends at line 5, column 1"},
+		{"osm node without end tag", xmlLines(without(osmL, 5)...), 3, 2, 1, "element <node> is not closed: </osm> at line 13, column 1"},
+		{"osm way without end tag", xmlLines(without(osmL, 9)...), 6, 2, 2, "element <way> is not closed: </osm> at line 13, column 1"},
+		{"osm relation without end tag", xmlLines(without(osmL, 12)...), 10, 2, 3, "element <relation> is not closed"},
+		{"osm tag not self-closed", xmlLines(replaced(osmL, 8, `  <tag k="highway" v="track">`)...), 8, 3, 2, "element <tag> is not closed: </way> at line 9, column 2"},
+		{"osm truncated after an object", xmlLines(osmL[:9]...), 2, 1, 0, "element <osm> is not closed: the file ends at line 10, column 1"},
+		{"osm misspelled end tag", xmlLines(replaced(osmL, 9, ` </wya>`)...), 9, 2, 2, "end tag </wya> does not match <way> opened at line 6, column 2"},
+		{"osmChange node without end tag", xmlLines(without(oscL, 6)...), 4, 3, 1, "element <node> is not closed: </create> at line 6, column 2"},
+		{"osmChange way without end tag", xmlLines(without(oscL, 11)...), 9, 3, 2, "element <way> is not closed"},
+		{"osmChange modify without end tag", xmlLines(without(oscL, 12)...), 8, 2, 0, "element <modify> is not closed: </osmChange> at line 15, column 1"},
+		{"osmChange relation not self-closed", xmlLines(replaced(oscL, 14, strings.Replace(oscL[13], "/>", ">", 1))...), 14, 3, 3, "element <relation> is not closed: </delete> at line 15, column 2"},
+		{"changeset without end tag", xmlLines(without(csL, 5)...), 3, 2, 1, "element <changeset> is not closed: </osm> at line 6, column 1"},
+		{"changeset truncated inside", xmlLines(csL[:4]...), 3, 2, 1, "element <changeset> is not closed: the file ends at line 5, column 1"},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {
@@ -130,8 +131,8 @@ func TestXMLErrorAtOpenElement(t *testing.T) {
 			if !errors.As(err, &pe) || !errors.Is(err, ErrFormat) {
 				t.Fatalf("error %v, want a *ParseError wrapping ErrFormat", err)
 			}
-			if pe.Pos.Line != tt.line || pe.Pos.Column != tt.col || !strings.Contains(err.Error(), tt.msg) {
-				t.Errorf("error %q\nwant line %d, column %d and %q", err, tt.line, tt.col, tt.msg)
+			if pe.Pos.Line != tt.line || pe.Pos.Column != tt.col || pe.Pos.Element != tt.element || !strings.Contains(err.Error(), tt.msg) {
+				t.Errorf("error %q\nwant line %d, column %d, element %d and %q", err, tt.line, tt.col, tt.element, tt.msg)
 			}
 			if want := tt.data; pe.Pos.Offset < 0 || pe.Pos.Offset >= int64(len(want)) {
 				t.Errorf("offset %d outside the %d-byte file", pe.Pos.Offset, len(want))
