@@ -138,14 +138,7 @@ func FuzzChangesetReader(f *testing.F) {
 // nodes, a deleted node, a way and a relation, with raw and zlib blobs, and a
 // file cut inside its data block.
 func FuzzPBFReader(f *testing.F) {
-	const ts = 1577836800
-	block := pbfPrimitiveBlock(
-		pbfDenseNodes(pbfNode{id: 1, lat: 10, lon: 20, version: 1, ts: ts, user: 1, tagKey: 3, tagVal: 4},
-			pbfNode{id: 1, version: 2, ts: ts + 60, user: 1, deleted: true},
-			pbfNode{id: 2, lat: -15, lon: 25, version: 1, ts: ts, user: 1}),
-		pbfPlainNodes(pbfNode{id: 3, lat: 900000000, lon: -1800000000, version: 1, ts: ts, user: 1}),
-		pbfWay(5, 1, ts, 2, 3),
-		pbfRelation(9, 1, ts, 5))
+	block := pbfSample(true)
 	raw, _ := pbfFile(f, false, block)
 	zipped, _ := pbfFile(f, true, block)
 	f.Add(raw)

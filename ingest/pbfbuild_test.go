@@ -123,38 +123,54 @@ func pbfDenseNodes(nodes ...pbfNode) []byte {
 	return pbfMsg(nil, 2, d)
 }
 
+// pbfHead starts a Way or Relation message: its id and Info.
+func pbfHead(id int64, version int32, ts int64) []byte {
+	m := pbfVarint(nil, 1, uint64(id))
+	return pbfMsg(m, 4, pbfInfo(pbfNode{version: version, ts: ts, user: 1}))
+}
+
+// pbfDeltas zig-zag codes the differences of consecutive values.
+func pbfDeltas(vs []int64) []uint64 {
+	out := make([]uint64, len(vs))
+	var prev int64
+	for i, v := range vs {
+		out[i], prev = protowire.EncodeZigZag(v-prev), v
+	}
+	return out
+}
+
 // pbfWay is a PrimitiveGroup with one way of the given node refs.
 func pbfWay(id int64, version int32, ts int64, refs ...int64) []byte {
-	var m []byte
-	m = pbfVarint(m, 1, uint64(id))
-	m = pbfMsg(m, 4, pbfInfo(pbfNode{version: version, ts: ts, user: 1}))
-	var deltas []uint64
-	var prev int64
-	for _, r := range refs {
-		deltas = append(deltas, protowire.EncodeZigZag(r-prev))
-		prev = r
-	}
-	m = pbfPacked(m, 8, deltas)
+	m := pbfPacked(pbfHead(id, version, ts), 8, pbfDeltas(refs))
 	return pbfMsg(nil, 3, m)
 }
 
-// pbfRelation is a PrimitiveGroup with one relation whose members are ways.
+// pbfRelation is a PrimitiveGroup with one relation whose members are ways
+// with the role "outer".
 func pbfRelation(id int64, version int32, ts int64, ways ...int64) []byte {
-	var m []byte
-	m = pbfVarint(m, 1, uint64(id))
-	m = pbfMsg(m, 4, pbfInfo(pbfNode{version: version, ts: ts, user: 1}))
-	var roles, memids, types []uint64
-	var prev int64
-	for _, w := range ways {
-		roles = append(roles, 2)
-		memids = append(memids, protowire.EncodeZigZag(w-prev))
-		types = append(types, 1)
-		prev = w
+	roles, types := make([]uint64, len(ways)), make([]uint64, len(ways))
+	for i := range ways {
+		roles[i], types[i] = 2, 1 // pbfStrings()[2]; osmformat.proto MemberType WAY
 	}
+	m := pbfHead(id, version, ts)
 	m = pbfPacked(m, 8, roles)
-	m = pbfPacked(m, 9, memids)
+	m = pbfPacked(m, 9, pbfDeltas(ways))
 	m = pbfPacked(m, 10, types)
 	return pbfMsg(nil, 4, m)
+}
+
+// pbfSample is a PrimitiveBlock of dense nodes (one tagged, a deleted
+// version), plain nodes when plain is set, a way and a relation.
+func pbfSample(plain bool) []byte {
+	const ts = 1577836800
+	groups := [][]byte{pbfDenseNodes(pbfNode{id: 1, lat: 10, lon: 20, version: 1, ts: ts, user: 1, tagKey: 3, tagVal: 4},
+		pbfNode{id: 1, version: 2, ts: ts + 60, user: 1, deleted: true},
+		pbfNode{id: 2, lat: -15, lon: 25, version: 1, ts: ts, user: 1})}
+	if plain {
+		groups = append(groups, pbfPlainNodes(pbfNode{id: 3, lat: 900000000, lon: -1800000000, version: 1, ts: ts, user: 1}))
+	}
+	groups = append(groups, pbfWay(5, 1, ts, 2, 1), pbfRelation(9, 1, ts, 5))
+	return pbfPrimitiveBlock(groups...)
 }
 
 // pbfStrings is the string table of every hand-made block: "" (index 0, as
@@ -221,13 +237,7 @@ func pbfFile(tb testing.TB, zip bool, blocks ...[]byte) (file []byte, dataOffset
 // dense nodes (one tagged, one deleted), a way and a relation, raw and zlib,
 // as our reader does. osmpbf cannot read plain nodes, so they are left out.
 func TestPBFWriterMatchesOsmpbf(t *testing.T) {
-	const ts = 1577836800
-	block := pbfPrimitiveBlock(
-		pbfDenseNodes(pbfNode{id: 1, lat: 10, lon: 20, version: 1, ts: ts, user: 1, tagKey: 3, tagVal: 4},
-			pbfNode{id: 1, version: 2, ts: ts + 60, user: 1, deleted: true},
-			pbfNode{id: 2, lat: -15, lon: 25, version: 1, ts: ts, user: 1}),
-		pbfWay(5, 1, ts, 2, 1),
-		pbfRelation(9, 1, ts, 5))
+	block := pbfSample(false)
 	for _, zip := range []bool{false, true} {
 		data, _ := pbfFile(t, zip, block)
 		_, items := mustReadAll(t, writeTemp(t, "hand.osh.pbf", data))
