@@ -1,6 +1,7 @@
 package ingest
 
 import (
+	"bufio"
 	"context"
 	"encoding/xml"
 	"errors"
@@ -39,21 +40,61 @@ type xmlReader struct {
 
 var _ Reader = (*xmlReader)(nil)
 
-func newXMLReader(ctx context.Context, base readerBase, r io.Reader) *xmlReader {
-	raw := xml.NewDecoder(r)
+func newXMLReader(ctx context.Context, base readerBase, r *bufio.Reader) *xmlReader {
+	lines := &lineStarts{r: r}
+	raw := xml.NewDecoder(lines)
 	raw.Strict = true
-	open := &openElements{raw: raw}
+	open := &openElements{raw: raw, lines: lines}
 	return &xmlReader{readerBase: base, ctx: ctx, raw: raw, open: open, dec: xml.NewTokenDecoder(open)}
 }
 
 // pos is the tokenizer's current position: the start of the next token.
 func (r *xmlReader) pos() Position {
-	return rawPos(r.raw)
+	return rawPos(r.raw, r.open.lines)
 }
 
-func rawPos(d *xml.Decoder) Position {
+func rawPos(d *xml.Decoder, lines *lineStarts) Position {
 	line, col := d.InputPos()
-	return Position{Offset: d.InputOffset(), Line: line, Column: col}
+	off := d.InputOffset()
+	if col < 1 {
+		// encoding/xml pushed back the newline ending line: it does not
+		// restore the line's start and reports column 0. The newline is
+		// the line's last byte.
+		col = int(off-lines.prev) + 1
+	}
+	return Position{Offset: off, Line: line, Column: col}
+}
+
+// lineStarts is the tokenizer's byte source; it keeps the byte offsets where
+// the current and the previous line start.
+type lineStarts struct {
+	r         *bufio.Reader
+	off       int64
+	cur, prev int64
+}
+
+// ReadByte is what encoding/xml reads with.
+func (l *lineStarts) ReadByte() (byte, error) {
+	b, err := l.r.ReadByte()
+	if err == nil {
+		l.off++
+		if b == '\n' {
+			l.prev, l.cur = l.cur, l.off
+		}
+	}
+	return b, err
+}
+
+// Read makes lineStarts an io.Reader; encoding/xml uses ReadByte only.
+func (l *lineStarts) Read(p []byte) (int, error) {
+	for i := range p {
+		b, err := l.ReadByte()
+		if err != nil {
+			return i, err
+		}
+		p[i] = b
+	}
+	return len(p), nil
 }
 
 // openElements is an xml.TokenReader over a raw tokenizer that remembers where
@@ -61,6 +102,7 @@ func rawPos(d *xml.Decoder) Position {
 // end of the file, while an element is open gives a *nestingError naming it.
 type openElements struct {
 	raw   *xml.Decoder
+	lines *lineStarts
 	stack []openElement
 }
 
@@ -110,7 +152,7 @@ func xmlName(n xml.Name) string {
 
 // Token returns the next raw token after checking its nesting.
 func (o *openElements) Token() (xml.Token, error) {
-	at := rawPos(o.raw)
+	at := rawPos(o.raw, o.lines)
 	tok, err := o.raw.RawToken()
 	if err != nil {
 		if errors.Is(err, io.EOF) && len(o.stack) > 0 {

@@ -140,3 +140,20 @@ func TestXMLErrorAtOpenElement(t *testing.T) {
 		})
 	}
 }
+
+// TestXMLErrorColumnAtLineEnd checks the column of an error found at a
+// newline that encoding/xml pushed back (it then reports column 0): a bad
+// attribute name ends line 4, so the error is at the newline, one column
+// past the line's last character. Found by FuzzOsmChangeReader.
+func TestXMLErrorColumnAtLineEnd(t *testing.T) {
+	lines := oscLines()
+	lines[3] = strings.TrimSuffix(lines[3], ">") + "0"
+	_, err := readLocations(t, xmlLines(lines...))
+	var pe *ParseError
+	if !errors.As(err, &pe) || !errors.Is(err, ErrFormat) {
+		t.Fatalf("error %v, want a *ParseError wrapping ErrFormat", err)
+	}
+	if want := len(lines[3]) + 1; pe.Pos.Line != 4 || pe.Pos.Column != want {
+		t.Errorf("error %q, want line 4, column %d", err, want)
+	}
+}
