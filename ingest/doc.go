@@ -7,6 +7,12 @@
 // OsmChange or changeset-metadata file, plain or compressed; Ingest feeds
 // readers into a Store.
 //
+// Errors about a file's content are *ParseError values naming the file and a
+// Position: byte offset of the PBF block, or line and column in the XML
+// formats (1-based, columns in bytes), and the element number. An XML element
+// left open is reported at its start tag, whether an outer end tag or the end
+// of the file shows it; an end tag matching no open element at that tag.
+//
 // # Locations
 //
 // Every visible node version must have a location with latitude in [-90, 90]
