@@ -1,7 +1,6 @@
 package rules
 
 import (
-	"bytes"
 	"errors"
 	"fmt"
 	"math"
@@ -82,17 +81,29 @@ func (d *decoder) syntax(data []byte, err error) {
 }
 
 // endOf returns the 1-based line and column just after the last character of
-// data, counting columns in characters as yaml does.
+// data, counted as posOf does.
 func endOf(data []byte) (line, col int) {
 	return posOf(data, len(data))
 }
 
-// posOf returns the 1-based line and column of byte offset off in data.
+// posOf returns the 1-based line and column of byte offset off in data,
+// counting as yaml does: columns in characters, and a line break at LF, at a
+// CR not followed by LF, and at NEL, LS and PS (YAML 1.1 line breaks).
 func posOf(data []byte, off int) (line, col int) {
 	off = max(0, min(off, len(data)))
-	head := data[:off]
-	i := bytes.LastIndexByte(head, '\n')
-	return bytes.Count(head, []byte{'\n'}) + 1, utf8.RuneCount(head[i+1:]) + 1
+	line, col = 1, 1
+	for i := 0; i < off; {
+		r, size := utf8.DecodeRune(data[i:])
+		switch {
+		case r == '\n', r == '\u0085', r == '\u2028', r == '\u2029',
+			r == '\r' && (i+1 >= len(data) || data[i+1] != '\n'):
+			line, col = line+1, 1
+		default:
+			col++
+		}
+		i += size
+	}
+	return line, col
 }
 
 func (d *decoder) addf(n *yaml.Node, format string, args ...any) {

@@ -343,7 +343,8 @@ func TestDefaultYAMLIsCopy(t *testing.T) {
 // hand, counting lines and columns in the source string (a tab or a space is
 // one column; the end of a file that ends with a newline is column 1 of the
 // line after it, of one without a newline the column after its last
-// character; ä is one column, not two bytes); the message texts are go.yaml.in/yaml/v4 v4.0.0's.
+// character; ä is one column, not two bytes; a CR alone breaks a line, as the
+// YAML spec's line breaks include it); the message texts are go.yaml.in/yaml/v4 v4.0.0's.
 func TestSyntaxPositions(t *testing.T) {
 	tests := []struct {
 		name, src  string
@@ -363,6 +364,9 @@ func TestSyntaxPositions(t *testing.T) {
 		{"error on line 1", "format: [\n", 2, 1, "did not find expected node content"},
 		{"unknown alias", "format: *nope\n", 1, 9, "unknown anchor 'nope' referenced"},
 		{"control character", "format: 1\nkey_families: a\x01b\n", 2, 16, "control characters are not allowed"},
+		{"CR line breaks", "format: 1\rkey_families: a: b\r", 2, 16, "mapping values are not allowed in this context"},
+		{"CR LF line breaks", "format: 1\r\nkey_families: a: b\r\n", 2, 16, "mapping values are not allowed in this context"},
+		{"control character after CR", "format: 1\rkey_families: a\x01b\n", 2, 16, "control characters are not allowed"},
 		{"invalid UTF-8", "format: 1\nkey_families: \"é\xff\"\n", 2, 17, "invalid"},
 	}
 	for _, tt := range tests {
