@@ -43,8 +43,11 @@ bench:
 
 FUZZTIME ?= 30s
 fuzz:
-	$(GO) test -run '^$$' -fuzz FuzzXMLReader -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
-	$(GO) test -run '^$$' -fuzz FuzzOsmChangeReader -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
+	$(GO) test -run '^$$' -fuzz '^FuzzXMLReader$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
+	$(GO) test -run '^$$' -fuzz '^FuzzOsmChangeReader$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
+	$(GO) test -run '^$$' -fuzz '^FuzzChangesetReader$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
+	$(GO) test -run '^$$' -fuzz '^FuzzPBFReader$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
+	$(GO) test -run '^$$' -fuzz '^FuzzParse$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./rules
 
 browser-test:
 	bash .ci/browser-test

@@ -66,8 +66,9 @@ const detectPeek = 64 << 10
 //
 // The readers check what the store relies on: every object has a positive
 // version and a timestamp (a PBF written without metadata fails), consecutive
-// versions of one object increase strictly, and changesets have an id and a
-// created_at. A missing visible attribute or PBF visible field means visible;
+// versions of one object increase strictly, visible nodes have a location in
+// [-90, 90] x [-180, 180] (see Locations in the package doc), and changesets
+// have an id, a created_at and a bounding box in that range. A missing visible attribute or PBF visible field means visible;
 // objects of an OsmChange delete block are not visible, of create and modify
 // blocks visible.
 func OpenFile(ctx context.Context, path string, opts ReadOptions) (Reader, error) {
@@ -348,5 +349,8 @@ func (c *versionCheck) object(o osm.Object) error {
 		return fmt.Errorf("%w: version %d follows version %d of the same %s", ErrOrder, version, c.version, typ)
 	}
 	c.typ, c.id, c.version = typ, id, version
+	if n, ok := o.(*osm.Node); ok {
+		return checkLocation(n)
+	}
 	return nil
 }

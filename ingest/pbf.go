@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"sync"
 	"time"
 
@@ -246,6 +247,13 @@ func checkHeaderBlock(blob []byte) error {
 func (pr *pbfReader) Scan() bool {
 	if pr.err != nil || pr.closed {
 		return false
+	}
+	// A block holds up to 8000 objects; look at the context within it too.
+	if pr.elements%1024 == 1023 {
+		if err := pr.ctx.Err(); err != nil {
+			pr.err = fmt.Errorf("ingest: reading %s: %w", pr.name, err)
+			return false
+		}
 	}
 	for pr.cur == nil || pr.idx >= len(pr.cur.objs) {
 		var b *pbfBlock
@@ -539,6 +547,17 @@ func (d *blockDecoder) coord(off, v int64) float64 {
 	return 1e-9 * float64(off+d.granularity*v)
 }
 
+// undefinedNano is libosmium's undefined location, 2147483647 units of 100
+// nanodegrees (osmium/osm/location.hpp: undefined_coordinate is the largest
+// int32), in nanodegrees.
+const undefinedNano = 2147483647 * 100
+
+// undefined reports whether the raw lat and lon of a node are libosmium's
+// undefined location, which osmium writes for nodes without one.
+func (d *blockDecoder) undefined(lat, lon int64) bool {
+	return d.latOff+d.granularity*lat == undefinedNano && d.lonOff+d.granularity*lon == undefinedNano
+}
+
 func (d *blockDecoder) when(t int64) time.Time {
 	return time.UnixMilli(t * d.dateGran).UTC()
 }
@@ -636,6 +655,7 @@ func (d *blockDecoder) node(b []byte) error {
 	var m meta
 	m.visible = true
 	var lat, lon int64
+	hasLat, hasLon := false, false
 	d.keys, d.vals = d.keys[:0], d.vals[:0]
 	for len(b) > 0 {
 		f, rest, err := nextField(b)
@@ -653,9 +673,9 @@ func (d *blockDecoder) node(b []byte) error {
 		case 4:
 			m, err = d.info(f.b)
 		case 8:
-			lat = protowire.DecodeZigZag(f.v)
+			lat, hasLat = protowire.DecodeZigZag(f.v), true
 		case 9:
-			lon = protowire.DecodeZigZag(f.v)
+			lon, hasLon = protowire.DecodeZigZag(f.v), true
 		}
 		if err != nil {
 			return fmt.Errorf("node %d: %w", n.ID, err)
@@ -666,8 +686,11 @@ func (d *blockDecoder) node(b []byte) error {
 		return fmt.Errorf("node %d: %w", n.ID, err)
 	}
 	n.Lat, n.Lon, n.Tags = d.coord(d.latOff, lat), d.coord(d.lonOff, lon), tags
-	if !m.visible {
+	switch {
+	case !m.visible:
 		n.Lat, n.Lon = 0, 0 // see deletedNode
+	case !hasLat || !hasLon || d.undefined(lat, lon):
+		n.Lat, n.Lon = math.NaN(), math.NaN() // no location: checkLocation refuses it
 	}
 	n.Version, n.Timestamp, n.ChangesetID, n.UserID, n.User, n.Visible = m.version, m.timestamp, m.changeset, m.uid, m.user, m.visible
 	d.objs = append(d.objs, n)
@@ -744,9 +767,12 @@ func (d *blockDecoder) dense(b []byte) error {
 			}
 			n.User = u
 		}
-		if len(d.visibles) > 0 && d.visibles[i] == 0 {
+		switch {
+		case len(d.visibles) > 0 && d.visibles[i] == 0:
 			n.Visible = false
 			n.Lat, n.Lon = 0, 0 // see deletedNode
+		case d.undefined(lat, lon):
+			n.Lat, n.Lon = math.NaN(), math.NaN() // no location: checkLocation refuses it
 		}
 		// keys_vals: per node, key/value string index pairs ended by 0;
 		// absent when no node in the block has tags.

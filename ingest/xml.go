@@ -1,11 +1,13 @@
 package ingest
 
 import (
+	"bufio"
 	"context"
 	"encoding/xml"
 	"errors"
 	"fmt"
 	"io"
+	"math"
 	"strconv"
 	"time"
 
@@ -13,12 +15,17 @@ import (
 )
 
 // xmlReader streams OSM XML (history or snapshot), OsmChange and changeset
-// metadata with one encoding/xml Decoder. Each object or changeset element is
-// decoded into a fresh osm value, so memory stays bounded by one element.
+// metadata. A raw encoding/xml Decoder tokenizes the file; openElements keeps
+// the start position of every open element and checks the nesting, so that an
+// element left open is reported where it starts; a second Decoder reading
+// those tokens decodes each object or changeset element into a fresh osm
+// value, so memory stays bounded by one element.
 type xmlReader struct {
 	readerBase
-	ctx context.Context
-	dec *xml.Decoder
+	ctx  context.Context
+	raw  *xml.Decoder // tokenizer; its position is the reader's position
+	open *openElements
+	dec  *xml.Decoder // reads open's tokens: Token, Skip, DecodeElement
 
 	item   Item
 	err    error
@@ -33,16 +40,144 @@ type xmlReader struct {
 
 var _ Reader = (*xmlReader)(nil)
 
-func newXMLReader(ctx context.Context, base readerBase, r io.Reader) *xmlReader {
-	d := xml.NewDecoder(r)
-	d.Strict = true
-	return &xmlReader{readerBase: base, ctx: ctx, dec: d}
+func newXMLReader(ctx context.Context, base readerBase, r *bufio.Reader) *xmlReader {
+	lines := &lineStarts{r: r}
+	raw := xml.NewDecoder(lines)
+	raw.Strict = true
+	open := &openElements{raw: raw, lines: lines}
+	return &xmlReader{readerBase: base, ctx: ctx, raw: raw, open: open, dec: xml.NewTokenDecoder(open)}
 }
 
-// pos is the decoder's current position: the start of the next token.
+// pos is the tokenizer's current position: the start of the next token.
 func (r *xmlReader) pos() Position {
-	line, col := r.dec.InputPos()
-	return Position{Offset: r.dec.InputOffset(), Line: line, Column: col, Element: r.elements}
+	return rawPos(r.raw, r.open.lines)
+}
+
+func rawPos(d *xml.Decoder, lines *lineStarts) Position {
+	line, col := d.InputPos()
+	off := d.InputOffset()
+	if col < 1 {
+		// encoding/xml pushed back the newline ending line: it does not
+		// restore the line's start and reports column 0. The newline is
+		// the line's last byte.
+		col = int(off-lines.prev) + 1
+	}
+	return Position{Offset: off, Line: line, Column: col}
+}
+
+// lineStarts is the tokenizer's byte source; it keeps the byte offsets where
+// the current and the previous line start.
+type lineStarts struct {
+	r         *bufio.Reader
+	off       int64
+	cur, prev int64
+}
+
+// ReadByte is what encoding/xml reads with.
+func (l *lineStarts) ReadByte() (byte, error) {
+	b, err := l.r.ReadByte()
+	if err == nil {
+		l.off++
+		if b == '\n' {
+			l.prev, l.cur = l.cur, l.off
+		}
+	}
+	return b, err
+}
+
+// Read makes lineStarts an io.Reader; encoding/xml uses ReadByte only.
+func (l *lineStarts) Read(p []byte) (int, error) {
+	for i := range p {
+		b, err := l.ReadByte()
+		if err != nil {
+			return i, err
+		}
+		p[i] = b
+	}
+	return len(p), nil
+}
+
+// openElements is an xml.TokenReader over a raw tokenizer that remembers where
+// each open element starts. An end tag that closes an outer element, or the
+// end of the file, while an element is open gives a *nestingError naming it.
+type openElements struct {
+	raw   *xml.Decoder
+	lines *lineStarts
+	stack []openElement
+}
+
+type openElement struct {
+	name xml.Name // as written: Space is the prefix
+	pos  Position
+}
+
+// nestingError is an element left open (end tag of an outer element, or end
+// of file) or an end tag that matches no open element.
+type nestingError struct {
+	open   openElement // innermost open element; zero name for a stray end tag
+	end    string      // the end tag found, "" at the end of the file
+	endPos Position    // where the end tag or the end of the file is
+	outer  bool        // end closes an element outside open
+}
+
+func (e *nestingError) Error() string {
+	switch {
+	case e.open.name.Local == "":
+		return fmt.Sprintf("end tag </%s> closes no open element", e.end)
+	case e.end == "":
+		return fmt.Sprintf("element <%s> is not closed: the file ends at line %d, column %d (truncated?)",
+			xmlName(e.open.name), e.endPos.Line, e.endPos.Column)
+	case e.outer:
+		return fmt.Sprintf("element <%s> is not closed: </%s> at line %d, column %d closes an element around it",
+			xmlName(e.open.name), e.end, e.endPos.Line, e.endPos.Column)
+	}
+	return fmt.Sprintf("end tag </%s> does not match <%s> opened at line %d, column %d",
+		e.end, xmlName(e.open.name), e.open.pos.Line, e.open.pos.Column)
+}
+
+// at is where the problem is: the start of the element left open, else the end tag.
+func (e *nestingError) at() Position {
+	if e.open.name.Local != "" && (e.end == "" || e.outer) {
+		return e.open.pos
+	}
+	return e.endPos
+}
+
+func xmlName(n xml.Name) string {
+	if n.Space != "" {
+		return n.Space + ":" + n.Local
+	}
+	return n.Local
+}
+
+// Token returns the next raw token after checking its nesting.
+func (o *openElements) Token() (xml.Token, error) {
+	at := rawPos(o.raw, o.lines)
+	tok, err := o.raw.RawToken()
+	if err != nil {
+		if errors.Is(err, io.EOF) && len(o.stack) > 0 {
+			return nil, &nestingError{open: o.stack[len(o.stack)-1], endPos: at}
+		}
+		return tok, err
+	}
+	switch t := tok.(type) {
+	case xml.StartElement:
+		o.stack = append(o.stack, openElement{name: t.Name, pos: at})
+	case xml.EndElement:
+		if len(o.stack) == 0 {
+			return nil, &nestingError{end: xmlName(t.Name), endPos: at}
+		}
+		top := o.stack[len(o.stack)-1]
+		if top.name != t.Name {
+			e := &nestingError{open: top, end: xmlName(t.Name), endPos: at}
+			for _, outer := range o.stack[:len(o.stack)-1] {
+				e.outer = e.outer || outer.name == t.Name
+			}
+			return nil, e
+		}
+		o.stack = o.stack[:len(o.stack)-1]
+	}
+	return tok, nil
 }
 
 // Scan advances to the next object or changeset. It returns false at the end
@@ -142,10 +277,15 @@ func (r *xmlReader) skip() (ok, stop bool) {
 
 // decodeElement decodes an object or changeset element into r.item and validates it.
 func (r *xmlReader) decodeElement(t xml.StartElement, at Position) error {
-	visibleGiven := false
+	visibleGiven, hasLat, hasLon := false, false, false
 	for _, a := range t.Attr {
-		if a.Name.Local == "visible" {
+		switch a.Name.Local {
+		case "visible":
 			visibleGiven = true
+		case "lat":
+			hasLat = true
+		case "lon":
+			hasLon = true
 		}
 	}
 	var (
@@ -178,6 +318,9 @@ func (r *xmlReader) decodeElement(t xml.StartElement, at Position) error {
 		if c.CreatedAt.IsZero() {
 			return r.errorf(at, label, ErrFormat, "changeset without created_at")
 		}
+		if err := checkChangesetBounds(c); err != nil {
+			return &ParseError{File: r.name, Pos: at, Object: label, Err: err}
+		}
 		r.item = Item{Changeset: c, Pos: at}
 		return nil
 	}
@@ -194,6 +337,9 @@ func (r *xmlReader) decodeElement(t xml.StartElement, at Position) error {
 	case *osm.Node:
 		if r.format == FormatOsmChange || !visibleGiven {
 			o.Visible = visible
+		}
+		if o.Visible && (!hasLat || !hasLon) {
+			o.Lat, o.Lon = math.NaN(), math.NaN() // no location: checkLocation refuses it
 		}
 	case *osm.Way:
 		if r.format == FormatOsmChange || !visibleGiven {
@@ -233,21 +379,47 @@ func isValueError(err error) bool {
 	return errors.As(err, &pe) || errors.As(err, &ne)
 }
 
-// syntaxError wraps a decoder or read error with the current position.
+// syntaxError wraps a decoder or read error with the tokenizer's position,
+// or an element left open with the position of its start tag.
 func (r *xmlReader) syntaxError(err error) error {
 	at := r.pos()
-	var syn *xml.SyntaxError
-	if errors.As(err, &syn) && syn.Line > 0 {
-		at.Line = syn.Line
-		at.Column = 0
-		if line, col := r.dec.InputPos(); line == syn.Line {
-			at.Column = col
+	at.Element = r.elements
+	var nest *nestingError
+	if errors.As(err, &nest) {
+		p := nest.at()
+		at.Offset, at.Line, at.Column = p.Offset, p.Line, p.Column
+		if !r.inObject() {
+			at.Element = 0 // the open element is the root or an OsmChange block
 		}
+		return &ParseError{File: r.name, Pos: at, Err: fmt.Errorf("%w: %w", ErrFormat, err)}
 	}
-	if errors.Is(err, io.ErrUnexpectedEOF) {
-		return &ParseError{File: r.name, Pos: at, Err: fmt.Errorf("%w: truncated: %w", ErrFormat, err)}
+	var syn *xml.SyntaxError
+	if errors.Is(err, io.ErrUnexpectedEOF) || errors.As(err, &syn) && syn.Msg == "unexpected EOF" {
+		msg := "truncated"
+		if n := len(r.open.stack); n > 0 {
+			top := r.open.stack[n-1]
+			msg = fmt.Sprintf("truncated inside <%s> opened at line %d, column %d", xmlName(top.name), top.pos.Line, top.pos.Column)
+		}
+		return &ParseError{File: r.name, Pos: at, Err: fmt.Errorf("%w: %s: %w", ErrFormat, msg, err)}
 	}
 	return &ParseError{File: r.name, Pos: at, Err: fmt.Errorf("%w: %w", ErrFormat, err)}
+}
+
+// inObject reports whether the innermost open element is an object or
+// changeset element or lies inside one.
+func (r *xmlReader) inObject() bool {
+	depth := 2
+	if r.format == FormatOsmChange {
+		depth = 3
+	}
+	if len(r.open.stack) < depth {
+		return false
+	}
+	switch r.open.stack[depth-1].name.Local {
+	case "node", "way", "relation", "changeset":
+		return true
+	}
+	return false
 }
 
 // Item returns the current item; it is owned by the caller.

@@ -1,15 +1,16 @@
 package rules
 
 import (
+	"errors"
 	"fmt"
 	"math"
 	"path"
 	"regexp"
 	"sort"
-	"strconv"
 	"strings"
+	"unicode/utf8"
 
-	"go.yaml.in/yaml/v3"
+	"go.yaml.in/yaml/v4"
 )
 
 // Limits checked on thresholds.
@@ -29,7 +30,7 @@ func decode(file string, data []byte) (spec, Problems) {
 	var s spec
 	var doc yaml.Node
 	if err := yaml.Unmarshal(data, &doc); err != nil {
-		d.syntax(err)
+		d.syntax(data, err)
 		return s, d.probs
 	}
 	if doc.Kind == 0 || len(doc.Content) == 0 {
@@ -44,18 +45,65 @@ func decode(file string, data []byte) (spec, Problems) {
 	return s, d.probs
 }
 
-// yamlLine finds the "line N: " yaml puts in its messages.
-var yamlLine = regexp.MustCompile(`line (\d+): `)
-
-// syntax records a YAML syntax error with the line yaml reports; yaml gives no column.
-func (d *decoder) syntax(err error) {
-	msg := strings.TrimPrefix(err.Error(), "yaml: ")
-	line := 0
-	if m := yamlLine.FindStringSubmatchIndex(msg); m != nil {
-		line, _ = strconv.Atoi(msg[m[2]:m[3]])
-		msg = msg[:m[0]] + msg[m[1]:]
+// syntax records a YAML error that stops parsing. go.yaml.in/yaml/v4 reports
+// it as a *yaml.LoadError whose Mark is the 1-based line and column where the
+// parser gave up, and whose ContextMark, when set, is where the construct it
+// was reading began ("while parsing a flow sequence" at line 2, column 4).
+// The problem is placed at Mark; the context goes into the message.
+func (d *decoder) syntax(data []byte, err error) {
+	var le *yaml.LoadError
+	if !errors.As(err, &le) {
+		var les *yaml.LoadErrors
+		if errors.As(err, &les) && len(les.Errors) > 0 {
+			le = les.Errors[0]
+		}
 	}
-	d.probs = append(d.probs, Problem{File: d.file, Line: line, Msg: "YAML syntax: " + msg})
+	if le == nil {
+		d.probs = append(d.probs, Problem{File: d.file, Msg: "YAML: " + strings.TrimPrefix(err.Error(), "yaml: ")})
+		return
+	}
+	msg := "YAML syntax: " + le.Message
+	if le.ContextMsg != "" && le.ContextMark.Line > 0 && le.ContextMark != le.Mark {
+		msg += fmt.Sprintf(" (%s that starts at line %d, column %d)", le.ContextMsg, le.ContextMark.Line, le.ContextMark.Column)
+	}
+	line, col := le.Mark.Line, le.Mark.Column
+	if line == 0 && le.Stage == yaml.ReaderStage {
+		// Errors of the character reader (a control character, bad
+		// UTF-8) carry only the byte offset.
+		line, col = posOf(data, le.Mark.Index)
+	}
+	// At the end of the input libyaml moves to a fresh line even when the
+	// last line has no newline; point at the real end instead.
+	if endLine, endCol := endOf(data); line > endLine || line == endLine && col > endCol {
+		line, col = endLine, endCol
+	}
+	d.probs = append(d.probs, Problem{File: d.file, Line: line, Column: col, Msg: msg})
+}
+
+// endOf returns the 1-based line and column just after the last character of
+// data, counted as posOf does.
+func endOf(data []byte) (line, col int) {
+	return posOf(data, len(data))
+}
+
+// posOf returns the 1-based line and column of byte offset off in data,
+// counting as yaml does: columns in characters, and a line break at LF, at a
+// CR not followed by LF, and at NEL, LS and PS (YAML 1.1 line breaks).
+func posOf(data []byte, off int) (line, col int) {
+	off = max(0, min(off, len(data)))
+	line, col = 1, 1
+	for i := 0; i < off; {
+		r, size := utf8.DecodeRune(data[i:])
+		switch {
+		case r == '\n', r == '\u0085', r == '\u2028', r == '\u2029',
+			r == '\r' && (i+1 >= len(data) || data[i+1] != '\n'):
+			line, col = line+1, 1
+		default:
+			col++
+		}
+		i += size
+	}
+	return line, col
 }
 
 func (d *decoder) addf(n *yaml.Node, format string, args ...any) {

@@ -7,6 +7,9 @@
 // `loadwake rules show`) describe every field in comments. Parse and Load check
 // a file completely and return a *Problems listing every problem with its line
 // and column, never only the first; the problems unwrap to ErrInvalid.
+// A YAML syntax error stops the check; it is placed where the parser gave up
+// (go.yaml.in/yaml/v4's LoadError mark, 1-based, columns in characters), and
+// the construct it was reading is named with its own start position.
 //
 // A *RuleSet is immutable once built and safe for concurrent use. Hash gives a
 // stable digest of its content, so derived data can record which rules made it.

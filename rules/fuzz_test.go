@@ -8,7 +8,8 @@ import (
 )
 
 // FuzzParse checks that no rule file makes Parse panic, that a rejected file
-// gives problems with positions unwrapping to ErrInvalid, and that an accepted
+// gives problems unwrapping to ErrInvalid, each with a line and column inside
+// the file, and that an accepted
 // file's canonical form parses to the same hash.
 func FuzzParse(f *testing.F) {
 	f.Add(DefaultYAML())
@@ -17,12 +18,21 @@ func FuzzParse(f *testing.F) {
 	}
 	f.Add([]byte("format: 1\nfeature_classes: {keys: [{key: a, detail: value}]}\nkey_families: []\nimport_detection: {group_gap_days: 1, matchers: [{name: m, min_changes: 1}]}\n"))
 	f.Add([]byte("a: &x [*x]\n"))
+	f.Add([]byte("format: 1\nfeature_classes: {keys: []\n"))
+	f.Add([]byte("format: 1\n\tfeature_classes: \"äö\": b"))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		r, err := Parse("fuzz.yaml", data)
 		if err != nil {
 			var ps *Problems
 			if !errors.As(err, &ps) || len(*ps) == 0 || !errors.Is(err, ErrInvalid) {
 				t.Fatalf("error %v is not a non-empty *Problems", err)
+			}
+			endLine, endCol := endOf(data)
+			for _, p := range *ps {
+				if p.File != "fuzz.yaml" || p.Line < 1 || p.Column < 1 ||
+					p.Line > endLine || p.Line == endLine && p.Column > endCol {
+					t.Fatalf("problem %q has no position inside the file (it ends at %d:%d)", p.Error(), endLine, endCol)
+				}
 			}
 			return
 		}

@@ -9,8 +9,9 @@ import (
 // ErrInvalid is what every rule-file problem unwraps to: errors.Is(err, rules.ErrInvalid).
 var ErrInvalid = errors.New("rules: invalid rule file")
 
-// Problem is one thing wrong in a rule file, at a 1-based line and column.
-// Column is 0 when only the line is known (YAML syntax errors report lines only).
+// Problem is one thing wrong in a rule file, at a 1-based line and column;
+// columns count characters, not bytes. Line and Column are 0 only for a YAML
+// failure that the yaml package reports without a position.
 type Problem struct {
 	File   string
 	Line   int

@@ -13,7 +13,7 @@ import (
 	"strings"
 
 	"github.com/paulmach/osm"
-	"go.yaml.in/yaml/v3"
+	"go.yaml.in/yaml/v4"
 )
 
 // defaultYAML is the rule file built into the program.
@@ -173,15 +173,13 @@ func (r *RuleSet) Hash() string { return r.hash }
 // Canonical returns the rules as a YAML file without comments, defaults filled
 // in: what the program works with. Parse accepts it and gives the same Hash.
 func (r *RuleSet) Canonical() []byte {
-	var b bytes.Buffer
-	enc := yaml.NewEncoder(&b)
-	enc.SetIndent(2)
-	if err := enc.Encode(r.spec); err != nil {
+	// go-yaml v3's layout: two-space indent, no line wrapping.
+	b, err := yaml.Dump(r.spec, yaml.WithV3Defaults(), yaml.WithIndent(2), yaml.WithLineWidth(-1))
+	if err != nil {
 		// Encoding plain structs of strings and numbers does not fail.
 		return nil
 	}
-	_ = enc.Close()
-	return b.Bytes()
+	return b
 }
 
 // Class returns the feature class of a version's tags: the highest-priority

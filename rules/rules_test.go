@@ -255,8 +255,7 @@ func TestProblemsMore(t *testing.T) {
 	tests := []struct {
 		name, src, want string
 	}{
-		// yaml reports the line where it gave up; no column.
-		{"syntax", "format: 1\nfeature_classes: [\n", "s.yaml:2: YAML syntax: did not find expected node content"},
+		{"syntax", "format: 1\nfeature_classes: [\n", "s.yaml:3:1: YAML syntax: did not find expected node content"},
 		{"empty", "", "s.yaml:1:1: rule file is empty"},
 		{"not a mapping", "- 1\n", "s.yaml:1:1: the rule file must be a mapping, not a list"},
 		{"missing sections", "format: 1\n", `s.yaml:1:1: the rule file lacks field "feature_classes"`},
@@ -335,5 +334,52 @@ func TestDefaultYAMLIsCopy(t *testing.T) {
 	a[0] = 'X'
 	if bytes.Equal(a, DefaultYAML()) {
 		t.Error("DefaultYAML returns shared memory")
+	}
+}
+
+// TestSyntaxPositions checks where YAML syntax errors are reported: at the
+// 1-based line and column where the parser gave up, with the construct it was
+// reading named by its own start. Every expected position was worked out by
+// hand, counting lines and columns in the source string (a tab or a space is
+// one column; the end of a file that ends with a newline is column 1 of the
+// line after it, of one without a newline the column after its last
+// character; ä is one column, not two bytes; a CR alone breaks a line, as the
+// YAML spec's line breaks include it); the message texts are go.yaml.in/yaml/v4 v4.0.0's.
+func TestSyntaxPositions(t *testing.T) {
+	tests := []struct {
+		name, src  string
+		line, col  int
+		msgContain string
+	}{
+		{"tab indent", "format: 1\n\tfeature_classes: {}\n", 2, 1, "found a tab character that violates indentation"},
+		{"reserved character", "format: 1\nfeature_classes: @x\n", 2, 18, "found character that cannot start any token"},
+		{"second colon", "format: 1\nkey_families: a: b\n", 2, 16, "mapping values are not allowed in this context"},
+		{"key indented one space", "format: 1\nfeature_classes:\n  keys: []\n ignore_values: []\n", 4, 2, "did not find expected key"},
+		{"list item among keys", "format: 1\n- x\n", 2, 1, "did not find expected key (while parsing a block mapping that starts at line 1, column 1)"},
+		{"unterminated quote", "format: 1\nfeature_classes: \"abc\n", 3, 1, "found unexpected end of stream (while scanning a quoted scalar that starts at line 2, column 18)"},
+		{"unclosed flow mapping", "format: 1\nfeature_classes: {keys: []\n", 3, 1, "did not find expected ',' or '}' (while parsing a flow mapping that starts at line 2, column 18)"},
+		{"unclosed list without newline", "format: 1\nfeature_classes: [", 2, 19, "did not find expected node content"},
+		{"unterminated quote without newline", "format: 1\nfeature_classes: \"ab", 2, 21, "found unexpected end of stream"},
+		{"wide characters before the error", "format: 1\nkey_families: \"äö\": b\n", 2, 19, "mapping values are not allowed in this context"},
+		{"error on line 1", "format: [\n", 2, 1, "did not find expected node content"},
+		{"unknown alias", "format: *nope\n", 1, 9, "unknown anchor 'nope' referenced"},
+		{"control character", "format: 1\nkey_families: a\x01b\n", 2, 16, "control characters are not allowed"},
+		{"CR line breaks", "format: 1\rkey_families: a: b\r", 2, 16, "mapping values are not allowed in this context"},
+		{"CR LF line breaks", "format: 1\r\nkey_families: a: b\r\n", 2, 16, "mapping values are not allowed in this context"},
+		{"control character after CR", "format: 1\rkey_families: a\x01b\n", 2, 16, "control characters are not allowed"},
+		{"invalid UTF-8", "format: 1\nkey_families: \"é\xff\"\n", 2, 17, "invalid"},
+	}
+	for _, tt := range tests {
+		t.Run(tt.name, func(t *testing.T) {
+			_, err := Parse("s.yaml", []byte(tt.src))
+			var ps *Problems
+			if !errors.As(err, &ps) || len(*ps) != 1 {
+				t.Fatalf("err = %v, want one problem", err)
+			}
+			p := (*ps)[0]
+			if p.Line != tt.line || p.Column != tt.col || !strings.Contains(p.Msg, tt.msgContain) {
+				t.Errorf("got %s, want s.yaml:%d:%d: ...%s", p.Error(), tt.line, tt.col, tt.msgContain)
+			}
+		})
 	}
 }
