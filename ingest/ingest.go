@@ -39,6 +39,17 @@ type IngestOptions struct {
 	MaxConflictExamples int
 	// Progress hears about each file; nil means silent.
 	Progress Progress
+	// Path chooses the write path (see WritePath); the zero value WriteAuto
+	// takes the bulk path for an empty on-disk store.
+	Path WritePath
+	// SortBufferBytes bounds the records the bulk path sorts in memory
+	// before it writes them to a temporary file; 0 means
+	// DefaultSortBufferBytes.
+	SortBufferBytes int
+	// TempDir is where the bulk path keeps those files; "" means a folder
+	// inside the store's folder, or the system's temporary folder for an
+	// in-memory store.
+	TempDir string
 }
 
 func (o IngestOptions) withDefaults() IngestOptions {
@@ -51,6 +62,9 @@ func (o IngestOptions) withDefaults() IngestOptions {
 	}
 	if o.BatchBytes <= 0 {
 		o.BatchBytes = DefaultBatchBytes
+	}
+	if o.SortBufferBytes <= 0 {
+		o.SortBufferBytes = DefaultSortBufferBytes
 	}
 	if o.MaxConflictExamples == 0 {
 		o.MaxConflictExamples = DefaultMaxConflictExamples
@@ -86,6 +100,7 @@ type Report struct {
 	Files     []FileReport
 	Conflicts []Conflict // the first IngestOptions.MaxConflictExamples conflicts
 	Totals    Stats      // the store's totals afterwards
+	Bulk      bool       // written on the bulk path
 }
 
 // Sum adds up the per-file counts.
@@ -122,6 +137,13 @@ func Ingest(ctx context.Context, s *Store, paths []string, opts IngestOptions) (
 	opts = opts.withDefaults()
 	s.writeMu.Lock()
 	defer s.writeMu.Unlock()
+	bulk, err := s.useBulk(opts.Path)
+	if err != nil {
+		return Report{}, err
+	}
+	if bulk {
+		return ingestBulk(ctx, s, paths, opts)
+	}
 
 	w, err := newWriter(s, opts)
 	if err != nil {
