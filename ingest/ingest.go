@@ -126,13 +126,18 @@ func (r Report) Sum() FileRecord {
 // adds nothing. A file whose SHA-256 is recorded as completely ingested is
 // skipped.
 //
-// Writes go out in batches; each batch commits atomically with the store's
-// totals, and a file's record is written only with its last batch. A file the
-// reader cannot parse is abandoned at the error (its FileReport.Err, a
-// *ParseError naming file and position) and the other files are still read;
-// the returned error joins those of all abandoned files. A cancelled ctx stops
-// between batches and returns ctx's error. In every case the store stays
-// consistent, and a rerun after a fix completes without duplicates.
+// An empty on-disk store is filled on the bulk path: all files are read into
+// sorted runs first, then written in key order through Badger's
+// StreamWriter (the package documentation has the details; opts.Path
+// chooses). Otherwise writes go out in batches; each batch commits atomically
+// with the store's totals, and a file's record is written only with its last
+// batch. A file the reader cannot parse is abandoned at the error (its
+// FileReport.Err, a *ParseError naming file and position) and the other files
+// are still read; the returned error joins those of all abandoned files. A
+// cancelled ctx stops between batches (on the bulk path, before anything is
+// written, or leaving an interrupted store that the next Ingest starts over)
+// and returns ctx's error. In every case the store stays consistent, and a
+// rerun after a fix completes without duplicates.
 func Ingest(ctx context.Context, s *Store, paths []string, opts IngestOptions) (Report, error) {
 	opts = opts.withDefaults()
 	s.writeMu.Lock()

@@ -243,8 +243,20 @@ func OpenInMemory(opts Options) (*Store, error) {
 	return newStore(db, "", opts)
 }
 
-// checkStoreFolder refuses a folder that exists, is not empty and has no
-// Badger manifest: a store always has one from its first open on.
+// storeFile reports whether a folder entry is one a store makes: Badger's
+// files (LOCK comes first, then MANIFEST) and the bulk path's.
+func storeFile(name string) bool {
+	switch name {
+	case "MANIFEST", "LOCK", "KEYREGISTRY", "DISCARD", bulkMarker:
+		return true
+	}
+	return strings.HasPrefix(name, runDirPrefix) || strings.HasSuffix(name, ".sst") ||
+		strings.HasSuffix(name, ".vlog") || strings.HasSuffix(name, ".mem")
+}
+
+// checkStoreFolder refuses a folder that exists, is not empty and holds
+// neither a Badger manifest (which a store has from its first open on) nor
+// only the files a store makes.
 func checkStoreFolder(dir string) error {
 	entries, err := os.ReadDir(dir)
 	if errors.Is(err, fs.ErrNotExist) {
@@ -256,18 +268,25 @@ func checkStoreFolder(dir string) error {
 	if len(entries) == 0 {
 		return nil
 	}
-	names := make([]string, 0, 3)
+	var names []string
+	others := 0
 	for _, e := range entries {
 		if e.Name() == "MANIFEST" && e.Type().IsRegular() {
 			return nil
 		}
-		if len(names) < 3 {
+		if storeFile(e.Name()) {
+			continue
+		}
+		if others++; len(names) < 3 {
 			names = append(names, e.Name())
 		}
 	}
+	if others == 0 {
+		return nil
+	}
 	more := ""
-	if len(entries) > len(names) {
-		more = fmt.Sprintf(" and %d more", len(entries)-len(names))
+	if others > len(names) {
+		more = fmt.Sprintf(" and %d more", others-len(names))
 	}
 	return fmt.Errorf("open store %s: %w: the folder holds other files (%s%s); give --store a new or empty folder, or the folder of an existing store",
 		dir, ErrNotStore, strings.Join(names, ", "), more)
