@@ -75,11 +75,32 @@
 //
 // # Writes
 //
-// Ingest writes in transactions of a few thousand entries; each commits
-// atomically with the store's totals, and a file's record only with its last
-// batch. A version key that already holds the same bytes adds nothing; one
-// holding different bytes is a conflict and keeps the stored value. Keys
-// larger than the largest stored key of their type are known to be absent
-// without a lookup, which keeps the ingest of sorted files close to decoding
-// speed.
+// Ingest has two write paths (IngestOptions.Path; by default the bulk path
+// for an empty on-disk store and transactions otherwise). Both store a
+// version under its key once: a key that already holds the same bytes adds
+// nothing (a duplicate), one holding different bytes is a conflict that keeps
+// the first value read and is reported; a closed changeset record replaces an
+// open one. So a rerun adds nothing, and files may come in any order.
+//
+// The transactional path, for diffs into a store that holds data, writes in
+// transactions of a few thousand entries; each commits atomically with the
+// store's totals, and a file's record only with its last batch. Keys larger
+// than the largest stored key of their type are known to be absent without a
+// lookup, which keeps the ingest of sorted files close to decoding speed.
+//
+// The bulk path reads every file first. Encoded keys and values go into a
+// sort buffer (IngestOptions.SortBufferBytes); a full buffer is sorted
+// (unless its records came in key order, as a history file's do) and
+// written to a temporary file, a sorted run. At the end the runs are merged
+// in key order, the earliest read record of each key winning, and written
+// through Badger's StreamWriter, which builds the store's tables directly
+// without its write-ahead log, memtables or compactions. Memory is bounded by
+// the sort buffer and the table builders (see DefaultOptions), not by the
+// input. While it writes, a marker file (LOADWAKE-BULK-INGEST) in the store's
+// folder says so: a store opened with the marker present holds an
+// interrupted bulk ingest, its reads fail with ErrInterrupted, and the next
+// Ingest empties it and starts over, ending with the store a clean ingest
+// makes. A bulk ingest stopped by its context while it reads stores nothing;
+// a file abandoned at a parse error keeps the items read before the error,
+// as the transactional path keeps its committed batches.
 package ingest

@@ -439,3 +439,59 @@ func decodeChangeset(key, val []byte) (*osm.Changeset, error) {
 	}
 	return c, nil
 }
+
+// rawBytes reads a length-prefixed string as a slice of d's bytes.
+func (d *decoder) rawBytes() []byte {
+	n := d.count(1)
+	b := d.b[:n]
+	d.b = d.b[n:]
+	return b
+}
+
+// versionSummary is what the totals need from a stored version value.
+type versionSummary struct {
+	visible  bool
+	ts       int64 // Unix seconds, 0 for none
+	uid      osm.UserID
+	user     []byte // points into the value
+	lat, lon float64
+}
+
+// summarizeVersion reads the header of a version value of type tb and, for a
+// node, its position, without allocating.
+func summarizeVersion(tb byte, val []byte) (versionSummary, error) {
+	d := decoder{b: val}
+	if v := d.byte(); v != encodingVersion {
+		return versionSummary{}, fmt.Errorf("%w: encoding version %d, want %d", errValue, v, encodingVersion)
+	}
+	var s versionSummary
+	s.visible = d.byte()&flagVisible != 0
+	s.ts = d.varint()
+	d.varint() // changeset
+	s.uid = osm.UserID(d.varint())
+	s.user = d.rawBytes()
+	if tb == typeNode {
+		n := d.count(2)
+		for range 2 * n {
+			d.rawBytes()
+		}
+		s.lat = fromFixed(d.varint())
+		s.lon = fromFixed(d.varint())
+	}
+	return s, d.err
+}
+
+// summarizeChangeset reads the uid and user name of a changeset value.
+func summarizeChangeset(val []byte) (osm.UserID, []byte, error) {
+	d := decoder{b: val}
+	if v := d.byte(); v != encodingVersion {
+		return 0, nil, fmt.Errorf("%w: encoding version %d, want %d", errValue, v, encodingVersion)
+	}
+	d.byte()    // flags
+	d.varint()  // created_at
+	d.varint()  // closed_at
+	d.uvarint() // num_changes
+	uid := osm.UserID(d.varint())
+	user := d.rawBytes()
+	return uid, user, d.err
+}

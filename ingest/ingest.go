@@ -39,6 +39,17 @@ type IngestOptions struct {
 	MaxConflictExamples int
 	// Progress hears about each file; nil means silent.
 	Progress Progress
+	// Path chooses the write path (see WritePath); the zero value WriteAuto
+	// takes the bulk path for an empty on-disk store.
+	Path WritePath
+	// SortBufferBytes bounds the records the bulk path sorts in memory
+	// before it writes them to a temporary file; 0 means
+	// DefaultSortBufferBytes.
+	SortBufferBytes int
+	// TempDir is where the bulk path keeps those files; "" means a folder
+	// inside the store's folder, or the system's temporary folder for an
+	// in-memory store.
+	TempDir string
 }
 
 func (o IngestOptions) withDefaults() IngestOptions {
@@ -51,6 +62,9 @@ func (o IngestOptions) withDefaults() IngestOptions {
 	}
 	if o.BatchBytes <= 0 {
 		o.BatchBytes = DefaultBatchBytes
+	}
+	if o.SortBufferBytes <= 0 {
+		o.SortBufferBytes = DefaultSortBufferBytes
 	}
 	if o.MaxConflictExamples == 0 {
 		o.MaxConflictExamples = DefaultMaxConflictExamples
@@ -86,6 +100,7 @@ type Report struct {
 	Files     []FileReport
 	Conflicts []Conflict // the first IngestOptions.MaxConflictExamples conflicts
 	Totals    Stats      // the store's totals afterwards
+	Bulk      bool       // written on the bulk path
 }
 
 // Sum adds up the per-file counts.
@@ -111,17 +126,29 @@ func (r Report) Sum() FileRecord {
 // adds nothing. A file whose SHA-256 is recorded as completely ingested is
 // skipped.
 //
-// Writes go out in batches; each batch commits atomically with the store's
-// totals, and a file's record is written only with its last batch. A file the
-// reader cannot parse is abandoned at the error (its FileReport.Err, a
-// *ParseError naming file and position) and the other files are still read;
-// the returned error joins those of all abandoned files. A cancelled ctx stops
-// between batches and returns ctx's error. In every case the store stays
-// consistent, and a rerun after a fix completes without duplicates.
+// An empty on-disk store is filled on the bulk path: all files are read into
+// sorted runs first, then written in key order through Badger's
+// StreamWriter (the package documentation has the details; opts.Path
+// chooses). Otherwise writes go out in batches; each batch commits atomically
+// with the store's totals, and a file's record is written only with its last
+// batch. A file the reader cannot parse is abandoned at the error (its
+// FileReport.Err, a *ParseError naming file and position) and the other files
+// are still read; the returned error joins those of all abandoned files. A
+// cancelled ctx stops between batches (on the bulk path, before anything is
+// written, or leaving an interrupted store that the next Ingest starts over)
+// and returns ctx's error. In every case the store stays consistent, and a
+// rerun after a fix completes without duplicates.
 func Ingest(ctx context.Context, s *Store, paths []string, opts IngestOptions) (Report, error) {
 	opts = opts.withDefaults()
 	s.writeMu.Lock()
 	defer s.writeMu.Unlock()
+	bulk, err := s.useBulk(opts.Path)
+	if err != nil {
+		return Report{}, err
+	}
+	if bulk {
+		return ingestBulk(ctx, s, paths, opts)
+	}
 
 	w, err := newWriter(s, opts)
 	if err != nil {

@@ -640,3 +640,172 @@ func TestIngestTxnTooBig(t *testing.T) {
 		t.Errorf("with early commits %+v\nordinary %+v", got, want)
 	}
 }
+
+// TestWritePathsAgree runs the same files through the transactional and the
+// bulk path (with a sort buffer so small that every few records spill) and
+// expects the same reports, totals and stored versions and changesets:
+// conflicts keep the first version read, an open changeset is replaced by a
+// closed one, versions arrive out of order and across files.
+func TestWritePathsAgree(t *testing.T) {
+	open := &osm.Changeset{ID: 17, UserID: 5, User: "cs-user", CreatedAt: t0, Open: true}
+	closed := &osm.Changeset{ID: 17, UserID: 5, User: "cs-user", CreatedAt: t0, ClosedAt: t0.Add(time.Hour), ChangesCount: 3}
+	other := &osm.Changeset{ID: 17, UserID: 6, User: "someone", CreatedAt: t0, ClosedAt: t0}
+	diff := []ingest.Item{
+		node(1, 3, 5*time.Hour, 38.65, -75.45, "amenity", "bench", "backrest", "yes"),
+		node(4, 1, 5*time.Hour, 39.0, -75.0),
+		way(10, 3, 6*time.Hour, false, nil),
+	}
+	cases := []struct {
+		name  string
+		files [][]ingest.Item
+	}{
+		{"history then diff", [][]ingest.Item{history(), diff}},
+		{"diff then history", [][]ingest.Item{diff, history()}},
+		{"conflicting way", [][]ingest.Item{
+			{way(5, 1, 0, true, []int64{1, 2}, "building", "yes")},
+			{way(5, 1, 0, true, []int64{1, 2}, "building", "house"), way(5, 2, time.Hour, true, []int64{1, 2, 3})},
+		}},
+		{"versions out of order", [][]ingest.Item{
+			{node(7, 10, 10*time.Hour, 1, 1), node(7, 2, 2*time.Hour, 1, 2)},
+			{node(7, 1, time.Hour, 1, 3), node(6, 1, 0, 0, 0), node(8, 1, 0, 0, 0)},
+		}},
+		{"changesets", [][]ingest.Item{
+			{{Changeset: open}, {Changeset: &osm.Changeset{ID: 3, CreatedAt: t0, ClosedAt: t0}}},
+			{{Changeset: closed}},
+			{{Changeset: other}, node(9, 1, 0, 1, 1)},
+		}},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			ff := newFakeFiles(t)
+			var paths []string
+			for i, items := range tc.files {
+				paths = append(paths, ff.add(t, fmt.Sprintf("f%d", i), fmt.Sprintf("content %d", i), items...))
+			}
+			run := func(path ingest.WritePath) (ingest.Report, string) {
+				s := openMem(t)
+				opts := ff.options()
+				opts.Path, opts.SortBufferBytes = path, 100
+				rep, err := ingest.Ingest(context.Background(), s, paths, opts)
+				if err != nil {
+					t.Fatal(err)
+				}
+				checkTotals(t, s)
+				for i := range rep.Files {
+					rep.Files[i].Completed, rep.Files[i].Elapsed = time.Time{}, 0
+				}
+				return rep, contents(t, s)
+			}
+			tx, txStored := run(ingest.WriteTransactional)
+			bulk, bulkStored := run(ingest.WriteBulk)
+			if !bulk.Bulk || tx.Bulk {
+				t.Fatalf("paths taken: bulk %v, transactional %v", bulk.Bulk, tx.Bulk)
+			}
+			if bulkStored != txStored {
+				t.Errorf("stored on the bulk path:\n%s\ntransactional:\n%s", bulkStored, txStored)
+			}
+			if fmt.Sprint(bulk.Files, bulk.Conflicts, bulk.Totals) != fmt.Sprint(tx.Files, tx.Conflicts, tx.Totals) {
+				t.Errorf("bulk report %+v\ntransactional %+v", bulk, tx)
+			}
+		})
+	}
+}
+
+// contents lists the stored versions, changesets and file records.
+func contents(tb testing.TB, s *ingest.Store) string {
+	tb.Helper()
+	ctx := context.Background()
+	var b strings.Builder
+	for _, typ := range []osm.Type{osm.TypeNode, osm.TypeWay, osm.TypeRelation} {
+		err := s.ScanVersions(ctx, typ, func(o osm.Object) error { fmt.Fprintf(&b, "%+v\n", o); return nil })
+		if err != nil {
+			tb.Fatal(err)
+		}
+	}
+	if err := s.ScanChangesets(ctx, func(c *osm.Changeset) error { fmt.Fprintf(&b, "%+v\n", c); return nil }); err != nil {
+		tb.Fatal(err)
+	}
+	m, err := s.Meta(ctx)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	for _, f := range m.Files {
+		f.Completed = time.Time{}
+		fmt.Fprintf(&b, "%+v\n", f)
+	}
+	return b.String()
+}
+
+// TestBulkParseErrorKeepsItemsRead: on the bulk path a file abandoned at a
+// parse error keeps what was read before the error, gets no file record, and
+// the rerun of the fixed file (now on the transactional path) completes it.
+func TestBulkParseErrorKeepsItemsRead(t *testing.T) {
+	ctx := context.Background()
+	ff := newFakeFiles(t)
+	items := history()
+	broken := ff.add(t, "broken.osh", "broken", items[:5]...)
+	ff.fail[broken] = &ingest.ParseError{File: broken, Pos: ingest.Position{Line: 41, Column: 7, Element: 6},
+		Err: fmt.Errorf("%w: bad lat", ingest.ErrFormat)}
+	other := ff.add(t, "other.osc", "other", node(50, 1, 0, 1, 1))
+	s := openMem(t)
+	opts := ff.options()
+	opts.Path = ingest.WriteBulk
+	rep, err := ingest.Ingest(ctx, s, []string{broken, other}, opts)
+	var pe *ingest.ParseError
+	if !errors.As(err, &pe) || !strings.Contains(err.Error(), "line 41, column 7") {
+		t.Fatalf("error %v, want the ParseError", err)
+	}
+	if !rep.Bulk || rep.Files[0].Err == nil || rep.Files[0].Versions != 5 || rep.Files[1].Err != nil || rep.Files[1].Versions != 1 {
+		t.Errorf("reports: %+v", rep.Files)
+	}
+	m, err := s.Meta(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(m.Files) != 1 || m.Files[0].Path != other {
+		t.Errorf("only the completed file may be recorded: %+v", m.Files)
+	}
+	fixed := ff.add(t, "fixed.osh", "fixed", items...)
+	opts.Path = ingest.WriteAuto
+	rep, err = ingest.Ingest(ctx, s, []string{fixed}, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f := rep.Files[0]; rep.Bulk || f.Versions != 2 || f.Duplicates != 5 {
+		t.Errorf("rerun: bulk %v, %+v", rep.Bulk, f.FileRecord)
+	}
+	if st := checkTotals(t, s); st.NodeVersions != 6 || st.WayVersions != 2 {
+		t.Errorf("stats %+v", st)
+	}
+}
+
+// TestBulkCancelStoresNothing: a bulk ingest cancelled while it reads leaves
+// the store empty, and the rerun takes the bulk path again.
+func TestBulkCancelStoresNothing(t *testing.T) {
+	ff := newFakeFiles(t)
+	var items []ingest.Item
+	for id := int64(1); id <= 200; id++ {
+		items = append(items, node(id, 1, time.Duration(id)*time.Minute, float64(id)/10, 1))
+	}
+	p := ff.add(t, "big.osh", "big", items...)
+	s := openMem(t)
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	opts := ff.options()
+	opts.Path, opts.BatchEntries = ingest.WriteBulk, 50
+	opts.Progress = &cancelAfter{n: 2, cancel: cancel}
+	if _, err := ingest.Ingest(ctx, s, []string{p}, opts); !errors.Is(err, context.Canceled) {
+		t.Fatalf("error %v, want context.Canceled", err)
+	}
+	if st := checkTotals(t, s); st.Versions() != 0 {
+		t.Errorf("a cancelled bulk ingest stored %+v", st)
+	}
+	opts.Progress = nil
+	rep, err := ingest.Ingest(context.Background(), s, []string{p}, opts)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if f := rep.Files[0]; !rep.Bulk || f.Versions != 200 {
+		t.Errorf("rerun: bulk %v, %+v", rep.Bulk, f.FileRecord)
+	}
+}

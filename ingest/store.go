@@ -6,10 +6,14 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io/fs"
+	"os"
+	"path/filepath"
 	"slices"
 	"strconv"
 	"strings"
 	"sync"
+	"sync/atomic"
 	"time"
 
 	"github.com/dgraph-io/badger/v4"
@@ -53,20 +57,27 @@ type Options struct {
 	compression  BlockCompression
 	memTableSize int64
 	blockCache   int64
+	indexCache   int64
+	tableSize    int64
 	compactors   int
 	syncWrites   bool
 }
 
-// DefaultOptions returns options tuned for bulk loading on a small machine: two
-// compactors, 32 MiB memtables, a 32 MiB block cache, Snappy compression, no
-// fsync per write (an interrupted ingest loses at most the unflushed batches,
-// which a rerun writes again) and a silent logger.
+// DefaultOptions returns options tuned for loading on a small machine in
+// bounded memory: two compactors, 32 MiB memtables, a 32 MiB block cache, a
+// 32 MiB cache of table indexes and Bloom filters (so that their memory does
+// not grow with the store), tables of 8 MiB at every level (Badger's table
+// builders hold several times a table's size each, uncompressed), Snappy
+// compression, no fsync per write (an interrupted ingest loses at most the
+// unflushed batches, which a rerun writes again) and a silent logger.
 func DefaultOptions() Options {
 	return Options{
 		logger:       nopLogger{},
 		compression:  BlockSnappy,
 		memTableSize: 32 << 20,
 		blockCache:   32 << 20,
+		indexCache:   32 << 20,
+		tableSize:    8 << 20,
 		compactors:   2,
 	}
 }
@@ -92,6 +103,16 @@ func (o Options) WithMemTableSize(n int64) Options { o.memTableSize = n; return 
 
 // WithBlockCacheSize returns a copy with a block cache of n bytes.
 func (o Options) WithBlockCacheSize(n int64) Options { o.blockCache = n; return o }
+
+// WithIndexCacheSize returns a copy with a cache of n bytes for table
+// indexes and Bloom filters; 0 keeps all of them in memory, which grows with
+// the store.
+func (o Options) WithIndexCacheSize(n int64) Options { o.indexCache = n; return o }
+
+// WithTableSize returns a copy whose tables hold about n bytes (compressed)
+// at every level. Memory while writing grows with it: a table builder holds
+// a table's blocks both uncompressed and compressed.
+func (o Options) WithTableSize(n int64) Options { o.tableSize = n; return o }
 
 // WithCompactors returns a copy running n compactors (Badger needs at least 2).
 func (o Options) WithCompactors(n int) Options { o.compactors = max(n, 2); return o }
@@ -120,6 +141,14 @@ func (b badgerLogger) Infof(f string, a ...any) {
 }
 func (b badgerLogger) Debugf(string, ...any) {}
 
+// log returns the logger, silent when none was set.
+func (o Options) log() Logger {
+	if o.logger == nil {
+		return nopLogger{}
+	}
+	return o.logger
+}
+
 func (o Options) badger(dir string) badger.Options {
 	if o.logger == nil {
 		o.logger = nopLogger{}
@@ -131,9 +160,16 @@ func (o Options) badger(dir string) badger.Options {
 		WithMemTableSize(o.memTableSize).
 		WithNumMemtables(3).
 		WithBlockCacheSize(o.blockCache).
+		WithIndexCacheSize(o.indexCache).
 		WithDetectConflicts(false).
 		WithSyncWrites(o.syncWrites).
 		WithMetricsEnabled(false)
+	if o.tableSize > 0 {
+		// The same table size at every level bounds the memory of each table
+		// builder, and the bulk path's tables are no larger than the others.
+		bo = bo.WithBaseTableSize(o.tableSize)
+		bo.TableSizeMultiplier = 1
+	}
 	switch o.compression {
 	case BlockUncompressed:
 		bo = bo.WithCompression(options.None)
@@ -154,13 +190,40 @@ type Store struct {
 	opts Options
 
 	writeMu sync.Mutex // serialises Ingest
+	// interrupted is set while the store holds the remains of a bulk ingest
+	// that did not finish (its marker file is in dir): reads refuse it with
+	// ErrInterrupted and the next Ingest starts the bulk ingest again.
+	interrupted atomic.Bool
 }
+
+// usable returns ErrInterrupted, wrapped with the store's name, while the
+// store holds an unfinished bulk ingest.
+func (s *Store) usable() error {
+	if s.interrupted.Load() {
+		return fmt.Errorf("%s: %w; run loadwake ingest again with the same files", s.name(), ErrInterrupted)
+	}
+	return nil
+}
+
+// ErrNotStore marks a --store folder that holds something other than a
+// loadwake store: files of the user's, or another program's Badger database.
+// Open refuses it rather than write among those files.
+var ErrNotStore = errors.New("ingest: folder is not a loadwake store")
+
+// ErrInterrupted marks a store whose bulk ingest was interrupted (a crash,
+// kill or power loss while it wrote): its contents are incomplete until an
+// ingest of the same files runs again, which starts over from the empty store.
+var ErrInterrupted = errors.New("ingest: store holds an interrupted bulk ingest")
 
 // Open opens or creates the store in directory dir (the store constructor of
 // the read API contract in DEVELOPERS.md; stream readers come from OpenFile). A store that another
 // process holds gives an error wrapping ErrLocked; one written by a newer
-// loadwake gives ErrSchemaNewer.
+// loadwake gives ErrSchemaNewer. A folder that exists, is not empty and holds
+// no loadwake store gives ErrNotStore, and nothing is written into it.
 func Open(dir string, opts Options) (*Store, error) {
+	if err := checkStoreFolder(dir); err != nil {
+		return nil, err
+	}
 	db, err := badger.Open(opts.badger(dir))
 	if err != nil {
 		if strings.Contains(err.Error(), "Cannot acquire directory lock") {
@@ -180,8 +243,63 @@ func OpenInMemory(opts Options) (*Store, error) {
 	return newStore(db, "", opts)
 }
 
+// storeFile reports whether a folder entry is one a store makes: Badger's
+// files (LOCK comes first, then MANIFEST) and the bulk path's.
+func storeFile(name string) bool {
+	switch name {
+	case "MANIFEST", "LOCK", "KEYREGISTRY", "DISCARD", bulkMarker:
+		return true
+	}
+	return strings.HasPrefix(name, runDirPrefix) || strings.HasSuffix(name, ".sst") ||
+		strings.HasSuffix(name, ".vlog") || strings.HasSuffix(name, ".mem")
+}
+
+// checkStoreFolder refuses a folder that exists, is not empty and holds
+// neither a Badger manifest (which a store has from its first open on) nor
+// only the files a store makes.
+func checkStoreFolder(dir string) error {
+	entries, err := os.ReadDir(dir)
+	if errors.Is(err, fs.ErrNotExist) {
+		return nil
+	}
+	if err != nil {
+		return fmt.Errorf("open store %s: %w", dir, err)
+	}
+	if len(entries) == 0 {
+		return nil
+	}
+	var names []string
+	others := 0
+	for _, e := range entries {
+		if e.Name() == "MANIFEST" && e.Type().IsRegular() {
+			return nil
+		}
+		if storeFile(e.Name()) {
+			continue
+		}
+		if others++; len(names) < 3 {
+			names = append(names, e.Name())
+		}
+	}
+	if others == 0 {
+		return nil
+	}
+	more := ""
+	if others > len(names) {
+		more = fmt.Sprintf(" and %d more", others-len(names))
+	}
+	return fmt.Errorf("open store %s: %w: the folder holds other files (%s%s); give --store a new or empty folder, or the folder of an existing store",
+		dir, ErrNotStore, strings.Join(names, ", "), more)
+}
+
 func newStore(db *badger.DB, dir string, opts Options) (*Store, error) {
 	s := &Store{db: db, dir: dir, opts: opts}
+	if dir != "" {
+		if _, err := os.Stat(filepath.Join(dir, bulkMarker)); err == nil {
+			s.interrupted.Store(true)
+			opts.log().Printf("%s: an earlier bulk ingest was interrupted; the next ingest starts it again", s.name())
+		}
+	}
 	if err := s.checkSchema(); err != nil {
 		db.Close()
 		return nil, err
@@ -205,8 +323,9 @@ func (s *Store) checkSchema() error {
 			it.Rewind()
 			empty := !it.Valid()
 			it.Close()
-			if !empty {
-				return fmt.Errorf("%s: %w: not a loadwake store (no schema record)", s.name(), ErrFormat)
+			if !empty && !s.interrupted.Load() {
+				return fmt.Errorf("%s: %w: %w: not a loadwake store (no schema record); give --store a new or empty folder",
+					s.name(), ErrNotStore, ErrFormat)
 			}
 			return txn.Set(metaKey(metaSchema), []byte(strconv.Itoa(SchemaVersion)))
 		}
@@ -248,6 +367,9 @@ const (
 // scanPrefix iterates the keys under prefix in order, calling fn with key and
 // value bytes that are valid only inside fn. It checks ctx every scanBatch keys.
 func (s *Store) scanPrefix(ctx context.Context, prefix []byte, fn func(k, v []byte) error) error {
+	if err := s.usable(); err != nil {
+		return err
+	}
 	return s.db.View(func(txn *badger.Txn) error {
 		opt := badger.DefaultIteratorOptions
 		opt.Prefix = prefix
@@ -314,6 +436,9 @@ func (s *Store) NodeAt(ctx context.Context, id osm.NodeID, at time.Time) (p orb.
 	if err := ctx.Err(); err != nil {
 		return p, false, err
 	}
+	if err := s.usable(); err != nil {
+		return p, false, err
+	}
 	prefix := objectPrefix(typeNode, int64(id))
 	err = s.db.View(func(txn *badger.Txn) error {
 		opt := badger.DefaultIteratorOptions
@@ -364,6 +489,9 @@ func (s *Store) Changeset(ctx context.Context, id osm.ChangesetID) (*osm.Changes
 	if err := ctx.Err(); err != nil {
 		return nil, false, err
 	}
+	if err := s.usable(); err != nil {
+		return nil, false, err
+	}
 	key := changesetKey(int64(id))
 	var c *osm.Changeset
 	err := s.db.View(func(txn *badger.Txn) error {
@@ -398,6 +526,9 @@ func derivedKey(key []byte) []byte {
 // owner that is interrupted drops its prefix and writes again. It checks ctx
 // every scanBatch puts.
 func (s *Store) PutDerived(ctx context.Context, fill func(put func(key, value []byte) error) error) error {
+	if err := s.usable(); err != nil {
+		return err
+	}
 	wb := s.db.NewWriteBatch()
 	n := 0
 	put := func(key, value []byte) error {
@@ -432,6 +563,9 @@ func (s *Store) GetDerived(ctx context.Context, key []byte) ([]byte, bool, error
 	if err := ctx.Err(); err != nil {
 		return nil, false, err
 	}
+	if err := s.usable(); err != nil {
+		return nil, false, err
+	}
 	var v []byte
 	found := false
 	err := s.db.View(func(txn *badger.Txn) error {
@@ -456,6 +590,9 @@ func (s *Store) GetDerived(ctx context.Context, key []byte) ([]byte, bool, error
 // prefix drops all derived data.
 func (s *Store) DropDerived(ctx context.Context, prefix []byte) error {
 	if err := ctx.Err(); err != nil {
+		return err
+	}
+	if err := s.usable(); err != nil {
 		return err
 	}
 	if err := s.db.DropPrefix(derivedKey(prefix)); err != nil {
@@ -511,6 +648,9 @@ type Meta struct {
 // Stats returns the store's totals.
 func (s *Store) Stats(ctx context.Context) (Stats, error) {
 	if err := ctx.Err(); err != nil {
+		return Stats{}, err
+	}
+	if err := s.usable(); err != nil {
 		return Stats{}, err
 	}
 	var st Stats

@@ -54,7 +54,7 @@ func TestOpenRefusesForeignDatabase(t *testing.T) {
 		t.Fatal(err)
 	}
 	db.Close()
-	if _, err := Open(dir, DefaultOptions()); !errors.Is(err, ErrFormat) || !strings.Contains(err.Error(), "not a loadwake store") {
+	if _, err := Open(dir, DefaultOptions()); !errors.Is(err, ErrFormat) || !errors.Is(err, ErrNotStore) || !strings.Contains(err.Error(), "not a loadwake store") {
 		t.Errorf("open: %v", err)
 	}
 }

@@ -1,0 +1,308 @@
+package ingest
+
+import (
+	"bufio"
+	"bytes"
+	"container/heap"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"path/filepath"
+	"slices"
+)
+
+// A record is one key and value on its way to a bulk write, with where it came
+// from: seq is its place in the order Ingest read the items (lower is
+// earlier), file the index of its file among Ingest's paths and pos its
+// position there, for conflict reports.
+//
+// Encoded in a run, a record is: key length (1 byte), key, value length
+// (uvarint), value, then seq, file, pos.Offset, pos.Line, pos.Column and
+// pos.Element as uvarints.
+type record struct {
+	key, val []byte
+	seq      uint64
+	file     int
+	pos      Position
+}
+
+func appendRecord(dst []byte, r *record) []byte {
+	dst = append(dst, byte(len(r.key)))
+	dst = append(dst, r.key...)
+	dst = binary.AppendUvarint(dst, uint64(len(r.val)))
+	dst = append(dst, r.val...)
+	dst = binary.AppendUvarint(dst, r.seq)
+	dst = binary.AppendUvarint(dst, uint64(r.file))
+	dst = binary.AppendUvarint(dst, uint64(r.pos.Offset))
+	dst = binary.AppendUvarint(dst, uint64(r.pos.Line))
+	dst = binary.AppendUvarint(dst, uint64(r.pos.Column))
+	return binary.AppendUvarint(dst, uint64(r.pos.Element))
+}
+
+// errRun marks a spilled run that cannot be read back: the temporary file was
+// changed or cut short under the ingest.
+var errRun = errors.New("ingest: corrupt temporary sort run")
+
+// parseRecord reads the record at the start of b into r, whose slices then
+// point into b, and returns its encoded length.
+func parseRecord(b []byte, r *record) (int, error) {
+	if len(b) < 1 || len(b) < 1+int(b[0]) {
+		return 0, errRun
+	}
+	n := 1 + int(b[0])
+	r.key = b[1:n]
+	vl, k := binary.Uvarint(b[n:])
+	if k <= 0 || uint64(len(b)-n-k) < vl {
+		return 0, errRun
+	}
+	n += k
+	r.val = b[n : n+int(vl)]
+	n += int(vl)
+	var f [6]uint64
+	for i := range f {
+		v, k := binary.Uvarint(b[n:])
+		if k <= 0 {
+			return 0, errRun
+		}
+		f[i], n = v, n+k
+	}
+	r.seq, r.file = f[0], int(f[1])
+	r.pos = Position{Offset: int64(f[2]), Line: int(f[3]), Column: int(f[4]), Element: int64(f[5])}
+	return n, nil
+}
+
+// sortBuffer collects records in memory up to a byte budget. sorted stays
+// true while the records arrive in key order, which spares the sort for
+// sorted input (a history file is ordered by type, id and version).
+type sortBuffer struct {
+	data    []byte
+	idx     []uint32 // start offsets in data, in arrival order until sorted
+	sorted  bool
+	lastKey []byte
+	scratch []byte
+}
+
+func (b *sortBuffer) reset() {
+	b.data, b.idx, b.sorted, b.lastKey = b.data[:0], b.idx[:0], true, nil
+}
+
+func (b *sortBuffer) len() int { return len(b.idx) }
+
+// add appends r; its bytes are copied. budget is the byte size the buffer
+// will grow to, allocated at once so that it never copies itself.
+func (b *sortBuffer) add(r *record, budget int) {
+	if b.data == nil {
+		b.data = make([]byte, 0, budget)
+		b.idx = make([]uint32, 0, budget/64)
+	}
+	b.scratch = appendRecord(b.scratch[:0], r)
+	off := len(b.data)
+	b.data = append(b.data, b.scratch...)
+	b.idx = append(b.idx, uint32(off))
+	key := b.data[off+1 : off+1+len(r.key)]
+	if b.sorted && b.lastKey != nil && bytes.Compare(key, b.lastKey) < 0 {
+		b.sorted = false
+	}
+	b.lastKey = key
+}
+
+func (b *sortBuffer) keyAt(off uint32) []byte {
+	return b.data[off+1 : off+1+uint32(b.data[off])]
+}
+
+// sort orders the records by key, equal keys in arrival order (offsets grow
+// with arrival).
+func (b *sortBuffer) sort() {
+	if b.sorted {
+		return
+	}
+	slices.SortFunc(b.idx, func(x, y uint32) int {
+		if c := bytes.Compare(b.keyAt(x), b.keyAt(y)); c != 0 {
+			return c
+		}
+		if x < y {
+			return -1
+		}
+		return 1
+	})
+	b.sorted = true
+}
+
+// spill sorts the records and writes them to a new file in dir.
+func (b *sortBuffer) spill(dir string, n int) (string, error) {
+	b.sort()
+	path := filepath.Join(dir, fmt.Sprintf("run-%05d", n))
+	f, err := os.Create(path)
+	if err != nil {
+		return "", fmt.Errorf("write sort run: %w", err)
+	}
+	w := bufio.NewWriterSize(f, 1<<20)
+	var r record
+	for _, off := range b.idx {
+		k, err := parseRecord(b.data[off:], &r)
+		if err != nil {
+			f.Close()
+			return "", err
+		}
+		if _, err := w.Write(b.data[off : int(off)+k]); err != nil {
+			f.Close()
+			return "", fmt.Errorf("write sort run %s: %w", path, err)
+		}
+	}
+	if err := w.Flush(); err != nil {
+		f.Close()
+		return "", fmt.Errorf("write sort run %s: %w", path, err)
+	}
+	if err := f.Close(); err != nil {
+		return "", fmt.Errorf("write sort run %s: %w", path, err)
+	}
+	return path, nil
+}
+
+// A cursor walks one sorted run. rec is valid until the next call of next.
+type cursor interface {
+	next() (bool, error)
+	rec() *record
+}
+
+// memCursor walks a sorted sortBuffer.
+type memCursor struct {
+	b *sortBuffer
+	i int
+	r record
+}
+
+func (c *memCursor) next() (bool, error) {
+	if c.i >= len(c.b.idx) {
+		return false, nil
+	}
+	off := c.b.idx[c.i]
+	c.i++
+	_, err := parseRecord(c.b.data[off:], &c.r)
+	return err == nil, err
+}
+
+func (c *memCursor) rec() *record { return &c.r }
+
+// fileCursor reads a spilled run.
+type fileCursor struct {
+	f    *os.File
+	br   *bufio.Reader
+	path string
+	buf  []byte
+	r    record
+}
+
+func openRun(path string) (*fileCursor, error) {
+	f, err := os.Open(path)
+	if err != nil {
+		return nil, fmt.Errorf("read sort run: %w", err)
+	}
+	return &fileCursor{f: f, br: bufio.NewReaderSize(f, 256<<10), path: path}, nil
+}
+
+func (c *fileCursor) next() (bool, error) {
+	kl, err := c.br.ReadByte()
+	if err == io.EOF {
+		return false, nil
+	}
+	if err != nil {
+		return false, fmt.Errorf("read sort run %s: %w", c.path, err)
+	}
+	c.buf = append(c.buf[:0], kl)
+	c.buf = slices.Grow(c.buf, int(kl))[:1+int(kl)]
+	if _, err := io.ReadFull(c.br, c.buf[1:]); err != nil {
+		return false, fmt.Errorf("read sort run %s: %w: %w", c.path, errRun, err)
+	}
+	vl, err := binary.ReadUvarint(c.br)
+	if err != nil || vl > 1<<30 {
+		return false, fmt.Errorf("read sort run %s: %w", c.path, errRun)
+	}
+	c.buf = binary.AppendUvarint(c.buf, vl)
+	start := len(c.buf)
+	c.buf = slices.Grow(c.buf, int(vl))[:start+int(vl)]
+	if _, err := io.ReadFull(c.br, c.buf[start:]); err != nil {
+		return false, fmt.Errorf("read sort run %s: %w: %w", c.path, errRun, err)
+	}
+	for range 6 {
+		v, err := binary.ReadUvarint(c.br)
+		if err != nil {
+			return false, fmt.Errorf("read sort run %s: %w", c.path, errRun)
+		}
+		c.buf = binary.AppendUvarint(c.buf, v)
+	}
+	if _, err := parseRecord(c.buf, &c.r); err != nil {
+		return false, fmt.Errorf("read sort run %s: %w", c.path, err)
+	}
+	return true, nil
+}
+
+func (c *fileCursor) rec() *record { return &c.r }
+
+func (c *fileCursor) close() error { return c.f.Close() }
+
+// mergeHeap orders cursors by their current record: key, then seq.
+type mergeHeap []cursor
+
+func (h mergeHeap) Len() int { return len(h) }
+func (h mergeHeap) Less(i, j int) bool {
+	a, b := h[i].rec(), h[j].rec()
+	if c := bytes.Compare(a.key, b.key); c != 0 {
+		return c < 0
+	}
+	return a.seq < b.seq
+}
+func (h mergeHeap) Swap(i, j int) { h[i], h[j] = h[j], h[i] }
+func (h *mergeHeap) Push(x any)   { *h = append(*h, x.(cursor)) }
+func (h *mergeHeap) Pop() any {
+	old := *h
+	c := old[len(old)-1]
+	*h = old[:len(old)-1]
+	return c
+}
+
+// merger yields the records of several sorted runs in (key, seq) order.
+type merger struct {
+	h       mergeHeap
+	started bool
+}
+
+func newMerger(cursors []cursor) *merger {
+	return &merger{h: cursors}
+}
+
+// next returns the next record, valid until the following call, or nil at
+// the end.
+func (m *merger) next() (*record, error) {
+	if !m.started {
+		m.started = true
+		live := m.h[:0]
+		for _, c := range m.h {
+			ok, err := c.next()
+			if err != nil {
+				return nil, err
+			}
+			if ok {
+				live = append(live, c)
+			}
+		}
+		m.h = live
+		heap.Init(&m.h)
+	} else if len(m.h) > 0 {
+		ok, err := m.h[0].next()
+		switch {
+		case err != nil:
+			return nil, err
+		case ok:
+			heap.Fix(&m.h, 0)
+		default:
+			heap.Pop(&m.h)
+		}
+	}
+	if len(m.h) == 0 {
+		return nil, nil
+	}
+	return m.h[0].rec(), nil
+}
