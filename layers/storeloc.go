@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"slices"
+	"sync"
 	"time"
 
 	"github.com/paulmach/orb"
@@ -14,20 +15,25 @@ import (
 // versionCacheSize bounds how many objects' version lists storeLocator keeps.
 const versionCacheSize = 1024
 
-// storeLocator is the Locator the pass hands to Classify: it reads a Source
-// under the pass's context and keeps the first error, which the pass checks
-// after each Classify call.
+// storeLocator is the Locator one classifying goroutine hands to Classify:
+// node positions from the pass's node position table, way and relation
+// versions read from the Source (the last versionCacheSize objects cached),
+// the node→way index shared by the pass. It keeps the first error, which the
+// goroutine checks after each Classify call. Not safe for concurrent use: each
+// goroutine has its own.
 type storeLocator struct {
 	ctx    context.Context
 	src    Source
-	pass   *pass
 	err    error
 	misses int64 // NodeAt calls that found no position
 
-	table   *nodeTable // nil when disabled
-	indexed bool       // d|W| node→way index written
-	ways    map[osm.WayID][]osm.Object
-	rels    map[osm.RelationID][]osm.Object
+	nodes *nodePositions // nil until the node scan is over
+	hint  int            // where the last node search ended
+	index *nodeWayIndex
+	batch int // entries per batch when writing the node→way index
+
+	ways map[osm.WayID][]osm.Object
+	rels map[osm.RelationID][]osm.Object
 }
 
 func (l *storeLocator) fail(err error) {
@@ -40,19 +46,7 @@ func (l *storeLocator) NodeAt(id osm.NodeID, at time.Time) (orb.Point, bool) {
 	if l.err != nil {
 		return orb.Point{}, false
 	}
-	if l.table != nil {
-		if p, ok, known := l.table.at(id, at); known {
-			if !ok {
-				l.misses++
-			}
-			return p, ok
-		}
-	}
-	p, ok, err := l.src.NodeAt(l.ctx, id, at)
-	if err != nil {
-		l.fail(fmt.Errorf("position of node/%d: %w", id, err))
-		return orb.Point{}, false
-	}
+	p, ok := l.nodes.at(id, at, &l.hint)
 	if !ok {
 		l.misses++
 	}
@@ -116,12 +110,9 @@ func (l *storeLocator) WaysHolding(id osm.NodeID, at time.Time) []*osm.Way {
 	if l.err != nil {
 		return nil
 	}
-	if !l.indexed {
-		if err := buildNodeWays(l.ctx, l.src, l.pass.opts.batch()); err != nil {
-			l.fail(err)
-			return nil
-		}
-		l.indexed = true
+	if err := l.index.ensure(l.ctx, l.src, l.batch); err != nil {
+		l.fail(err)
+		return nil
 	}
 	prefix := binary.BigEndian.AppendUint64(append([]byte(nil), prefixNodeWays...), uint64(id))
 	var ids []osm.WayID
@@ -147,6 +138,27 @@ func (l *storeLocator) WaysHolding(id osm.NodeID, at time.Time) []*osm.Way {
 		}
 	}
 	return out
+}
+
+// nodeWayIndex records whether the d|W| node→way index has been written in
+// this pass; the classifying goroutines share it.
+type nodeWayIndex struct {
+	mu    sync.Mutex
+	built bool
+}
+
+// ensure writes the index unless it has been written; other callers wait.
+func (x *nodeWayIndex) ensure(ctx context.Context, src Source, batch int) error {
+	x.mu.Lock()
+	defer x.mu.Unlock()
+	if x.built {
+		return nil
+	}
+	if err := buildNodeWays(ctx, src, batch); err != nil {
+		return err
+	}
+	x.built = true
+	return nil
 }
 
 // buildNodeWays writes d|W|node|way for every node any way version ever held,

@@ -1,0 +1,91 @@
+package layers
+
+import (
+	"bytes"
+	"context"
+	"fmt"
+	"path/filepath"
+	"reflect"
+	"testing"
+
+	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/rules"
+)
+
+// TestWorkersMatchSerial classifies the same store in the scanning goroutine
+// alone and with several workers taking small runs, and requires the derived
+// areas (events, changeset index, first edits, node→way index, summary) to be
+// byte-identical. Stores: a real history with moved vertices and relations
+// (osm module testdata relation_2714790.osm, so the node→way index is built
+// while workers run) and a small simulated world (audit/sim, invented data).
+func TestWorkersMatchSerial(t *testing.T) {
+	for _, c := range []struct {
+		name  string
+		paths func(testing.TB) []string
+	}{
+		{"relation_2714790 history", func(tb testing.TB) []string {
+			return []string{osmTestdata(tb, "annotate/testdata/relation_2714790.osm")}
+		}},
+		{"simulated world", simWorld},
+	} {
+		t.Run(c.name, func(t *testing.T) {
+			ctx := context.Background()
+			paths := c.paths(t)
+			st := ingested(t, "", paths...)
+			serial, err := Run(ctx, st, rules.Default(), Options{Workers: 1})
+			if err != nil {
+				t.Fatal(err)
+			}
+			want := derivedDump(t, st)
+			for _, o := range []Options{
+				{Workers: 2},
+				{Workers: 4, BatchSize: 7, chunk: 3},
+			} {
+				st := ingested(t, "", paths...) // a fresh store: dropping derived data is slow
+				got, err := Run(ctx, st, rules.Default(), o)
+				if err != nil {
+					t.Fatal(err)
+				}
+				if !reflect.DeepEqual(got, serial) {
+					t.Errorf("%d workers: summary %+v, serial %+v", o.Workers, got, serial)
+				}
+				if d := derivedDump(t, st); !bytes.Equal(d, want) {
+					t.Errorf("%d workers: derived area of %d bytes differs from the serial pass's %d bytes", o.Workers, len(d), len(want))
+				}
+			}
+			if serial.Events["geometry"] == 0 || serial.Events["new_feature"] == 0 {
+				t.Errorf("too few events to compare: %+v", serial.Events)
+			}
+		})
+	}
+}
+
+// simWorld writes a small simulated world (4×3 districts, 10 months, a few
+// thousand versions) and returns its history and changeset files.
+func simWorld(tb testing.TB) []string {
+	tb.Helper()
+	cfg := sim.DefaultConfig()
+	cfg.Cols, cfg.Rows, cfg.Months = 4, 3, 10
+	cfg.Treated, cfg.Waves = 4, 2
+	cfg.BaselinePOIs, cfg.BaselineBuildings, cfg.BaselineRoads = 8, 20, 4
+	cfg.ImportBuildings, cfg.ImportPOIs = 200, 12
+	dir := tb.TempDir()
+	if _, err := sim.Generate(context.Background(), cfg, dir, false); err != nil {
+		tb.Fatal(err)
+	}
+	return []string{filepath.Join(dir, sim.HistoryFile), filepath.Join(dir, sim.ChangesetsFile)}
+}
+
+// derivedDump returns every derived key and value under d| in key order.
+func derivedDump(tb testing.TB, src DerivedReader) []byte {
+	tb.Helper()
+	var b bytes.Buffer
+	err := src.ScanDerived(context.Background(), []byte("d|"), func(k, v []byte) error {
+		fmt.Fprintf(&b, "%q=%q\n", k, v)
+		return nil
+	})
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return b.Bytes()
+}
