@@ -23,9 +23,9 @@
 //	                                      d|E| key is rebuilt from it
 //	d|U|UID(8)                            8 bytes: unix seconds of the
 //	                                      account's first version
-//	d|W|NODE(8)|WAY(8)                    empty; every way version that held
-//	                                      the node, written only when a
-//	                                      classless node moves
+//	d|W|NODE(8)|WAY(8)                    the node→way index of earlier
+//	                                      versions; no longer written, and
+//	                                      dropped by the next pass
 //	d|meta|classify                       the Summary as JSON: rules hash,
 //	                                      data fingerprint, counts
 //
@@ -85,13 +85,16 @@
 //
 // The pass holds, per worker, one batch of events (Options.BatchSize), a run of
 // versions and a cache of at most 1024 way and 1024 relation version lists;
-// a few runs queued between the scan and the workers; and the per-account
-// first-edit times (one entry per account). None of it grows with the number
-// of nodes, ways or relations.
+// a few runs queued between the scan and the workers; one sorting run of the
+// node→way table while it is built (16 MiB); and the per-account first-edit
+// times (one entry per account). None of it grows with the number of nodes,
+// ways or relations; the two tables are files the kernel caches.
 //
-// Finding the way an untagged vertex belonged to needs a node→way index. It is
-// written to the store (d|W|, batch by batch, one scan over all way versions)
-// rather than held in memory, because a history's way node lists can be far
-// larger than memory; and it is written only on the first vertex move, so a
-// snapshot (no earlier versions, nothing moves) never pays for it.
+// Finding the ways an untagged vertex belonged to needs a node→way index. On
+// the first vertex move the pass builds it as a second sorted table (16 bytes
+// per distinct node and way pair) by an external sort: one scan over all way
+// versions collects the pairs 16 MiB at a time (Options.nodeWayRun), sorts
+// each run to a temporary file, and merges the runs, dropping repeats. A
+// history's way node lists can be far larger than memory, and a snapshot
+// (nothing moves) never pays for the table.
 package layers

@@ -40,7 +40,7 @@ type Source interface {
 type Options struct {
 	// Force re-classifies even when the rules and the data are unchanged.
 	Force bool
-	// BatchSize is how many events (and index entries) are written per batch;
+	// BatchSize is how many events (and first-edit records) are written per batch;
 	// 0 means 4096. Memory use of the pass is bounded by it.
 	BatchSize int
 	// Workers is how many goroutines classify, each taking runs of whole
@@ -48,16 +48,19 @@ type Options struct {
 	// classifies in the scanning goroutine. The stored results do not depend
 	// on it.
 	Workers int
-	// TempDir is where the node position table (24 bytes per node version)
-	// is written while the pass runs; "" means os.TempDir(). Its name is
-	// removed as soon as the node scan ends.
+	// TempDir is where the pass writes its temporary tables: node positions
+	// (24 bytes per node version) and, once a classless vertex moves, the
+	// node→way table (16 bytes per distinct node and way pair, sorted in
+	// runs of 16 MiB). "" means os.TempDir(). Each file's name is removed as
+	// soon as the file is complete.
 	TempDir string
 	// Progress, when set, is called after each batch of events with the object
 	// type being scanned and the versions of that type scanned so far. Calls
 	// come from several goroutines, one at a time.
 	Progress func(t osm.Type, versions int64)
 
-	chunk int // versions per run handed to a worker; 0 means defaultChunk
+	chunk      int // versions per run handed to a worker; 0 means defaultChunk
+	nodeWayRun int // pairs per sorted run of the node→way table; 0 means defaultNodeWayRun
 }
 
 // defaultChunk is how many versions (rounded up to whole objects) a worker
@@ -182,13 +185,17 @@ func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error
 		sum:   newSummary(r.Hash()),
 	}
 	defer func() { p.nodes.close() }() // after a failure; closing twice is harmless
-	index := &nodeWayIndex{}
+	index := &nodeWayIndex{dir: opts.TempDir, runLen: opts.nodeWayRun}
+	if index.runLen <= 0 {
+		index.runLen = defaultNodeWayRun
+	}
+	defer index.close()
 	p.workers = make([]*worker, opts.workers())
 	for i := range p.workers {
 		p.workers[i] = &worker{
 			p:   p,
 			sum: newSummary(""),
-			loc: &storeLocator{src: src, index: index, batch: opts.batch()},
+			loc: &storeLocator{src: src, index: index},
 		}
 	}
 	p.startWriter()
@@ -569,7 +576,8 @@ func (p *pass) writeFirstEdits() error {
 	return nil
 }
 
-// ownPrefixes are the derived keys a pass writes; the summary comes first so
+// ownPrefixes are the derived keys a pass writes, and the node→way index that
+// earlier versions of the pass kept in the store; the summary comes first so
 // that an interrupted drop leaves the store "not classified".
 var ownPrefixes = [...][]byte{keyMeta, prefixEvent, prefixChangeset, prefixFirstEdit, prefixNodeWays}
 

@@ -3,6 +3,7 @@ package layers
 import (
 	"context"
 	"errors"
+	"fmt"
 	"maps"
 	"path/filepath"
 	"slices"
@@ -290,4 +291,50 @@ func sameSet(a, b []string) bool {
 		}
 	}
 	return true
+}
+
+// TestNodeWayTable checks the node→way table against the pairs read directly
+// from every way version of a real history (osm module testdata
+// relation_2714790.osm), sorted in one run and in runs of 1, 7 and 1000
+// pairs, looked up with and without a running hint. No temporary file may
+// be left behind.
+func TestNodeWayTable(t *testing.T) {
+	ctx := context.Background()
+	src := newMemSource(t, readOSMXML(t, osmTestdata(t, "annotate/testdata/relation_2714790.osm"))...)
+	want := map[osm.NodeID][]osm.WayID{}
+	for _, o := range src.objs[osm.TypeWay] {
+		w := o.(*osm.Way)
+		for _, wn := range w.Nodes {
+			if !slices.Contains(want[wn.ID], w.ID) {
+				want[wn.ID] = append(want[wn.ID], w.ID)
+			}
+		}
+	}
+	ids := slices.Sorted(maps.Keys(want))
+	ids = append([]osm.NodeID{-5, 0}, append(ids, ids[len(ids)-1]+1)...) // absent ids at both ends
+	for _, runLen := range []int{1, 7, 1000, 1 << 20} {
+		t.Run(fmt.Sprintf("runs of %d", runLen), func(t *testing.T) {
+			dir := t.TempDir()
+			tab, err := buildNodeWays(ctx, src, dir, runLen)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer tab.close()
+			if left, _ := filepath.Glob(filepath.Join(dir, "*")); len(left) != 0 {
+				t.Errorf("files left behind: %q", left)
+			}
+			hint := -1
+			for _, id := range ids {
+				w := slices.Clone(want[id])
+				slices.Sort(w)
+				for _, h := range []*int{&hint, new(int)} {
+					var got []osm.WayID
+					tab.ways(id, h, func(wid osm.WayID) { got = append(got, wid) })
+					if !slices.Equal(got, w) {
+						t.Fatalf("node %d: ways %v, want %v", id, got, w)
+					}
+				}
+			}
+		})
+	}
 }

@@ -15,7 +15,8 @@ import (
 // TestWorkersMatchSerial classifies the same store in the scanning goroutine
 // alone and with several workers taking small runs, and requires the derived
 // areas (events, changeset index, first edits, node→way index, summary) to be
-// byte-identical. Stores: a real history with moved vertices and relations
+// byte-identical (the second also sorts the node→way table in many small
+// runs). Stores: a real history with moved vertices and relations
 // (osm module testdata relation_2714790.osm, so the node→way index is built
 // while workers run) and a small simulated world (audit/sim, invented data).
 func TestWorkersMatchSerial(t *testing.T) {
@@ -39,7 +40,7 @@ func TestWorkersMatchSerial(t *testing.T) {
 			want := derivedDump(t, st)
 			for _, o := range []Options{
 				{Workers: 2},
-				{Workers: 4, BatchSize: 7, chunk: 3},
+				{Workers: 4, BatchSize: 7, chunk: 3, nodeWayRun: 5},
 			} {
 				st := ingested(t, "", paths...) // a fresh store: dropping derived data is slow
 				got, err := Run(ctx, st, rules.Default(), o)
