@@ -3,6 +3,7 @@ package layers
 import (
 	"bytes"
 	"context"
+	"errors"
 	"fmt"
 	"path/filepath"
 	"reflect"
@@ -10,6 +11,7 @@ import (
 
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/rules"
+	"github.com/paulmach/osm"
 )
 
 // TestWorkersMatchSerial classifies the same store in the scanning goroutine
@@ -89,4 +91,33 @@ func derivedDump(tb testing.TB, src DerivedReader) []byte {
 		tb.Fatal(err)
 	}
 	return b.Bytes()
+}
+
+// failingSource fails every ObjectVersions call, which the pass makes while
+// placing ways and relations.
+type failingSource struct {
+	*memSource
+	err error
+}
+
+func (f failingSource) ObjectVersions(context.Context, osm.Type, int64) ([]osm.Object, error) {
+	return nil, f.err
+}
+
+// TestWorkerErrorStopsPass: a read error in one of several workers ends the
+// pass with that error, records no summary and leaves no temporary file.
+func TestWorkerErrorStopsPass(t *testing.T) {
+	boom := errors.New("disk on fire")
+	src := failingSource{newMemSource(t, readOSMXML(t, osmTestdata(t, "annotate/testdata/relation_2714790.osm"))...), boom}
+	dir := t.TempDir()
+	_, err := Run(context.Background(), src, rules.Default(), Options{Workers: 3, chunk: 1, TempDir: dir})
+	if !errors.Is(err, boom) {
+		t.Fatalf("Run = %v, want the source's error", err)
+	}
+	if _, err := Summarize(context.Background(), src); !errors.Is(err, ErrNotClassified) {
+		t.Errorf("Summarize after a failed pass = %v, want ErrNotClassified", err)
+	}
+	if left, _ := filepath.Glob(filepath.Join(dir, "*")); len(left) != 0 {
+		t.Errorf("files left behind: %q", left)
+	}
 }
