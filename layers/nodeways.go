@@ -99,6 +99,7 @@ func (x *nodeWayIndex) close() error {
 // table. Memory is bounded by runLen, not by the history.
 func buildNodeWays(ctx context.Context, src Source, dir string, runLen int) (*nodeWayTable, error) {
 	buf := make([]nodeWayPair, 0, runLen)
+	bw := bufio.NewWriterSize(nil, min(1<<20, max(16, runLen*nodeWayRecLen)))
 	var runs []*os.File
 	defer func() {
 		for _, f := range runs {
@@ -113,14 +114,14 @@ func buildNodeWays(ctx context.Context, src Source, dir string, runLen int) (*no
 			return err
 		}
 		runs = append(runs, f)
-		w := bufio.NewWriterSize(f, 1<<20)
+		bw.Reset(f)
 		var rec [nodeWayRecLen]byte
 		for _, p := range buf {
 			putPair(rec[:], p)
-			w.Write(rec[:])
+			bw.Write(rec[:])
 		}
 		buf = buf[:0]
-		if err := w.Flush(); err != nil {
+		if err := bw.Flush(); err != nil {
 			return err
 		}
 		_, err = f.Seek(0, io.SeekStart)
@@ -161,7 +162,7 @@ func buildNodeWays(ctx context.Context, src Source, dir string, runLen int) (*no
 			err = spill()
 		}
 		if err == nil {
-			err = mergeRuns(ctx, runs, func(p nodeWayPair) error {
+			err = mergeRuns(ctx, runs, min(64<<10, max(16, runLen*nodeWayRecLen)), func(p nodeWayPair) error {
 				putPair(rec[:], p)
 				return out.write(rec[:])
 			})
@@ -221,11 +222,12 @@ func (h *runHeap) Pop() any {
 	return r
 }
 
-// mergeRuns calls fn with every distinct pair of the sorted runs, in order.
-func mergeRuns(ctx context.Context, runs []*os.File, fn func(nodeWayPair) error) error {
+// mergeRuns calls fn with every distinct pair of the sorted runs, in order,
+// reading each run through a buffer of bufSize bytes.
+func mergeRuns(ctx context.Context, runs []*os.File, bufSize int, fn func(nodeWayPair) error) error {
 	h := make(runHeap, 0, len(runs))
 	for _, f := range runs {
-		r := &runReader{r: bufio.NewReaderSize(f, 64<<10)}
+		r := &runReader{r: bufio.NewReaderSize(f, bufSize)}
 		ok, err := r.next()
 		if err != nil {
 			return err

@@ -33,8 +33,7 @@ func TestWorkersMatchSerial(t *testing.T) {
 	} {
 		t.Run(c.name, func(t *testing.T) {
 			ctx := context.Background()
-			paths := c.paths(t)
-			st := ingested(t, "", paths...)
+			st := ingested(t, "", c.paths(t)...)
 			serial, err := Run(ctx, st, rules.Default(), Options{Workers: 1})
 			if err != nil {
 				t.Fatal(err)
@@ -44,7 +43,7 @@ func TestWorkersMatchSerial(t *testing.T) {
 				{Workers: 2},
 				{Workers: 4, BatchSize: 7, chunk: 3, nodeWayRun: 5},
 			} {
-				st := ingested(t, "", paths...) // a fresh store: dropping derived data is slow
+				o.Force = true
 				got, err := Run(ctx, st, rules.Default(), o)
 				if err != nil {
 					t.Fatal(err)
