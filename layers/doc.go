@@ -5,8 +5,8 @@
 //
 // Classify is the pure comparison. Run is the classification pass over a
 // history store (a Source, met by *ingest.Store): it scans nodes, then ways,
-// then relations, writes every event into the store's derived area, and
-// records a Summary. ScanEvents, ScanChangesetEvents, FirstEdits and Summarize
+// then relations, classifies them on several goroutines, writes every event
+// into the store's derived area, and records a Summary. ScanEvents, ScanChangesetEvents, FirstEdits and Summarize
 // read the results back. The package uses the rules package only through the
 // Rules interface and never imports ingest.
 //
@@ -23,9 +23,9 @@
 //	                                      d|E| key is rebuilt from it
 //	d|U|UID(8)                            8 bytes: unix seconds of the
 //	                                      account's first version
-//	d|W|NODE(8)|WAY(8)                    empty; every way version that held
-//	                                      the node, written only when a
-//	                                      classless node moves
+//	d|W|NODE(8)|WAY(8)                    the node→way index of earlier
+//	                                      versions; no longer written, and
+//	                                      dropped by the next pass
 //	d|meta|classify                       the Summary as JSON: rules hash,
 //	                                      data fingerprint, counts
 //
@@ -57,19 +57,44 @@
 // relations are placed as they stood a second before the deletion. Events that
 // cannot be placed have Located false and are counted in Summary.Unlocated.
 //
+// # Node positions
+//
+// Placing a way needs the position each of its nodes had at the way version's
+// time. The node scan delivers node versions sorted by id, then version, and
+// the pass writes them in that order to a temporary file (Options.TempDir):
+// 24 bytes per version, id, unix seconds, lon and lat. After the node scan the
+// file is mapped read-only and its name removed; NodeAt is a binary search
+// that gallops out from the previous answer (the nodes of a way mostly have
+// nearby ids), then picks the last version not after the time, as the store's
+// own NodeAt does. There is no per-node store lookup and no per-node memory:
+// the kernel keeps the hot pages of the file cached like any other file. On
+// systems without mmap the file is read into memory.
+//
+// # Concurrency
+//
+// One goroutine scans each type in key order, keeps the fingerprint, the
+// first edits and the node position table, and hands runs of whole objects
+// (consecutive ids, about 512 versions) to Options.Workers goroutines. Each
+// worker has its own locator (caches of way and relation versions) and counts
+// its own events; one writer goroutine stores the batches. A version is
+// compared only with its own object's versions and placed from data that do
+// not change during the pass, and the keys are fixed by the events, so the
+// stored results are byte-identical whatever the number of workers.
+//
 // # Memory
 //
-// The pass holds one batch of events (Options.BatchSize), the per-account
-// first-edit times (one entry per account), a cache of at most 1024 way and
-// relation version lists, and the node table: positions of up to
-// Options.NodeTable node versions (24 bytes each, lowest ids first, filled by
-// the node scan), so that placing a way costs no store lookup per node. Nodes
-// beyond the table are looked up in the store, so memory stays bounded
-// whatever the size of the history.
+// The pass holds, per worker, one batch of events (Options.BatchSize), a run of
+// versions and a cache of at most 1024 way and 1024 relation version lists;
+// a few runs queued between the scan and the workers; one sorting run of the
+// node→way table while it is built (16 MiB); and the per-account first-edit
+// times (one entry per account). None of it grows with the number of nodes,
+// ways or relations; the two tables are files the kernel caches.
 //
-// Finding the way an untagged vertex belonged to needs a node→way index. It is
-// written to the store (d|W|, batch by batch, one scan over all way versions)
-// rather than held in memory, because a history's way node lists can be far
-// larger than memory; and it is written only on the first vertex move, so a
-// snapshot (no earlier versions, nothing moves) never pays for it.
+// Finding the ways an untagged vertex belonged to needs a node→way index. On
+// the first vertex move the pass builds it as a second sorted table (16 bytes
+// per distinct node and way pair) by an external sort: one scan over all way
+// versions collects the pairs 16 MiB at a time (Options.nodeWayRun), sorts
+// each run to a temporary file, and merges the runs, dropping repeats. A
+// history's way node lists can be far larger than memory, and a snapshot
+// (nothing moves) never pays for the table.
 package layers

@@ -23,7 +23,7 @@ var (
 	prefixEvent     = []byte("d|E|")
 	prefixChangeset = []byte("d|X|")
 	prefixFirstEdit = []byte("d|U|")
-	prefixNodeWays  = []byte("d|W|")
+	prefixNodeWays  = []byte("d|W|") // no longer written; dropped by a new pass
 	keyMeta         = []byte("d|meta|classify")
 )
 

@@ -6,25 +6,25 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"runtime"
+	"sync"
 	"sync/atomic"
 	"time"
 
-	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
 )
 
 // Source is the history store as the classification pass sees it;
-// *ingest.Store meets it. Reads may be made from inside ScanVersions' and
-// ScanDerived's callbacks, and PutDerived may be called from inside
-// ScanVersions' callback and from another goroutine while reads go on.
+// *ingest.Store meets it. Its methods are called from several goroutines at
+// once: reads from inside ScanVersions' and ScanDerived's callbacks and from
+// other goroutines while a scan goes on, PutDerived from another goroutine
+// while reads go on.
 type Source interface {
 	// ScanVersions calls fn for every version of type t, id ascending, then
 	// version ascending. fn may keep o.
 	ScanVersions(ctx context.Context, t osm.Type, fn func(o osm.Object) error) error
 	// ObjectVersions returns every version of one object, oldest first.
 	ObjectVersions(ctx context.Context, t osm.Type, id int64) ([]osm.Object, error)
-	// NodeAt returns the position of a node valid at time at.
-	NodeAt(ctx context.Context, id osm.NodeID, at time.Time) (orb.Point, bool, error)
 	// PutDerived writes derived records in one batch.
 	PutDerived(ctx context.Context, fill func(put func(key, value []byte) error) error) error
 	// ScanDerived calls fn for every derived record under prefix in key order;
@@ -40,17 +40,46 @@ type Source interface {
 type Options struct {
 	// Force re-classifies even when the rules and the data are unchanged.
 	Force bool
-	// BatchSize is how many events (and index entries) are written per batch;
+	// BatchSize is how many events (and first-edit records) are written per batch;
 	// 0 means 4096. Memory use of the pass is bounded by it.
 	BatchSize int
-	// NodeTable is how many node versions the pass keeps in memory (about 24
-	// bytes each) to place ways and relations without a store lookup per
-	// node; 0 means DefaultNodeTable, a negative value none. Nodes beyond it
-	// are looked up in the store.
-	NodeTable int
+	// Workers is how many goroutines classify, each taking runs of whole
+	// objects (id ranges) from the scan; 0 means runtime.GOMAXPROCS(0), 1
+	// classifies in the scanning goroutine. The stored results do not depend
+	// on it.
+	Workers int
+	// TempDir is where the pass writes its temporary tables: node positions
+	// (24 bytes per node version) and, once a classless vertex moves, the
+	// node→way table (16 bytes per distinct node and way pair, sorted in
+	// runs of 16 MiB). "" means os.TempDir(). Each file's name is removed as
+	// soon as the file is complete.
+	TempDir string
 	// Progress, when set, is called after each batch of events with the object
-	// type being scanned and the versions of that type scanned so far.
+	// type being scanned and the versions of that type scanned so far. Calls
+	// come from several goroutines, one at a time.
 	Progress func(t osm.Type, versions int64)
+
+	chunk      int // versions per run handed to a worker; 0 means defaultChunk
+	nodeWayRun int // pairs per sorted run of the node→way table; 0 means defaultNodeWayRun
+}
+
+// defaultChunk is how many versions (rounded up to whole objects) a worker
+// takes at a time: large enough that handing over costs nothing, small
+// enough that the queued runs stay small.
+const defaultChunk = 512
+
+func (o Options) workers() int {
+	if o.Workers > 0 {
+		return o.Workers
+	}
+	return runtime.GOMAXPROCS(0)
+}
+
+func (o Options) chunkSize() int {
+	if o.chunk > 0 {
+		return o.chunk
+	}
+	return defaultChunk
 }
 
 func (o Options) batch() int {
@@ -124,6 +153,10 @@ var scanTypes = [...]osm.Type{osm.TypeNode, osm.TypeWay, osm.TypeRelation}
 // summary with Skipped set, unless opts.Force. Otherwise it first drops what an
 // earlier pass wrote, so a rerun leaves no stale events; an interrupted pass
 // leaves no summary, and the next Run starts over. ctx is checked per batch.
+//
+// One goroutine scans each type in key order and hands runs of whole objects
+// to opts.Workers classifying goroutines; another writes the events. The node
+// scan also writes the node position table that places ways and relations.
 func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error) {
 	if !opts.Force {
 		old, err := Summarize(ctx, src)
@@ -149,19 +182,21 @@ func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error
 	p := &pass{
 		ctx: ctx, src: src, rules: r, opts: opts,
 		first: make(map[osm.UserID]int64),
-		sum: Summary{
-			RulesHash: r.Hash(),
-			Versions:  make(map[string]int64),
-			Events:    make(map[string]int64),
-			Families:  make(map[string]int64),
-		},
+		sum:   newSummary(r.Hash()),
 	}
-	p.loc = &storeLocator{ctx: ctx, src: src, pass: p}
-	switch {
-	case opts.NodeTable == 0:
-		p.loc.table = newNodeTable(DefaultNodeTable)
-	case opts.NodeTable > 0:
-		p.loc.table = newNodeTable(opts.NodeTable)
+	defer func() { p.nodes.close() }() // after a failure; closing twice is harmless
+	index := &nodeWayIndex{dir: opts.TempDir, runLen: opts.nodeWayRun}
+	if index.runLen <= 0 {
+		index.runLen = defaultNodeWayRun
+	}
+	defer index.close()
+	p.workers = make([]*worker, opts.workers())
+	for i := range p.workers {
+		p.workers[i] = &worker{
+			p:   p,
+			sum: newSummary(""),
+			loc: &storeLocator{src: src, index: index},
+		}
 	}
 	p.startWriter()
 	for _, t := range scanTypes {
@@ -173,8 +208,14 @@ func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error
 	if err := p.stopWriter(); err != nil {
 		return Summary{}, fmt.Errorf("classify: %w", err)
 	}
+	if err := p.nodes.close(); err != nil {
+		return Summary{}, fmt.Errorf("classify: %w", err)
+	}
 	if err := p.writeFirstEdits(); err != nil {
 		return Summary{}, err
+	}
+	for _, w := range p.workers {
+		p.sum.add(w.sum)
 	}
 	p.sum.Fingerprint = p.fp.String()
 	p.sum.Users = int64(len(p.first))
@@ -189,20 +230,46 @@ func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error
 	return p.sum, nil
 }
 
+func newSummary(rulesHash string) Summary {
+	return Summary{
+		RulesHash: rulesHash,
+		Versions:  make(map[string]int64),
+		Events:    make(map[string]int64),
+		Families:  make(map[string]int64),
+	}
+}
+
+// add adds the event counts of a worker's partial summary to s.
+func (s *Summary) add(w Summary) {
+	for k, n := range w.Events {
+		s.Events[k] += n
+	}
+	for k, n := range w.Families {
+		s.Families[k] += n
+	}
+	s.Unlocated += w.Unlocated
+	s.WaysMissingNodes += w.WaysMissingNodes
+	s.ProvenanceOnly += w.ProvenanceOnly
+}
+
 // pass is the state of one Run.
 type pass struct {
-	ctx   context.Context
-	src   Source
-	rules Rules
-	opts  Options
-	loc   *storeLocator
-	fp    fingerprint
-	first map[osm.UserID]int64 // earliest version per account, unix seconds
-	sum   Summary
-	buf   []Event // batch being filled
+	ctx     context.Context
+	src     Source
+	rules   Rules
+	opts    Options
+	workers []*worker
+	nodes   *nodePositions // written by the node scan
+	fp      fingerprint
+	first   map[osm.UserID]int64 // earliest version per account, unix seconds
+	sum     Summary
+
+	scanned  atomic.Int64 // versions of the current type handed to workers
+	progress sync.Mutex   // serialises opts.Progress
 
 	// The writer goroutine writes full batches while the scan goes on; at
-	// most three batches exist at once (filling, queued, being written).
+	// most workers+2 batches exist at once (one filling per worker, one
+	// queued, one being written) plus the free ones.
 	queue chan []Event
 	free  chan []Event
 	done  chan error
@@ -211,55 +278,149 @@ type pass struct {
 	vbuf  []byte
 }
 
+// worker classifies runs of versions; each has its own locator and partial
+// summary, added up when the pass ends.
+type worker struct {
+	p   *pass
+	loc *storeLocator
+	sum Summary // event counts only
+	buf []Event // batch being filled
+}
+
+// scan reads every version of type t, keeps the fingerprint, first edits and
+// (for nodes) the node position table, and hands runs of whole objects to the
+// workers. The runs cover id ranges in order, and a version is compared only
+// with the versions of its own object, so the events do not depend on how the
+// runs are shared out.
 func (p *pass) scan(t osm.Type) error {
-	var prev osm.Object
-	var n int64
-	err := p.src.ScanVersions(p.ctx, t, func(o osm.Object) error {
-		if prev != nil && prev.ObjectID().Ref() != o.ObjectID().Ref() {
-			prev = nil
+	ctx, cancel := context.WithCancelCause(p.ctx)
+	defer cancel(nil)
+	var table *nodeFileWriter
+	if t == osm.TypeNode {
+		var err error
+		if table, err = newNodeFileWriter(p.opts.TempDir); err != nil {
+			return fmt.Errorf("classify: %w", err)
 		}
-		p.fp.add(o)
-		if n++; n%4096 == 0 {
-			if err := p.ctx.Err(); err != nil {
-				return err
+	}
+	for _, w := range p.workers {
+		w.loc.ctx = ctx
+		w.loc.nodes = p.nodes
+	}
+	p.scanned.Store(0)
+
+	// With one worker the scanning goroutine classifies; otherwise runs go
+	// through a channel to the worker goroutines.
+	var work chan []osm.Object
+	var wg sync.WaitGroup
+	dispatch := func(run []osm.Object) error { return p.workers[0].classify(ctx, t, run) }
+	if len(p.workers) > 1 {
+		work = make(chan []osm.Object, len(p.workers))
+		for _, w := range p.workers {
+			wg.Go(func() {
+				failed := false
+				for run := range work {
+					if failed {
+						continue // keep draining so the scan never blocks
+					}
+					if err := w.classify(ctx, t, run); err != nil {
+						cancel(err)
+						failed = true
+					}
+				}
+				if !failed {
+					if err := w.flush(ctx, t); err != nil {
+						cancel(err)
+					}
+				}
+			})
+		}
+		dispatch = func(run []osm.Object) error {
+			select {
+			case work <- run:
+				return nil
+			case <-ctx.Done():
+				return context.Cause(ctx)
 			}
 		}
-		if nd, ok := o.(*osm.Node); ok && p.loc.table != nil {
-			p.loc.table.add(nd)
+	}
+
+	size := p.opts.chunkSize()
+	run := make([]osm.Object, 0, size)
+	var n, lastID int64
+	err := p.src.ScanVersions(ctx, t, func(o osm.Object) error {
+		p.fp.add(o)
+		n++
+		if table != nil {
+			if err := table.add(o.(*osm.Node)); err != nil {
+				return err
+			}
 		}
 		uid, ts := editor(o)
 		if s, ok := p.first[uid]; !ok || ts.Unix() < s {
 			p.first[uid] = ts.Unix()
 		}
-		misses := p.loc.misses
-		evs := Classify(prev, o, p.rules, p.loc)
-		if p.loc.err != nil {
-			return p.loc.err
-		}
-		if t == osm.TypeWay && p.loc.misses > misses {
-			p.sum.WaysMissingNodes++
-		}
-		p.buf = append(p.buf, evs...)
-		prev = o
-		if len(p.buf) >= p.opts.batch() {
-			if err := p.flush(); err != nil {
+		id := o.ObjectID().Ref()
+		if len(run) >= size && id != lastID {
+			p.scanned.Store(n - 1)
+			if err := dispatch(run); err != nil {
 				return err
 			}
-			if p.opts.Progress != nil {
-				p.opts.Progress(t, n)
-			}
+			run = make([]osm.Object, 0, size)
 		}
+		run = append(run, o)
+		lastID = id
 		return nil
 	})
-	if err == nil {
-		err = p.flush()
+	if err == nil && len(run) > 0 {
+		p.scanned.Store(n)
+		err = dispatch(run)
 	}
-	if t == osm.TypeNode && p.loc.table != nil {
-		p.loc.table.done()
+	if work != nil {
+		close(work)
+		wg.Wait()
+	} else if err == nil {
+		err = p.workers[0].flush(ctx, t)
+	}
+	if cause := context.Cause(ctx); cause != nil && (err == nil || errors.Is(err, context.Canceled)) {
+		err = cause
+	}
+	if table != nil {
+		if err == nil {
+			p.nodes, err = table.finish()
+		} else {
+			table.abort()
+		}
 	}
 	p.sum.Versions[string(t)] = n
 	if err != nil {
 		return fmt.Errorf("classify: %s versions: %w", t, err)
+	}
+	return nil
+}
+
+// classify classifies one run of versions: whole objects, id ascending, each
+// object's versions in order.
+func (w *worker) classify(ctx context.Context, t osm.Type, run []osm.Object) error {
+	var prev osm.Object
+	for _, o := range run {
+		if prev != nil && prev.ObjectID().Ref() != o.ObjectID().Ref() {
+			prev = nil
+		}
+		misses := w.loc.misses
+		evs := Classify(prev, o, w.p.rules, w.loc)
+		if w.loc.err != nil {
+			return w.loc.err
+		}
+		if t == osm.TypeWay && w.loc.misses > misses {
+			w.sum.WaysMissingNodes++
+		}
+		w.buf = append(w.buf, evs...)
+		prev = o
+		if len(w.buf) >= w.p.opts.batch() {
+			if err := w.flush(ctx, t); err != nil {
+				return err
+			}
+		}
 	}
 	return nil
 }
@@ -276,43 +437,54 @@ func editor(o osm.Object) (osm.UserID, time.Time) {
 	return 0, time.Time{}
 }
 
-// flush hands the buffered events to the writer and counts them into the
-// summary. It returns the writer's first error, if any.
-func (p *pass) flush() error {
-	if err := p.ctx.Err(); err != nil {
-		return err
+// flush hands the buffered events to the writer, counts them into the
+// worker's summary and reports progress. It returns the writer's first error,
+// if any.
+func (w *worker) flush(ctx context.Context, t osm.Type) error {
+	p := w.p
+	if err := ctx.Err(); err != nil {
+		return context.Cause(ctx)
 	}
 	if e := p.werr.Load(); e != nil {
 		return *e
 	}
-	if len(p.buf) == 0 {
+	if len(w.buf) == 0 {
 		return nil
 	}
-	for i := range p.buf {
-		e := &p.buf[i]
-		p.sum.Events[e.Layer.String()]++
+	for i := range w.buf {
+		e := &w.buf[i]
+		w.sum.Events[e.Layer.String()]++
 		if !e.Located {
-			p.sum.Unlocated++
+			w.sum.Unlocated++
 		}
 		if e.Layer == Bookkeeping {
-			p.sum.ProvenanceOnly++
+			w.sum.ProvenanceOnly++
 		}
 		if e.Layer == Attribute || e.Layer == Bookkeeping {
 			for _, k := range e.Keys {
-				p.sum.Families[k.Family]++
+				w.sum.Families[k.Family]++
 			}
 		}
 	}
-	p.queue <- p.buf
-	p.buf = <-p.free
+	p.queue <- w.buf
+	select {
+	case b := <-p.free:
+		w.buf = b
+	default:
+		w.buf = nil
+	}
+	if p.opts.Progress != nil {
+		p.progress.Lock()
+		p.opts.Progress(t, p.scanned.Load())
+		p.progress.Unlock()
+	}
 	return nil
 }
 
 func (p *pass) startWriter() {
 	p.queue = make(chan []Event, 1)
-	p.free = make(chan []Event, 2)
+	p.free = make(chan []Event, len(p.workers)+2)
 	p.done = make(chan error, 1)
-	p.free <- nil
 	queue := p.queue
 	go func() {
 		var err error
@@ -323,7 +495,10 @@ func (p *pass) startWriter() {
 				}
 			}
 			clear(b)
-			p.free <- b[:0]
+			select {
+			case p.free <- b[:0]:
+			default:
+			}
 		}
 		p.done <- err
 	}()
@@ -401,7 +576,8 @@ func (p *pass) writeFirstEdits() error {
 	return nil
 }
 
-// ownPrefixes are the derived keys a pass writes; the summary comes first so
+// ownPrefixes are the derived keys a pass writes, and the node→way index that
+// earlier versions of the pass kept in the store; the summary comes first so
 // that an interrupted drop leaves the store "not classified".
 var ownPrefixes = [...][]byte{keyMeta, prefixEvent, prefixChangeset, prefixFirstEdit, prefixNodeWays}
 

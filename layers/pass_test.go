@@ -3,6 +3,10 @@ package layers
 import (
 	"context"
 	"errors"
+	"fmt"
+	"maps"
+	"path/filepath"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -11,57 +15,74 @@ import (
 	"github.com/paulmach/osm"
 )
 
-// TestNodeTableMatchesStore compares the in-memory node table with the
+// TestNodePositionsMatchStore compares the node position table with the
 // source's NodeAt for every node of a real history (osm module testdata
 // way_6394949.osm and way_230391153.osm) at every timestamp in the file and a
-// second either side, with table limits that cover all, some and none of it.
-func TestNodeTableMatchesStore(t *testing.T) {
+// second either side, searching from no hint, from the previous answer (ids
+// ascending, then descending, so the search gallops both ways) and from a
+// hint at either end. The table's file must be gone afterwards.
+func TestNodePositionsMatchStore(t *testing.T) {
 	for _, file := range []string{"annotate/testdata/way_6394949.osm", "annotate/testdata/way_230391153.osm"} {
-		objs := readOSMXML(t, osmTestdata(t, file))
-		src := newMemSource(t, objs...)
-		var times []time.Time
-		ids := map[osm.NodeID]bool{}
-		for _, o := range objs {
-			if n, ok := o.(*osm.Node); ok {
-				times = append(times, n.Timestamp, n.Timestamp.Add(-time.Second), n.Timestamp.Add(time.Second))
-				ids[n.ID] = true
+		t.Run(filepath.Base(file), func(t *testing.T) {
+			objs := readOSMXML(t, osmTestdata(t, file))
+			src := newMemSource(t, objs...)
+			var times []time.Time
+			idSet := map[osm.NodeID]bool{1: true, 1 << 40: true} // absent, below and above every id
+			for _, o := range objs {
+				if n, ok := o.(*osm.Node); ok {
+					times = append(times, n.Timestamp, n.Timestamp.Add(-time.Second), n.Timestamp.Add(time.Second))
+					idSet[n.ID] = true
+				}
 			}
-		}
-		ids[1] = true // absent
-		for _, limit := range []int{1 << 20, 7, 1} {
-			tab := newNodeTable(limit)
-			tab.chunk = 2 // versions of one node span chunks
-			_ = src.ScanVersions(context.Background(), osm.TypeNode, func(o osm.Object) error {
-				tab.add(o.(*osm.Node))
-				return nil
-			})
-			tab.done()
-			answered := 0
-			for id := range ids {
-				for _, at := range times {
-					p, ok, known := tab.at(id, at)
-					if !known {
-						continue
-					}
-					answered++
-					wp, wok, _ := src.NodeAt(context.Background(), id, at)
-					if ok != wok || ok && (abs(p[0]-wp[0]) > 1e-9 || abs(p[1]-wp[1]) > 1e-9) {
-						t.Errorf("%s limit %d: node %d at %s: table %v %v, store %v %v", file, limit, id, at, p, ok, wp, wok)
+			ids := slices.Sorted(maps.Keys(idSet))
+			dir := t.TempDir()
+			tab := nodeTableOf(t, src, dir)
+			defer tab.close()
+			if left, _ := filepath.Glob(filepath.Join(dir, "*")); len(left) != 0 {
+				t.Errorf("files left behind: %q", left)
+			}
+			check := func(order string, ids []osm.NodeID, hint func(prev int) int) {
+				t.Helper()
+				h := -1
+				for _, id := range ids {
+					for _, at := range times {
+						h = hint(h)
+						p, ok := tab.at(id, at, &h)
+						wp, wok, _ := src.NodeAt(context.Background(), id, at)
+						if ok != wok || p != wp {
+							t.Fatalf("%s: node %d at %s: table %v %v, store %v %v", order, id, at, p, ok, wp, wok)
+						}
 					}
 				}
 			}
-			if limit == 1<<20 && answered != len(ids)*len(times) {
-				t.Errorf("%s: table answered %d of %d lookups", file, answered, len(ids)*len(times))
-			}
-		}
+			check("no hint", ids, func(int) int { return -1 })
+			check("ascending", ids, func(prev int) int { return prev })
+			rev := slices.Clone(ids)
+			slices.Reverse(rev)
+			check("descending", rev, func(prev int) int { return prev })
+			check("hint at the start", ids, func(int) int { return 0 })
+			check("hint at the end", ids, func(int) int { return tab.n - 1 })
+		})
 	}
 }
 
-func abs(x float64) float64 {
-	if x < 0 {
-		return -x
+// nodeTableOf writes the node position table of src's nodes in dir.
+func nodeTableOf(tb testing.TB, src Source, dir string) *nodePositions {
+	tb.Helper()
+	w, err := newNodeFileWriter(dir)
+	if err != nil {
+		tb.Fatal(err)
 	}
-	return x
+	err = src.ScanVersions(context.Background(), osm.TypeNode, func(o osm.Object) error { return w.add(o.(*osm.Node)) })
+	if err != nil {
+		w.abort()
+		tb.Fatal(err)
+	}
+	tab, err := w.finish()
+	if err != nil {
+		tb.Fatal(err)
+	}
+	return tab
 }
 
 // TestRelationHistories runs the pass over two real relation histories with
@@ -270,4 +291,49 @@ func sameSet(a, b []string) bool {
 		}
 	}
 	return true
+}
+
+// TestNodeWayTable checks the node→way table against the pairs read directly
+// from every way version of a real history (osm module testdata
+// relation_2714790.osm), sorted in one run and in runs of 7 and 1000 pairs, looked up with and without a running hint. No temporary file may
+// be left behind.
+func TestNodeWayTable(t *testing.T) {
+	ctx := context.Background()
+	src := newMemSource(t, readOSMXML(t, osmTestdata(t, "annotate/testdata/relation_2714790.osm"))...)
+	want := map[osm.NodeID][]osm.WayID{}
+	for _, o := range src.objs[osm.TypeWay] {
+		w := o.(*osm.Way)
+		for _, wn := range w.Nodes {
+			if !slices.Contains(want[wn.ID], w.ID) {
+				want[wn.ID] = append(want[wn.ID], w.ID)
+			}
+		}
+	}
+	ids := slices.Sorted(maps.Keys(want))
+	ids = append([]osm.NodeID{-5, 0}, append(ids, ids[len(ids)-1]+1)...) // absent ids at both ends
+	for _, runLen := range []int{7, 1000, 1 << 20} {
+		t.Run(fmt.Sprintf("runs of %d", runLen), func(t *testing.T) {
+			dir := t.TempDir()
+			tab, err := buildNodeWays(ctx, src, dir, runLen)
+			if err != nil {
+				t.Fatal(err)
+			}
+			defer tab.close()
+			if left, _ := filepath.Glob(filepath.Join(dir, "*")); len(left) != 0 {
+				t.Errorf("files left behind: %q", left)
+			}
+			hint := -1
+			for _, id := range ids {
+				w := slices.Clone(want[id])
+				slices.Sort(w)
+				for _, h := range []*int{&hint, new(int)} {
+					var got []osm.WayID
+					tab.ways(id, h, func(wid osm.WayID) { got = append(got, wid) })
+					if !slices.Equal(got, w) {
+						t.Fatalf("node %d: ways %v, want %v", id, got, w)
+					}
+				}
+			}
+		})
+	}
 }

@@ -55,8 +55,9 @@ func eventStrings(tb testing.TB, src DerivedReader) []string {
 }
 
 // TestStoreMatchesMemory runs the pass on real histories (osm module
-// testdata) ingested into the Badger store, with and without the in-memory
-// node table, and on the in-memory fake; all three must store the same events.
+// testdata) ingested into the Badger store, with one, two and three
+// classifying goroutines, and on the in-memory fake; all must store the same
+// events.
 func TestStoreMatchesMemory(t *testing.T) {
 	for _, file := range []string{"annotate/testdata/way_6394949.osm", "annotate/testdata/relation_4017808.osm"} {
 		t.Run(filepath.Base(file), func(t *testing.T) {
@@ -64,24 +65,24 @@ func TestStoreMatchesMemory(t *testing.T) {
 			mem := newMemSource(t, readOSMXML(t, path)...)
 			memSum := runPass(t, mem)
 			want := eventStrings(t, mem)
-			for _, table := range []int{0, -1, 5} {
+			for _, workers := range []int{1, 2, 3} {
 				st := ingested(t, "", path)
-				sum, err := Run(context.Background(), st, rules.Default(), Options{NodeTable: table, BatchSize: 100})
+				sum, err := Run(context.Background(), st, rules.Default(), Options{Workers: workers, BatchSize: 100, chunk: 5})
 				if err != nil {
 					t.Fatal(err)
 				}
 				got := eventStrings(t, st)
 				if len(got) != len(want) {
-					t.Fatalf("table %d: store has %d events, fake %d", table, len(got), len(want))
+					t.Fatalf("workers %d: store has %d events, fake %d", workers, len(got), len(want))
 				}
 				for i := range want {
 					if got[i] != want[i] {
-						t.Errorf("table %d: event %d\nstore %s\n fake %s", table, i, got[i], want[i])
+						t.Errorf("workers %d: event %d\nstore %s\n fake %s", workers, i, got[i], want[i])
 						break
 					}
 				}
 				if sum.Fingerprint != memSum.Fingerprint || sum.WaysMissingNodes != memSum.WaysMissingNodes {
-					t.Errorf("table %d: summary %+v, fake %+v", table, sum, memSum)
+					t.Errorf("workers %d: summary %+v, fake %+v", workers, sum, memSum)
 				}
 				stored, err := Summarize(context.Background(), st)
 				if err != nil || stored.Fingerprint != sum.Fingerprint || stored.Events["geometry"] != sum.Events["geometry"] {

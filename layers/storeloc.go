@@ -2,7 +2,6 @@ package layers
 
 import (
 	"context"
-	"encoding/binary"
 	"fmt"
 	"slices"
 	"time"
@@ -14,20 +13,25 @@ import (
 // versionCacheSize bounds how many objects' version lists storeLocator keeps.
 const versionCacheSize = 1024
 
-// storeLocator is the Locator the pass hands to Classify: it reads a Source
-// under the pass's context and keeps the first error, which the pass checks
-// after each Classify call.
+// storeLocator is the Locator one classifying goroutine hands to Classify:
+// node positions from the pass's node position table, way and relation
+// versions read from the Source (the last versionCacheSize objects cached),
+// the node→way table shared by the pass. It keeps the first error, which the
+// goroutine checks after each Classify call. Not safe for concurrent use: each
+// goroutine has its own.
 type storeLocator struct {
 	ctx    context.Context
 	src    Source
-	pass   *pass
 	err    error
 	misses int64 // NodeAt calls that found no position
 
-	table   *nodeTable // nil when disabled
-	indexed bool       // d|W| node→way index written
-	ways    map[osm.WayID][]osm.Object
-	rels    map[osm.RelationID][]osm.Object
+	nodes   *nodePositions // nil until the node scan is over
+	hint    int            // where the last node search ended
+	index   *nodeWayIndex
+	wayHint int // where the last node→way search ended
+
+	ways map[osm.WayID][]osm.Object
+	rels map[osm.RelationID][]osm.Object
 }
 
 func (l *storeLocator) fail(err error) {
@@ -40,19 +44,7 @@ func (l *storeLocator) NodeAt(id osm.NodeID, at time.Time) (orb.Point, bool) {
 	if l.err != nil {
 		return orb.Point{}, false
 	}
-	if l.table != nil {
-		if p, ok, known := l.table.at(id, at); known {
-			if !ok {
-				l.misses++
-			}
-			return p, ok
-		}
-	}
-	p, ok, err := l.src.NodeAt(l.ctx, id, at)
-	if err != nil {
-		l.fail(fmt.Errorf("position of node/%d: %w", id, err))
-		return orb.Point{}, false
-	}
+	p, ok := l.nodes.at(id, at, &l.hint)
 	if !ok {
 		l.misses++
 	}
@@ -109,90 +101,27 @@ func (l *storeLocator) RelationAt(id osm.RelationID, at time.Time) *osm.Relation
 	return r
 }
 
-// WaysHolding answers from the d|W|node|way index, which it writes on first
-// use with one scan over every way version. A history where no classless node
-// ever moves (a snapshot) never pays for the index.
+// WaysHolding answers from the node→way table, which the pass builds on
+// first use with one scan over every way version. A history where no
+// classless node ever moves (a snapshot) never pays for it.
 func (l *storeLocator) WaysHolding(id osm.NodeID, at time.Time) []*osm.Way {
 	if l.err != nil {
 		return nil
 	}
-	if !l.indexed {
-		if err := buildNodeWays(l.ctx, l.src, l.pass.opts.batch()); err != nil {
-			l.fail(err)
-			return nil
-		}
-		l.indexed = true
-	}
-	prefix := binary.BigEndian.AppendUint64(append([]byte(nil), prefixNodeWays...), uint64(id))
-	var ids []osm.WayID
-	err := l.src.ScanDerived(l.ctx, prefix, func(k, _ []byte) error {
-		if len(k) != len(prefix)+8 {
-			return fmt.Errorf("%w: node-way index key of %d bytes", ErrCorrupt, len(k))
-		}
-		ids = append(ids, osm.WayID(binary.BigEndian.Uint64(k[len(prefix):])))
-		return nil
-	})
+	tab, err := l.index.get(l.ctx, l.src)
 	if err != nil {
 		l.fail(fmt.Errorf("ways holding node/%d: %w", id, err))
 		return nil
 	}
 	var out []*osm.Way
-	for _, wid := range ids {
+	tab.ways(id, &l.wayHint, func(wid osm.WayID) {
 		w := l.WayAt(wid, at)
 		if w == nil || !w.Visible {
-			continue
+			return
 		}
 		if slices.ContainsFunc(w.Nodes, func(wn osm.WayNode) bool { return wn.ID == id }) {
 			out = append(out, w)
 		}
-	}
-	return out
-}
-
-// buildNodeWays writes d|W|node|way for every node any way version ever held,
-// batch by batch, so memory stays bounded by the batch size.
-func buildNodeWays(ctx context.Context, src Source, batch int) error {
-	keys := make([][16]byte, 0, batch)
-	write := func() error {
-		if err := ctx.Err(); err != nil {
-			return err
-		}
-		err := src.PutDerived(ctx, func(put func(k, v []byte) error) error {
-			k := make([]byte, 0, len(prefixNodeWays)+16)
-			for _, nw := range keys {
-				k = append(append(k[:0], prefixNodeWays...), nw[:]...)
-				if err := put(k, nil); err != nil {
-					return err
-				}
-			}
-			return nil
-		})
-		keys = keys[:0]
-		return err
-	}
-	err := src.ScanVersions(ctx, osm.TypeWay, func(o osm.Object) error {
-		w, ok := o.(*osm.Way)
-		if !ok {
-			return nil
-		}
-		for _, wn := range w.Nodes {
-			var nw [16]byte
-			binary.BigEndian.PutUint64(nw[:8], uint64(wn.ID))
-			binary.BigEndian.PutUint64(nw[8:], uint64(w.ID))
-			keys = append(keys, nw)
-			if len(keys) == cap(keys) {
-				if err := write(); err != nil {
-					return err
-				}
-			}
-		}
-		return nil
 	})
-	if err == nil {
-		err = write()
-	}
-	if err != nil {
-		return fmt.Errorf("node-way index: %w", err)
-	}
-	return nil
+	return out
 }

@@ -1,0 +1,133 @@
+package layers
+
+import (
+	"bufio"
+	"encoding/binary"
+	"errors"
+	"fmt"
+	"os"
+	"sort"
+)
+
+// A sorted table is a temporary file of fixed-size little-endian records
+// sorted by the int64 key in each record's first 8 bytes. The pass writes its
+// node position and node→way tables this way and reads them through a
+// read-only memory mapping, so that a lookup is a binary search and the
+// process holds no per-record memory.
+
+// tableWriter writes the records of a sorted table in key order.
+type tableWriter struct {
+	f      *os.File
+	w      *bufio.Writer
+	recLen int
+	n      int
+	what   string // for errors
+}
+
+// newTableWriter creates the table's file in dir ("" means os.TempDir()).
+func newTableWriter(dir, pattern, what string, recLen int) (*tableWriter, error) {
+	f, err := os.CreateTemp(dir, pattern)
+	if err != nil {
+		return nil, fmt.Errorf("%s: %w", what, err)
+	}
+	return &tableWriter{f: f, w: bufio.NewWriterSize(f, 1<<20), recLen: recLen, what: what}, nil
+}
+
+// write appends one record of recLen bytes.
+func (w *tableWriter) write(rec []byte) error {
+	if _, err := w.w.Write(rec); err != nil {
+		return fmt.Errorf("%s %s: %w", w.what, w.f.Name(), err)
+	}
+	w.n++
+	return nil
+}
+
+// finish flushes the file, maps it for reading and removes its name, so that
+// nothing is left behind once the table is closed.
+func (w *tableWriter) finish() (*sortedTable, error) {
+	name := w.f.Name()
+	err := w.w.Flush()
+	var data []byte
+	var unmap func() error
+	if err == nil {
+		data, unmap, err = mapFile(w.f, int64(w.n)*int64(w.recLen))
+	}
+	err = errors.Join(err, w.f.Close(), os.Remove(name))
+	if err != nil {
+		if unmap != nil {
+			err = errors.Join(err, unmap())
+		}
+		return nil, fmt.Errorf("%s %s: %w", w.what, name, err)
+	}
+	return &sortedTable{data: data, n: w.n, recLen: w.recLen, unmap: unmap}, nil
+}
+
+// abort closes and removes the file after a failure.
+func (w *tableWriter) abort() {
+	w.f.Close()
+	os.Remove(w.f.Name())
+}
+
+// sortedTable is a finished table, read-only and safe for concurrent use.
+type sortedTable struct {
+	data   []byte
+	n      int
+	recLen int
+	unmap  func() error
+}
+
+// rec returns record i.
+func (t *sortedTable) rec(i int) []byte { return t.data[i*t.recLen : (i+1)*t.recLen] }
+
+// key returns the key of record i.
+func (t *sortedTable) key(i int) int64 {
+	return int64(binary.LittleEndian.Uint64(t.data[i*t.recLen:]))
+}
+
+// search returns the index of the first record with a key not below want. It
+// gallops out from hint, the index a previous search returned, since
+// successive lookups mostly ask for nearby keys (the nodes of one way, the
+// vertices of one area); a hint out of range searches everything.
+func (t *sortedTable) search(want int64, hint int) int {
+	lo, hi := 0, t.n // the answer lies in [lo, hi]
+	if hint >= 0 && hint < t.n {
+		if t.key(hint) < want {
+			lo = hint + 1
+			for step := 1; ; step *= 2 {
+				j := hint + step
+				if j >= t.n {
+					break
+				}
+				if t.key(j) >= want {
+					hi = j
+					break
+				}
+				lo = j + 1
+			}
+		} else {
+			hi = hint
+			for step := 1; ; step *= 2 {
+				j := hint - step
+				if j < 0 {
+					break
+				}
+				if t.key(j) < want {
+					lo = j + 1
+					break
+				}
+				hi = j
+			}
+		}
+	}
+	return lo + sort.Search(hi-lo, func(i int) bool { return t.key(lo+i) >= want })
+}
+
+// close unmaps the table; closing a nil or closed table does nothing.
+func (t *sortedTable) close() error {
+	if t == nil || t.unmap == nil {
+		return nil
+	}
+	err := t.unmap()
+	t.data, t.n, t.unmap = nil, 0, nil
+	return err
+}
