@@ -1,6 +1,15 @@
 package did
 
-import "fmt"
+import (
+	"errors"
+	"fmt"
+)
+
+// ErrSeparated marks an outcome whose Poisson fit has no finite estimate:
+// the import areas' counts are all zero on one side of the import
+// (separation; Correia, Guimarães & Zylkin 2021 on existence of Poisson
+// estimates).
+var ErrSeparated = errors.New("did: Poisson layer separated")
 
 // The estimators' options and results: what Estimate takes and returns, and
 // what every estimator file shares.
@@ -17,6 +26,12 @@ const (
 	InferenceAuto      = "auto"      // bootstrap when treated clusters < FewTreatedClusters, else analytic
 	InferenceAnalytic  = "analytic"  // always analytic
 	InferenceBootstrap = "bootstrap" // always bootstrap
+)
+
+// Scales of EventStudyRow.
+const (
+	ScaleRelative = "relative" // exp(b) − 1
+	ScaleCount    = "count"    // events per unit-month
 )
 
 // Window is the event window around each cohort's first treated month: Pre
@@ -72,7 +87,11 @@ func (o Options) validate() error {
 // when RelativeEffect is set, otherwise of ATT. ATT is in outcome units
 // (events per unit-month); RelativeEffect is ATT over the treated units'
 // counterfactual mean (post-period treated mean − ATT); for ppml-twfe it is
-// exp(b) − 1. Null fields were not computed (see Note).
+// exp(b) − 1 and SE is the cluster-robust standard error of b (log points).
+// NoInterval is true when the treated clusters are too few for any interval
+// to be reliable: CI95 then collapses to the estimate and PValue is the
+// randomization test's (Method says which). Null fields were not computed
+// (see Note).
 type Effect struct {
 	Layer          string     `json:"layer"`
 	Estimator      string     `json:"estimator"`
@@ -85,15 +104,19 @@ type Effect struct {
 	TreatedUnits   int        `json:"treated_units"`
 	ControlUnits   int        `json:"control_units"`
 	Method         string     `json:"method"`
+	NoInterval     bool       `json:"no_interval"`
 	Note           string     `json:"note"`
 }
 
-// EventStudyRow is one event-time coefficient (ATT in outcome units; the
-// reference period −1 of twfe-linear is 0 by construction and listed with
-// zero interval).
+// EventStudyRow is one event-time coefficient. Scale says what Estimate and
+// CI95 are: ScaleRelative (ppml-twfe: exp(b_e) − 1, SE of b_e in log points)
+// or ScaleCount (ATT in outcome units). The reference period −1 is 0 by
+// construction and listed with zero interval; a row whose CI95 equals its
+// estimate has no band (too few treated clusters).
 type EventStudyRow struct {
 	Layer     string     `json:"layer"`
 	Estimator string     `json:"estimator"`
+	Scale     string     `json:"scale"`
 	EventTime int        `json:"event_time"`
 	Estimate  float64    `json:"estimate"`
 	CI95      [2]float64 `json:"ci95"`
@@ -134,7 +157,8 @@ type Estimates struct {
 	EventStudy []EventStudyRow `json:"event_study"`
 	ByCohort   []CohortRow     `json:"by_cohort"`
 	Placebo    []PlaceboRow    `json:"placebo"`
-	Warnings   []string        `json:"warnings"`
+	Warnings   []string        `json:"warnings"` // problems with the headline estimator
+	Notes      []string        `json:"notes"`    // information: robustness checks' own tests and failures
 	Cautions   []string        `json:"cautions"`
 }
 
