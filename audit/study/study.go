@@ -132,6 +132,12 @@ type Study struct {
 	Notes     []string  // clipping, dropped units and similar, in plain words
 }
 
+// GrowthPrefix starts the balance rows of pre-import growth per layer: the
+// log ratio of the second half of the pre-import months' edits to the first
+// half's. With unit fixed effects level differences are absorbed; growth
+// differences are what threaten the comparison.
+const GrowthPrefix = "pre-import growth "
+
 // ErrStudy is the sentinel under errors that make a study impossible.
 var ErrStudy = errors.New("study: cannot build study")
 
@@ -491,6 +497,17 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	for _, c := range classes {
 		diagNames = append(diagNames, "log1p features "+c)
 	}
+	for _, l := range layers.Layers {
+		diagNames = append(diagNames, GrowthPrefix+l.String())
+	}
+	// growth is the log ratio of a layer's edits in the second half of the
+	// pre-import months to the first half (+0.5 each): what unit fixed
+	// effects do not absorb and parallel trends need alike.
+	growth := func(name string, u int) float64 {
+		pre := clip(b.y[name], u)[:epMonth]
+		h := len(pre) / 2
+		return math.Log((mean(pre[h:])+0.5)/(mean(pre[:h])+0.5))
+	}
 	diag := func(u int) []float64 {
 		row := cov(u)
 		for _, l := range layers.Layers {
@@ -498,6 +515,9 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 		}
 		for _, c := range classes {
 			row = append(row, math.Log1p(float64(b.classLive[u][c])))
+		}
+		for _, l := range layers.Layers {
+			row = append(row, growth(l.String(), u))
 		}
 		return row
 	}
