@@ -67,6 +67,32 @@
 // eligible units: exact by enumeration when the reassignments are few,
 // Monte Carlo with the +1 correction otherwise.
 //
+// # Poisson and other M-estimators
+//
+// ScoreBootstrap tests one linear restriction a'β = b0 of a Poisson or other
+// M-estimator fitted on clustered data by the wild score bootstrap with the
+// null imposed (Kline & Santos 2012, Journal of Econometric Methods 1(1)). A
+// ScoreFitter callback refits the model under the restriction; the cluster
+// scores at the restricted estimate are perturbed with Rademacher or Webb
+// weights (every weight vector when there are at most Draws of them) and the
+// p-value is the share of bootstrap score statistics at least as large as the
+// observed one. The interval inverts the same test over b0 with the same
+// draws, so p-values and intervals always agree; an end that nothing within
+// MaxSE standard errors rejects is infinite, as happens with very few treated
+// clusters. The small-sample factor G/(G−1)·(N−1)/(N−K), or G/(G−1) without N
+// and K, scales the statistic only.
+//
+// # Sensitivity to parallel trends
+//
+// RelativeMagnitudes and RMBreakdownValue implement the relative-magnitudes
+// restriction Δ^RM(M̄) of Rambachan & Roth (2023, Review of Economic Studies,
+// "A more credible approach to parallel trends") on an event study with a
+// normalised reference period: the identified set by linear programming, the
+// robust confidence set as the union over the restriction's polyhedral cones
+// of the sets kept by the conditional–least-favourable hybrid test of
+// Andrews, Roth & Pakes (2023), and the breakdown value M̄*, the largest M̄ at
+// which that set excludes zero, in plain words by RMBreakdown.Sentence.
+//
 // # Multiplicity
 //
 // Holm gives Holm's (1979) step-down adjusted p-values (R's

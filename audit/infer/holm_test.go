@@ -4,16 +4,18 @@ import (
 	"errors"
 	"math"
 	"testing"
+
+	"github.com/loadwake/loadwake/audit/internal/reftest"
 )
 
 // TestHolmAgainstR checks Holm's adjustment against R 4.2.2
 // p.adjust(method = "holm") (testdata/holm_ref.csv).
 func TestHolmAgainstR(t *testing.T) {
-	rows := wcrReadCSV(t, "holm_ref.csv")
+	rows := wcrRows(t, "holm_ref.csv")
 	p := make([]float64, len(rows))
 	want := make([]float64, len(rows))
 	for i, r := range rows {
-		p[i], want[i] = wcrFloat(t, r[0]), wcrFloat(t, r[1])
+		p[i], want[i] = reftest.Atof(t, r[0]), reftest.Atof(t, r[1])
 	}
 	got, err := Holm(p)
 	if err != nil {

@@ -1,47 +1,15 @@
 package infer
 
 import (
-	"encoding/csv"
 	"errors"
 	"math"
-	"os"
 	"path/filepath"
-	"strconv"
 	"strings"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/internal/reftest"
 	"gonum.org/v1/gonum/mat"
 )
-
-// wcrReadCSV reads a committed CSV fixture into rows of trimmed fields, the
-// header dropped.
-func wcrReadCSV(tb testing.TB, name string) [][]string {
-	tb.Helper()
-	f, err := os.Open(filepath.Join("testdata", name))
-	if err != nil {
-		tb.Fatal(err)
-	}
-	defer f.Close()
-	recs, err := csv.NewReader(f).ReadAll()
-	if err != nil {
-		tb.Fatalf("%s: %v", name, err)
-	}
-	for _, r := range recs {
-		for i := range r {
-			r[i] = strings.TrimSpace(r[i])
-		}
-	}
-	return recs[1:]
-}
-
-func wcrFloat(tb testing.TB, s string) float64 {
-	tb.Helper()
-	v, err := strconv.ParseFloat(s, 64)
-	if err != nil {
-		tb.Fatal(err)
-	}
-	return v
-}
 
 // wcrPetersen holds Petersen's data (testdata/petersen.csv).
 type wcrPetersen struct {
@@ -52,11 +20,11 @@ type wcrPetersen struct {
 func wcrLoadPetersen(tb testing.TB) wcrPetersen {
 	tb.Helper()
 	var p wcrPetersen
-	for _, r := range wcrReadCSV(tb, "petersen.csv") {
-		p.firm = append(p.firm, int(wcrFloat(tb, r[0])))
-		p.year = append(p.year, int(wcrFloat(tb, r[1])))
-		p.x = append(p.x, wcrFloat(tb, r[2]))
-		p.y = append(p.y, wcrFloat(tb, r[3]))
+	for _, r := range wcrRows(tb, "petersen.csv") {
+		p.firm = append(p.firm, int(reftest.Atof(tb, r[0])))
+		p.year = append(p.year, int(reftest.Atof(tb, r[1])))
+		p.x = append(p.x, reftest.Atof(tb, r[2]))
+		p.y = append(p.y, reftest.Atof(tb, r[3]))
 	}
 	return p
 }
@@ -113,7 +81,7 @@ func (p wcrPetersen) design(tb testing.TB, model string) (Design, map[string][]f
 func TestCR1AgainstSandwich(t *testing.T) {
 	p := wcrLoadPetersen(t)
 	fits := map[string]*OLS{}
-	for _, r := range wcrReadCSV(t, "cr1_ref.csv") {
+	for _, r := range wcrRows(t, "cr1_ref.csv") {
 		model, term := r[0], r[1]
 		t.Run(model+"/"+term, func(t *testing.T) {
 			d, terms := p.design(t, model)
@@ -129,7 +97,7 @@ func TestCR1AgainstSandwich(t *testing.T) {
 			if !ok {
 				t.Fatalf("no term %q", term)
 			}
-			est, se, tt := wcrFloat(t, r[2]), wcrFloat(t, r[3]), wcrFloat(t, r[4])
+			est, se, tt := reftest.Atof(t, r[2]), reftest.Atof(t, r[3]), reftest.Atof(t, r[4])
 			got := []float64{wcrDot(a, f.Beta), f.SE(a), f.TStat(a, 0)}
 			for i, want := range []float64{est, se, tt} {
 				if math.Abs(got[i]-want) > 1e-9*math.Max(1, math.Abs(want)) {
@@ -174,4 +142,11 @@ func TestFitOLSNonFiniteX(t *testing.T) {
 	if !errors.Is(err, ErrDesign) || !strings.Contains(err.Error(), "X[1, 1]") {
 		t.Fatalf("error %v, want ErrDesign naming X[1, 1]", err)
 	}
+}
+
+// wcrRows reads testdata/name without its header row.
+func wcrRows(tb testing.TB, name string) [][]string {
+	tb.Helper()
+	_, rows := reftest.ReadCSV(tb, filepath.Join("testdata", name))
+	return rows
 }

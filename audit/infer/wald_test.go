@@ -6,6 +6,7 @@ import (
 	"math"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/internal/reftest"
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
 )
@@ -21,9 +22,9 @@ func TestWaldAgainstSandwich(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	for _, r := range wcrReadCSV(t, "wald_ref.csv") {
+	for _, r := range wcrRows(t, "wald_ref.csv") {
 		t.Run(r[1], func(t *testing.T) {
-			q := int(wcrFloat(t, r[2]))
+			q := int(reftest.Atof(t, r[2]))
 			R := mat.NewDense(q, 11, nil)
 			for j := range q {
 				R.Set(j, 2+j, 1)
@@ -33,7 +34,7 @@ func TestWaldAgainstSandwich(t *testing.T) {
 			if err != nil {
 				t.Fatal(err)
 			}
-			want := wcrFloat(t, r[3])
+			want := reftest.Atof(t, r[3])
 			if math.Abs(res.Stat-want) > 1e-9*want {
 				t.Fatalf("W = %.15g, R %.15g", res.Stat, want)
 			}

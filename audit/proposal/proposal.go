@@ -1,6 +1,7 @@
 package proposal
 
 import (
+	"bufio"
 	"bytes"
 	"context"
 	"encoding/json"
@@ -406,7 +407,11 @@ func ringContains(r orb.Ring, p orb.Point) bool {
 func ReadGeoJSON(ctx context.Context, name string, rd io.Reader, r *rules.RuleSet, opts Options) (*Proposal, error) {
 	opts = opts.withDefaults()
 	b := &proposalBuilder{p: &Proposal{Name: name}, r: r, opts: opts}
-	dec := json.NewDecoder(rd)
+	br := bufio.NewReader(rd)
+	if bom, _ := br.Peek(3); string(bom) == "\xef\xbb\xbf" {
+		br.Discard(3) // a UTF-8 byte order mark, as some GIS tools write
+	}
+	dec := json.NewDecoder(br)
 	dec.UseNumber()
 	fail := func(where string, err error) (*Proposal, error) {
 		return b.p, &ParseError{File: name, Where: where, Err: err}

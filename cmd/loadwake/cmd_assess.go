@@ -1,24 +1,18 @@
 package main
 
 import (
-	"bufio"
-	"compress/bzip2"
-	"compress/gzip"
 	"context"
-	"errors"
 	"fmt"
+	"io"
 	"iter"
-	"os"
 
 	"github.com/paulmach/osm"
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/did"
-	"github.com/loadwake/loadwake/audit/episode"
 	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/report"
-	"github.com/loadwake/loadwake/audit/spatial"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
 )
@@ -95,21 +89,14 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	case o.draws < 99:
 		return usagef("--draws must be at least 99")
 	}
-	ctx := cmd.Context()
+	ctx, out := cmd.Context(), cmd.OutOrStdout()
 	r, err := loadRules(o.rules)
 	if err != nil {
 		return err
 	}
 	p, err := readProposal(ctx, path, r)
 	if err != nil {
-		if p != nil && len(p.Features) > 0 {
-			// A partial profile of what was read before the problem.
-			pr := p.Profile()
-			fmt.Fprintf(cmd.OutOrStdout(), "partial profile of the first %d features read before the error:\n", pr.Features)
-			for _, c := range pr.Classes {
-				fmt.Fprintf(cmd.OutOrStdout(), "  %-28s %7d features (%d points, %d lines, %d polygons)\n", c.Class, c.Features, c.Points, c.Lines, c.Polygons)
-			}
-		}
+		printPartialProfile(out, p)
 		return err
 	}
 	st, err := openStore(g)
@@ -117,38 +104,18 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 		return err
 	}
 	defer st.Close()
-	uo := spatial.Options{IDProperty: o.unitID, Bound: p.Bound}
-	stats, err := st.Stats(ctx)
+	units, err := storeUnits(ctx, st, o.units, o.unitID, p.Bound)
 	if err != nil {
 		return err
 	}
-	switch {
-	case stats.HasBBox && p.Bound.IsZero():
-		uo.Bound = stats.BBox
-	case stats.HasBBox:
-		uo.Bound = uo.Bound.Union(stats.BBox)
-	}
-	units, err := spatial.Parse(o.units, uo)
+	eo := did.DefaultOptions()
+	eo.Draws = o.draws
+	a, err := audit.Assess(ctx, st, r, p, audit.AssessOptions{SkipPast: o.noAudit,
+		Proposal: proposal.AssessOptions{Distance: o.distance, Units: units, Nearest: o.nearest},
+		Audit:    audit.Options{Estimate: eo, UnitSpec: o.units}})
 	if err != nil {
 		return err
 	}
-	eps, err := episode.Detect(ctx, st, r, episode.Options{})
-	if err != nil {
-		return err
-	}
-	a, err := proposal.Assess(ctx, st, r, p, proposal.AssessOptions{Distance: o.distance, Units: units, Episodes: eps, Nearest: o.nearest})
-	if err != nil {
-		return err
-	}
-	if !o.noAudit && len(a.Nearest) > 0 {
-		eo := did.DefaultOptions()
-		eo.Draws = o.draws
-		if err := audit.AssessPast(ctx, a, st, r, audit.PastOptions{Units: units, Episodes: eps,
-			Audit: audit.Options{Estimate: eo, UnitSpec: o.units}}); err != nil {
-			return err
-		}
-	}
-	out := cmd.OutOrStdout()
 	if err := a.WriteMarkdown(out); err != nil {
 		return err
 	}
@@ -161,62 +128,43 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	return nil
 }
 
-// readProposal reads path as OSM XML or OsmChange (plain, gzip or bzip2;
-// versions not needed), PBF through ingest's reader, or GeoJSON when its
-// content starts with '{'.
+// printPartialProfile prints the profile of what was read of a proposal
+// before an error, when anything was.
+func printPartialProfile(w io.Writer, p *proposal.Proposal) {
+	if p == nil || len(p.Features) == 0 {
+		return
+	}
+	pr := p.Profile()
+	fmt.Fprintf(w, "partial profile of the first %d features read before the error:\n", pr.Features)
+	for _, c := range pr.Classes {
+		fmt.Fprintf(w, "  %-28s %7d features (%d points, %d lines, %d polygons)\n", c.Class, c.Features, c.Points, c.Lines, c.Polygons)
+	}
+}
+
+// readProposal reads path as OSM XML or OsmChange (versions not needed), PBF
+// through ingest's reader, or GeoJSON; plain, gzip or bzip2, detected from the
+// content by ingest.
 func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*proposal.Proposal, error) {
-	_, format, err := ingest.DetectFile(path)
-	switch {
-	case err == nil && format == ingest.FormatChangesets:
+	c, err := ingest.OpenContent(path)
+	if err != nil {
+		return nil, err
+	}
+	defer c.Close()
+	switch c.Format {
+	case ingest.FormatChangesets:
 		return nil, fmt.Errorf("%s: changeset metadata, not a proposal of map data", path)
-	case err == nil && format == ingest.FormatPBF:
+	case ingest.FormatPBF:
 		rd, err := ingest.OpenFile(ctx, path, ingest.ReadOptions{})
 		if err != nil {
 			return nil, err
 		}
 		defer rd.Close()
 		return proposal.ReadOSM(ctx, path, objects(rd), r, proposal.Options{})
-	case err != nil && !errors.Is(err, ingest.ErrUnknown):
-		return nil, err
-	}
-	f, err := os.Open(path)
-	if err != nil {
-		return nil, err
-	}
-	defer f.Close()
-	br := bufio.NewReaderSize(f, 1<<16)
-	bsrc := br
-	magic, _ := br.Peek(3)
-	switch {
-	case len(magic) >= 2 && magic[0] == 0x1f && magic[1] == 0x8b:
-		zr, err := gzip.NewReader(br)
-		if err != nil {
-			return nil, fmt.Errorf("%s: %w", path, err)
-		}
-		defer zr.Close()
-		bsrc = bufio.NewReaderSize(zr, 1<<16)
-	case len(magic) == 3 && string(magic) == "BZh":
-		bsrc = bufio.NewReaderSize(bzip2.NewReader(br), 1<<16)
-	}
-	if format == ingest.FormatXML || format == ingest.FormatOsmChange {
+	case ingest.FormatXML, ingest.FormatOsmChange:
 		// Editors' files have no versions: read them with the proposal reader.
-		return proposal.ReadOSM(ctx, path, proposal.XMLObjects(ctx, path, bsrc), r, proposal.Options{})
+		return proposal.ReadOSM(ctx, path, proposal.XMLObjects(ctx, path, c), r, proposal.Options{})
 	}
-	for {
-		b, err := bsrc.Peek(1)
-		if err != nil {
-			return nil, fmt.Errorf("%s: empty or unreadable: %w", path, err)
-		}
-		if b[0] == ' ' || b[0] == '\n' || b[0] == '\r' || b[0] == '\t' || b[0] == 0xef || b[0] == 0xbb || b[0] == 0xbf {
-			bsrc.ReadByte()
-			continue
-		}
-		if b[0] != '{' {
-			return nil, fmt.Errorf("%s: neither OSM XML, OsmChange, PBF nor GeoJSON", path)
-		}
-		break
-	}
-	return proposal.ReadGeoJSON(ctx, path, bsrc, r, proposal.Options{})
+	return proposal.ReadGeoJSON(ctx, path, c, r, proposal.Options{})
 }
 
 // objects turns an ingest reader into the object sequence audit reads; the

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"context"
 	"fmt"
 	"io"
 	"strings"
@@ -75,43 +76,15 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 		return usagef("--min-features must be at least 1")
 	}
 	co := checklist.Options{MinShare: o.minShare, MinFeatures: o.minFeatures}
-	ctx := cmd.Context()
 	var cl *checklist.Checklist
+	var err error
 	if o.provenance != "" {
-		if o.study.importID != "" || o.study.changesets != "" || o.study.account != "" {
-			return usagef("--provenance selects the import's features by a tag; leave out --import, --changesets and --account")
-		}
-		prov, err := checklist.ParseProvenance(o.provenance)
-		if err != nil {
-			return usagef("--provenance: %v", err)
-		}
-		if co.Types, err = parseTypes(o.types); err != nil {
-			return err
-		}
-		r, err := loadRules(o.study.rules)
-		if err != nil {
-			return err
-		}
-		st, err := openStore(g)
-		if err != nil {
-			return err
-		}
-		defer st.Close()
-		if cl, err = checklist.Snapshot(ctx, st, r, prov, co); err != nil {
-			return err
-		}
+		cl, err = snapshotChecklist(cmd.Context(), g, o, co)
 	} else {
-		if o.types != "" {
-			return usagef("--types applies to --provenance (snapshot mode) only")
-		}
-		in, err := o.study.open(ctx, g)
-		if err != nil {
-			return err
-		}
-		defer in.store.Close()
-		if cl, err = audit.ChecklistOf(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), co); err != nil {
-			return err
-		}
+		cl, err = studyChecklist(cmd.Context(), g, o, co)
+	}
+	if err != nil {
+		return err
 	}
 	out := cmd.OutOrStdout()
 	writeChecklistText(out, cl)
@@ -122,6 +95,44 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 		return writeReports(out, o.report, report.Input{Checklist: cl})
 	}
 	return nil
+}
+
+// snapshotChecklist is the checklist of features marked by --provenance, on
+// a store from a current extract.
+func snapshotChecklist(ctx context.Context, g *globalOptions, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
+	if o.study.importID != "" || o.study.changesets != "" || o.study.account != "" {
+		return nil, usagef("--provenance selects the import's features by a tag; leave out --import, --changesets and --account")
+	}
+	prov, err := checklist.ParseProvenance(o.provenance)
+	if err != nil {
+		return nil, usagef("--provenance: %v", err)
+	}
+	if co.Types, err = parseTypes(o.types); err != nil {
+		return nil, err
+	}
+	r, err := loadRules(o.study.rules)
+	if err != nil {
+		return nil, err
+	}
+	st, err := openStore(g)
+	if err != nil {
+		return nil, err
+	}
+	defer st.Close()
+	return checklist.Snapshot(ctx, st, r, prov, co)
+}
+
+// studyChecklist is the checklist of one import's study over the units.
+func studyChecklist(ctx context.Context, g *globalOptions, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
+	if o.types != "" {
+		return nil, usagef("--types applies to --provenance (snapshot mode) only")
+	}
+	in, err := o.study.open(ctx, g)
+	if err != nil {
+		return nil, err
+	}
+	defer in.store.Close()
+	return audit.ChecklistOf(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), co)
 }
 
 // output is a file a command writes when its flag names one.

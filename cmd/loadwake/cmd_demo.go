@@ -3,17 +3,14 @@ package main
 import (
 	"bytes"
 	"context"
-	"encoding/json"
 	"errors"
 	"fmt"
 	"io"
-	"math/rand/v2"
 	"os"
 	"path/filepath"
 	"time"
 
 	"github.com/paulmach/orb"
-	"github.com/paulmach/orb/geojson"
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
@@ -77,7 +74,7 @@ func newDemoPaths(dir string) demoPaths {
 		report: filepath.Join(dir, "report"), proposal: filepath.Join(dir, "proposal.geojson")}
 }
 
-func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
+func (o *demoOptions) validate() error {
 	switch {
 	case o.out == "":
 		return usagef("--out must name a folder")
@@ -88,15 +85,11 @@ func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
 	case o.draws < 99:
 		return usagef("--draws must be at least 99")
 	}
-	p := newDemoPaths(o.out)
-	if entries, err := os.ReadDir(o.out); err == nil && len(entries) > 0 && !o.force {
-		return fmt.Errorf("%s is not empty: pass --force to replace an earlier demo, or choose another --out", o.out)
-	}
-	// The store is rebuilt each time, so that a changed seed leaves no old history.
-	if err := os.RemoveAll(p.store); err != nil {
-		return err
-	}
-	start := time.Now()
+	return nil
+}
+
+// config is the simulator's configuration the flags ask for.
+func (o *demoOptions) config() sim.Config {
 	cfg := sim.DefaultConfig()
 	cfg.Seed = o.seed
 	if o.grid > 0 {
@@ -106,56 +99,96 @@ func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
 	if o.scale > 0 {
 		cfg.Scale = o.scale
 	}
-	if _, err := sim.Generate(ctx, cfg, p.world, true); err != nil {
+	return cfg
+}
+
+func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
+	if err := o.validate(); err != nil {
 		return err
 	}
-	st, err := ingest.Open(p.store, ingest.DefaultOptions())
+	p := newDemoPaths(o.out)
+	if entries, err := os.ReadDir(o.out); err == nil && len(entries) > 0 && !o.force {
+		return fmt.Errorf("%s is not empty: pass --force to replace an earlier demo, or choose another --out", o.out)
+	}
+	// The store is rebuilt each time, so that a changed seed leaves no old history.
+	if err := os.RemoveAll(p.store); err != nil {
+		return err
+	}
+	start := time.Now()
+	st, err := demoStore(ctx, o.config(), p)
 	if err != nil {
 		return err
 	}
 	defer st.Close()
-	if _, err := ingest.Ingest(ctx, st, []string{filepath.Join(p.world, sim.HistoryFile), filepath.Join(p.world, sim.ChangesetsFile)}, ingest.IngestOptions{}); err != nil {
-		return err
-	}
-	r := rules.Default()
-	if _, err := layers.Run(ctx, st, r, layers.Options{}); err != nil {
-		return err
-	}
-	eps, err := episode.Detect(ctx, st, r, episode.Options{})
+	in, err := demoStudy(ctx, st, o, p)
 	if err != nil {
 		return err
 	}
-	ep := largestEpisode(eps)
-	if ep == nil {
-		return errors.New("demo: the simulated world holds no detected import")
-	}
-	unitFile := filepath.Join(p.world, sim.DistrictsFile)
-	units, err := spatial.Parse(unitFile, spatial.Options{})
-	if err != nil {
+	if err := writeReports(io.Discard, p.report, in); err != nil {
 		return err
 	}
-	eo := did.DefaultOptions()
-	eo.Draws = o.draws
-	rep, err := audit.Run(ctx, st, ep, eps, units, audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile})
-	if err != nil {
-		return err
-	}
-	cl, err := audit.ChecklistOf(ctx, st, r, ep, eps, units, study.Options{}, checklist.Options{})
-	if err != nil {
-		return fmt.Errorf("checklist: %w", err)
-	}
-	a, err := demoAssessment(ctx, st, r, p.proposal, units, rep, eps, eo, o.seed)
-	if err != nil {
-		return fmt.Errorf("assessment: %w", err)
-	}
-	if err := writeReports(io.Discard, p.report, reportInput(rep, units, cl, a)); err != nil {
-		return err
-	}
-	for _, line := range demoSummary(rep, cl, p.report) {
+	for _, line := range demoSummary(in.Audit, in.Checklist, p.report) {
 		fmt.Fprintln(out, line)
 	}
 	fmt.Fprintf(out, "(invented data; world in %s, store in %s, %s)\n", p.world, p.store, time.Since(start).Round(100*time.Millisecond))
 	return nil
+}
+
+// demoStore invents the world of cfg and returns its store, ingested and
+// classified.
+func demoStore(ctx context.Context, cfg sim.Config, p demoPaths) (*ingest.Store, error) {
+	if _, err := sim.Generate(ctx, cfg, p.world, true); err != nil {
+		return nil, err
+	}
+	st, err := ingest.Open(p.store, ingest.DefaultOptions())
+	if err != nil {
+		return nil, err
+	}
+	paths := []string{filepath.Join(p.world, sim.HistoryFile), filepath.Join(p.world, sim.ChangesetsFile)}
+	_, err = ingest.Ingest(ctx, st, paths, ingest.IngestOptions{})
+	if err == nil {
+		_, err = layers.Run(ctx, st, rules.Default(), layers.Options{})
+	}
+	if err != nil {
+		st.Close()
+		return nil, err
+	}
+	return st, nil
+}
+
+// demoStudy audits the largest import over the districts, builds its
+// checklist and assesses the invented follow-up proposal: what the reports
+// show.
+func demoStudy(ctx context.Context, st *ingest.Store, o *demoOptions, p demoPaths) (report.Input, error) {
+	r := rules.Default()
+	eps, err := episode.Detect(ctx, st, r, episode.Options{})
+	if err != nil {
+		return report.Input{}, err
+	}
+	ep := largestEpisode(eps)
+	if ep == nil {
+		return report.Input{}, errors.New("demo: the simulated world holds no detected import")
+	}
+	units, err := spatial.Parse(filepath.Join(p.world, sim.DistrictsFile), spatial.Options{})
+	if err != nil {
+		return report.Input{}, err
+	}
+	eo := did.DefaultOptions()
+	eo.Draws = o.draws
+	ao := audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile}
+	rep, err := audit.Run(ctx, st, ep, eps, units, ao)
+	if err != nil {
+		return report.Input{}, err
+	}
+	cl, err := audit.ChecklistOf(ctx, st, r, ep, eps, units, study.Options{}, checklist.Options{})
+	if err != nil {
+		return report.Input{}, fmt.Errorf("checklist: %w", err)
+	}
+	a, err := demoAssessment(ctx, st, r, p.proposal, units, rep, eps, ao, o.seed)
+	if err != nil {
+		return report.Input{}, fmt.Errorf("assessment: %w", err)
+	}
+	return reportInput(rep, units, cl, a), nil
 }
 
 // largestEpisode picks the episode with the most changesets, then the most
@@ -211,77 +244,31 @@ func demoSummary(rep *audit.Report, cl *checklist.Checklist, dir string) []strin
 	return lines
 }
 
-// demoAssessment writes an invented follow-up proposal (buildings and a few
-// amenities of a made-up survey office, in three districts the import did
-// not reach) as GeoJSON and assesses it.
+// demoAssessment writes the simulator's invented follow-up proposal for
+// three districts the import did not reach and assesses it.
 func demoAssessment(ctx context.Context, st *ingest.Store, r *rules.RuleSet, path string, units *spatial.Units,
-	rep *audit.Report, eps []episode.Episode, eo did.Options, seed uint64) (*proposal.Assessment, error) {
-	var picks []int
+	rep *audit.Report, eps []episode.Episode, ao audit.Options, seed uint64) (*proposal.Assessment, error) {
+	var areas []orb.Bound
 	for _, u := range rep.UnitList {
-		if u.Status == study.StatusCandidate || u.Status == study.StatusControl {
-			if i, ok := units.Index(u.ID); ok {
-				picks = append(picks, i)
-			}
-		}
-		if len(picks) == 3 {
-			break
+		i, ok := units.Index(u.ID)
+		if ok && (u.Status == study.StatusCandidate || u.Status == study.StatusControl) && len(areas) < 3 {
+			areas = append(areas, units.Bound(i))
 		}
 	}
-	if len(picks) == 0 {
+	if len(areas) == 0 {
 		return nil, errors.New("no untouched district for the invented proposal")
 	}
-	rng := rand.New(rand.NewPCG(seed, 0x70726f706f73616c))
-	fc := geojson.NewFeatureCollection()
-	n := 0
-	for _, i := range picks {
-		b := units.Bound(i)
-		w, h := b.Max[0]-b.Min[0], b.Max[1]-b.Min[1]
-		for k := range 45 {
-			x := b.Min[0] + w*(0.1+0.8*rng.Float64())
-			y := b.Min[1] + h*(0.1+0.8*rng.Float64())
-			n++
-			if k%9 == 0 {
-				f := geojson.NewFeature(orb.Point{x, y})
-				f.ID = fmt.Sprintf("qsr-%d", n)
-				f.Properties["amenity"] = []string{"cafe", "library", "pharmacy"}[rng.IntN(3)]
-				f.Properties["name"] = fmt.Sprintf("Quorvesk Place %d", n)
-				f.Properties["source"] = "Quorvesk Survey Registry (invented)"
-				fc.Append(f)
-				continue
-			}
-			d := 0.00008
-			ring := orb.Ring{{x, y}, {x + d, y}, {x + d, y + d}, {x, y + d}, {x, y}}
-			f := geojson.NewFeature(orb.Polygon{ring})
-			f.ID = fmt.Sprintf("qsr-%d", n)
-			f.Properties["building"] = "yes"
-			f.Properties["source"] = "Quorvesk Survey Registry (invented)"
-			if rng.Float64() < 0.3 {
-				f.Properties["addr:housenumber"] = fmt.Sprint(1 + rng.IntN(120))
-				f.Properties["addr:street"] = "Harbour Lane"
-			}
-			fc.Append(f)
-		}
-	}
-	data, err := json.MarshalIndent(fc, "", " ")
+	data, err := sim.Proposal(areas, seed)
 	if err != nil {
 		return nil, err
 	}
-	if err := os.WriteFile(path, append(data, '\n'), 0o644); err != nil {
+	if err := os.WriteFile(path, data, 0o644); err != nil {
 		return nil, err
 	}
 	p, err := proposal.ReadGeoJSON(ctx, path, bytes.NewReader(data), r, proposal.Options{})
 	if err != nil {
 		return nil, err
 	}
-	a, err := proposal.Assess(ctx, st, r, p, proposal.AssessOptions{Units: units, Episodes: eps})
-	if err != nil {
-		return nil, err
-	}
-	if len(a.Nearest) > 0 {
-		if err := audit.AssessPast(ctx, a, st, r, audit.PastOptions{Units: units, Episodes: eps,
-			Audit: audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile}}); err != nil {
-			return nil, err
-		}
-	}
-	return a, nil
+	return audit.Assess(ctx, st, r, p, audit.AssessOptions{Audit: ao,
+		Proposal: proposal.AssessOptions{Units: units, Episodes: eps}})
 }

@@ -7,6 +7,7 @@ import (
 	"io/fs"
 	"os"
 
+	"github.com/paulmach/orb"
 	"github.com/spf13/pflag"
 
 	"github.com/loadwake/loadwake/audit/episode"
@@ -133,16 +134,25 @@ func (s *studyFlags) open(ctx context.Context, g *globalOptions) (*studyInputs, 
 	if err != nil {
 		return fail(err)
 	}
-	uo := spatial.Options{IDProperty: s.unitID}
-	stats, err := st.Stats(ctx)
-	if err != nil {
-		return fail(err)
-	}
-	if stats.HasBBox {
-		uo.Bound = stats.BBox
-	}
-	if in.units, err = spatial.Parse(s.units, uo); err != nil {
+	if in.units, err = storeUnits(ctx, st, s.units, s.unitID, orb.Bound{}); err != nil {
 		return fail(err)
 	}
 	return in, nil
+}
+
+// storeUnits reads the units of spec; tiles:Z cover the store's area, grown
+// by extra when extra is not zero (a proposal's bound).
+func storeUnits(ctx context.Context, st *ingest.Store, spec, idProp string, extra orb.Bound) (*spatial.Units, error) {
+	uo := spatial.Options{IDProperty: idProp, Bound: extra}
+	stats, err := st.Stats(ctx)
+	if err != nil {
+		return nil, err
+	}
+	switch {
+	case stats.HasBBox && extra.IsZero():
+		uo.Bound = stats.BBox
+	case stats.HasBBox:
+		uo.Bound = uo.Bound.Union(stats.BBox)
+	}
+	return spatial.Parse(spec, uo)
 }

@@ -8,6 +8,7 @@ import (
 	"encoding/csv"
 	"os"
 	"strconv"
+	"strings"
 	"testing"
 )
 
@@ -64,7 +65,8 @@ func (t Table) Int(tb testing.TB, i int, col string) int {
 	return int(t.Num(tb, i, col))
 }
 
-// ReadCSV loads a committed fixture with a header row.
+// ReadCSV loads a committed fixture with a header row, fields trimmed of
+// surrounding spaces.
 func ReadCSV(tb testing.TB, path string) (header []string, rows [][]string) {
 	tb.Helper()
 	f, err := os.Open(path)
@@ -78,6 +80,11 @@ func ReadCSV(tb testing.TB, path string) (header []string, rows [][]string) {
 	}
 	if len(all) == 0 {
 		tb.Fatalf("%s: empty", path)
+	}
+	for _, r := range all {
+		for i := range r {
+			r[i] = strings.TrimSpace(r[i]) // R pads some columns
+		}
 	}
 	return all[0], all[1:]
 }
