@@ -138,8 +138,8 @@ func TestEstimateBadInput(t *testing.T) {
 		}
 		if e.Layer == "layer0" {
 			n++
-			if e.Estimator == EstimatorPPML && e.Method != "cr1-t(19)" {
-				t.Errorf("%s: method %q with 20 treated clusters, want cr1-t(19)", e.Estimator, e.Method)
+			if want := "score-bootstrap-null-imposed-rademacher-999"; e.Estimator == EstimatorPPML && e.Method != want {
+				t.Errorf("%s: method %q with 20 treated clusters, want %s", e.Estimator, e.Method, want)
 			}
 			if !strings.Contains(e.Method, "bootstrap") && e.Estimator != EstimatorTWFELinear && e.Estimator != EstimatorPPML {
 				t.Errorf("%s: method %q with 20 treated clusters, want a bootstrap", e.Estimator, e.Method)
@@ -204,7 +204,7 @@ func ExampleEstimate() {
 	}
 	// Output:
 	// layer0 cs-att: +29% [+21%, +37%] analytic-influence-function
-	// layer0 ppml-twfe: +25% [+22%, +28%] cr1-t(299)
+	// layer0 ppml-twfe: +25% [+22%, +27%] score-bootstrap-null-imposed-rademacher-999
 	// layer0 twfe-linear: +28% [+20%, +36%] analytic-cr1
 	// layer0 did-2x2: +25% [+21%, +28%] analytic-cr1
 }

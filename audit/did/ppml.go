@@ -50,6 +50,9 @@ type ppmlFit struct {
 	iter     int
 	mu       []float64 // fitted means of the kept observations (nil entries for dropped: 0)
 	keep     []bool
+	kParams  int           // parameters, fixed effects included
+	scores   *mat.Dense    // used clusters × K: score sums with the fixed effects partialled out
+	hess     *mat.SymDense // K×K: minus the Hessian of β with the fixed effects partialled out
 }
 
 // scoreBootstrap runs the wild score bootstrap-t for coefficient j: Δ* = Σ
@@ -223,8 +226,19 @@ func stackedPPML(ctx context.Context, p *panel.Panel, y []float64, cl []int, G i
 			kind = "exact"
 		}
 		e.method = fmt.Sprintf("randomization-%s-%d", kind, res.Evaluated)
-	} else {
+	} else if opts.PoissonInference == PoissonCR1T {
 		lo, hi, e.p, e.method = poissonInterval(b, se, H)
+	} else {
+		r, err := poissonScoreTest(ctx, st, G, b, len(tClusters), opts, rng)
+		if err != nil {
+			return nil, fmt.Errorf("score bootstrap: %w", err)
+		}
+		lo, hi, e.p = r.Lo, r.Hi, r.P
+		e.method = fmt.Sprintf("score-bootstrap-null-imposed-%s-%d", r.Weights, r.Draws)
+		if math.IsInf(lo, 0) || math.IsInf(hi, 0) {
+			lo, hi, e.noInterval = b, b, true
+			e.note += "the score bootstrap's interval is unbounded (too few treated clusters to bound it); "
+		}
 	}
 	M := postSum / postN
 	e.att = M * (1 - math.Exp(-b))
@@ -264,6 +278,34 @@ func poissonInterval(b, se float64, H int) (lo, hi, p float64, method string) {
 	t := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(H - 1)}
 	c := t.Quantile(0.975)
 	return b - c*se, b + c*se, 2 * t.Survival(math.Abs(b/se)), fmt.Sprintf("cr1-t(%d)", H-1)
+}
+
+// poissonScoreTest is the headline's test of b = 0 and its 95% interval by
+// the score bootstrap with the null imposed (Kline & Santos 2012;
+// infer.ScoreBootstrap): each candidate value is imposed by refitting the
+// stacked model with b held there (fitStackedPoissonAt), and the cluster
+// scores with the fixed effects partialled out are perturbed with the weights
+// infer.ChooseWeights picks by treated clusters. The interval inverts the
+// same test, so it excludes 0 exactly when p < 0.05.
+func poissonScoreTest(ctx context.Context, st *stacked, G int, b float64, treatedClusters int, opts Options, rng *rand.Rand) (*infer.ScoreResult, error) {
+	fitter := func(ctx context.Context, a []float64, b0 float64) (infer.ScoreFit, error) {
+		f, err := fitStackedPoissonAt(st.y, [][]float64{st.d}, st.w, st.cl, G, st.blocks, st.n2, []float64{b0 / a[0]})
+		if err != nil {
+			return infer.ScoreFit{}, err
+		}
+		return infer.ScoreFit{Scores: f.scores, Hessian: f.hess, NObs: f.nObs, NParams: f.kParams}, nil
+	}
+	so := infer.DefaultScoreOptions()
+	so.Draws, so.Seed, so.Tol = opts.Draws, rng.Uint64(), 1e-4
+	used := map[int]bool{}
+	for _, c := range st.cl {
+		used[c] = true
+	}
+	so.Weights = infer.ScoreRademacher
+	if infer.ChooseWeights(treatedClusters, len(used)) == infer.Webb {
+		so.Weights = infer.ScoreWebb
+	}
+	return infer.ScoreBootstrap(ctx, fitter, []float64{1}, b, 0, so)
 }
 
 // separated diagnoses a separated Poisson layer: when the treated units'
@@ -440,6 +482,13 @@ type ppmlBlock struct{ start, n, tOff int }
 // data. The estimate, scores and CR1 variance are those of the full
 // dummy-variable fit (fitPoissonFE; checked in tests).
 func fitStackedPoisson(y []float64, x [][]float64, w []float64, cl []int, G int, blocks []ppmlBlock, nMonths int) (*ppmlFit, error) {
+	return fitStackedPoissonAt(y, x, w, cl, G, blocks, nMonths, nil)
+}
+
+// fitStackedPoissonAt is fitStackedPoisson with β held at fixed when fixed
+// is not nil (the restricted fit of a score test: only the fixed effects
+// move). Its scores and Hessian are then those at the restricted estimate.
+func fitStackedPoissonAt(y []float64, x [][]float64, w []float64, cl []int, G int, blocks []ppmlBlock, nMonths int, fixed []float64) (*ppmlFit, error) {
 	K := len(x)
 	// drop blocks with no counts, then stack months with no counts
 	var keep []ppmlBlock
@@ -515,6 +564,7 @@ func fitStackedPoisson(y []float64, x [][]float64, w []float64, cl []int, G int,
 		}
 	}
 	beta := make([]float64, K)
+	copy(beta, fixed)
 	maxN := 0
 	for _, b := range keep {
 		maxN = max(maxN, b.n)
@@ -655,6 +705,9 @@ func fitStackedPoisson(y []float64, x [][]float64, w []float64, cl []int, G int,
 			return nil, nil, nil, nil, errSingular
 		}
 		dB = dv.RawVector().Data
+		if fixed != nil {
+			clear(dB)
+		}
 		dG = map[int][]float64{}
 		for _, off := range order {
 			m := stacks[off].m
@@ -772,6 +825,15 @@ func fitStackedPoisson(y []float64, x [][]float64, w []float64, cl []int, G int,
 	}
 	fit.adj = float64(Gu) / float64(Gu-1) * float64(nObs-1) / float64(nObs-kParams)
 	fit.beta = beta
+	fit.kParams = kParams
+	fit.hess = schur
+	fit.scores = mat.NewDense(Gu, K, nil)
+	for g, row := 0, 0; g < G; g++ {
+		if used[g] {
+			fit.scores.SetRow(row, sc[g*K:(g+1)*K])
+			row++
+		}
+	}
 	fit.g = Gu
 	fit.nObs = nObs
 	fit.a = make([][]float64, K)

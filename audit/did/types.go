@@ -49,7 +49,17 @@ type Options struct {
 	Inference    string // InferenceAuto, InferenceAnalytic or InferenceBootstrap
 	PlaceboShift int    // months the placebo moves each start back (default Window.Pre/2, at least 1)
 	Workers      int    // outcomes estimated in parallel; 0 = GOMAXPROCS
+	// PoissonInference chooses the headline's interval with enough treated
+	// clusters: PoissonScoreBootstrap (default, also for "") or PoissonCR1T.
+	PoissonInference string
 }
+
+// Headline inference with at least infer.MinTreatedForInterval treated
+// clusters (Options.PoissonInference).
+const (
+	PoissonScoreBootstrap = "score-bootstrap" // Kline & Santos, null imposed, inverted
+	PoissonCR1T           = "cr1-t"           // CR1 t ratio against t(H − 1)
+)
 
 // DefaultOptions returns the defaults: a window of 12 months before
 // and 24 from treatment, 999 bootstrap draws, seed 1, automatic inference,
@@ -76,6 +86,8 @@ func (o Options) validate() error {
 		return fmt.Errorf("audit: %d bootstrap draws; use at least 99", o.Draws)
 	case o.Inference != InferenceAuto && o.Inference != InferenceAnalytic && o.Inference != InferenceBootstrap:
 		return fmt.Errorf("audit: inference %q; want auto, analytic or bootstrap", o.Inference)
+	case o.PoissonInference != "" && o.PoissonInference != PoissonScoreBootstrap && o.PoissonInference != PoissonCR1T:
+		return fmt.Errorf("audit: poisson inference %q; want %s or %s", o.PoissonInference, PoissonScoreBootstrap, PoissonCR1T)
 	case o.PlaceboShift < 0:
 		return fmt.Errorf("audit: placebo shift %d months is negative", o.PlaceboShift)
 	}

@@ -86,7 +86,10 @@ func rate(x, n int) string {
 	return fmt.Sprintf("%.1f%% [%.1f, %.1f] (%d/%d)", 100*float64(x)/float64(n), 100*lo, 100*hi, x, n)
 }
 
-var validateEstimators = []string{EstimatorPPML, EstimatorCS, EstimatorTWFELinear, EstimatorDiD2x2}
+// ppmlCR1T names the headline with the CR1 t(H−1) interval in the tables.
+const ppmlCR1T = EstimatorPPML + " (cr1-t)"
+
+var validateEstimators = []string{EstimatorPPML, ppmlCR1T, EstimatorCS, EstimatorTWFELinear, EstimatorDiD2x2}
 
 // TestValidateCoverage: 95% coverage of a planted −30% at 4, 8, 40 and 120
 // treated units, 300 panels each. The headline must reach 93–97% (its Wilson
@@ -102,9 +105,19 @@ func TestValidateCoverage(t *testing.T) {
 		w := nbWorld{Treated: nt, Controls: max(40, nt), Months: 30, Delta: -0.3, K: 4}
 		cover, n := map[string]int{}, map[string]int{}
 		for s := range panels {
-			es, err := Estimate(context.Background(), w.panel(uint64(nt*10000+s)), opts)
+			p := w.panel(uint64(nt*10000 + s))
+			es, err := Estimate(context.Background(), p, opts)
 			if err != nil {
 				t.Fatal(err)
+			}
+			cl, G := p.ClusterIndex()
+			o2 := opts
+			o2.PoissonInference = PoissonCR1T
+			if e, err := stackedPPML(context.Background(), p, p.Y[0], cl, G, o2, rngFor(1, "x", "y")); err == nil {
+				n[ppmlCR1T]++
+				if e.relLo <= w.Delta && w.Delta <= e.relHi {
+					cover[ppmlCR1T]++
+				}
 			}
 			for _, e := range es.Effects {
 				if e.RelativeEffect == nil || e.NoInterval {
