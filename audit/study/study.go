@@ -506,7 +506,7 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	growth := func(name string, u int) float64 {
 		pre := clip(b.y[name], u)[:epMonth]
 		h := len(pre) / 2
-		return math.Log((mean(pre[h:])+0.5)/(mean(pre[:h])+0.5))
+		return math.Log((mean(pre[h:]) + 0.5) / (mean(pre[:h]) + 0.5))
 	}
 	diag := func(u int) []float64 {
 		row := cov(u)
