@@ -31,7 +31,8 @@ const (
 // check's estimate inside the headline's interval), VerdictDifferSize (same
 // direction and significance, the estimate outside that interval) or
 // VerdictDifferSign (opposite directions where either is significant, or one
-// significant and the other not); Explanation says in plain words why
+// significant and the other not); when either has no reliable interval, only
+// the directions are compared. Explanation says in plain words why
 // estimators can differ.
 type Agreement struct {
 	Layer       string  `json:"layer"`
@@ -48,6 +49,12 @@ func agreementOf(h, c did.Effect) Agreement {
 	sigH, sigC := h.PValue < 0.05, c.PValue < 0.05
 	sameSign := math.Signbit(a.Headline) == math.Signbit(a.Relative)
 	switch {
+	case h.NoInterval || c.NoInterval:
+		// Without reliable intervals only the directions can be compared.
+		a.Verdict = VerdictAgree
+		if !sameSign {
+			a.Verdict = VerdictDifferSign
+		}
 	case sigH != sigC || (!sameSign && (sigH || sigC)):
 		a.Verdict = VerdictDifferSign
 	case !h.NoInterval && (a.Relative < h.CI95[0] || a.Relative > h.CI95[1]):
