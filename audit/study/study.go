@@ -141,6 +141,34 @@ const GrowthPrefix = "pre-import growth "
 // ErrStudy is the sentinel under errors that make a study impossible.
 var ErrStudy = errors.New("study: cannot build study")
 
+// Stores a study cannot use; both wrap ErrStudy.
+var (
+	// ErrUnclassified: the store's edits were never classified into layers.
+	ErrUnclassified = fmt.Errorf("%w: the store's edits are not classified (run `loadwake classify` on it first)", ErrStudy)
+	// ErrSnapshot: the store holds one version per object (a snapshot
+	// extract), so no edit has a predecessor and follow-on editing cannot be
+	// counted; every object would look newly mapped in its last month.
+	ErrSnapshot = fmt.Errorf("%w: the store holds a snapshot, not a history: no edit has a predecessor, so follow-on editing before and after the import cannot be counted (ingest a full-history file, .osh.pbf or history XML, covering the months before the import)", ErrStudy)
+)
+
+// checkEstimable refuses stores no study can be built on: unclassified ones
+// and snapshots (classified edits that are all first versions: no geometry,
+// attribute or deletion event at all).
+func checkEstimable(ctx context.Context, src layers.DerivedReader) error {
+	sum, err := layers.Summarize(ctx, src)
+	if errors.Is(err, layers.ErrNotClassified) {
+		return ErrUnclassified
+	}
+	if err != nil {
+		return fmt.Errorf("read classification summary: %w", err)
+	}
+	changes := sum.Events[layers.Geometry.String()] + sum.Events[layers.Attribute.String()] + sum.Events[layers.Deletion.String()]
+	if changes == 0 && sum.Events[layers.NewFeature.String()] > 0 {
+		return ErrSnapshot
+	}
+	return nil
+}
+
 // Outcome names beyond the four layers.
 const (
 	OutcomeContributors = "contributors" // distinct accounts editing in the unit-month
@@ -205,6 +233,9 @@ func Build(ctx context.Context, src layers.DerivedReader, ref ImportRef, units U
 	}
 	if len(ref.Changesets) == 0 || ref.First.IsZero() {
 		return nil, fmt.Errorf("%w: import %q has no changesets", ErrStudy, ref.ID)
+	}
+	if err := checkEstimable(ctx, src); err != nil {
+		return nil, err
 	}
 	first, err := layers.FirstEdits(ctx, src)
 	if err != nil {
