@@ -38,7 +38,7 @@ var allowed = map[string][]string{
 	"audit/checklist":   {"audit/markdown", "audit/study", "audit/episode", "audit/spatial", "layers", "rules"},
 	"audit/proposal": {"audit/checklist", "audit/did", "audit/episode", "audit/markdown", "audit/study",
 		"audit/spatial", "layers", "rules"},
-	"audit": {"audit/checklist", "audit/did", "audit/episode", "audit/match", "audit/panel", "audit/proposal",
+	"audit": {"audit/checklist", "audit/did", "audit/episode", "audit/infer", "audit/match", "audit/panel", "audit/proposal",
 		"audit/spatial", "audit/study", "layers", "rules"},
 	"audit/report": {"audit", "audit/checklist", "audit/did", "audit/episode", "audit/markdown", "audit/match",
 		"audit/panel", "audit/proposal", "audit/spatial", "audit/study", "layers"},

@@ -7,12 +7,10 @@ import (
 	"io"
 	"slices"
 	"sort"
-	"strings"
 
 	"github.com/loadwake/loadwake/audit/checklist"
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/episode"
-	"github.com/loadwake/loadwake/audit/match"
 	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/layers"
@@ -71,8 +69,13 @@ type Report struct {
 	EventStudy []did.EventStudyRow `json:"event_study"`
 	ByCohort   []did.CohortRow     `json:"by_cohort"`
 	Placebo    []did.PlaceboRow    `json:"placebo"`
-	Balance    []BalanceJSON       `json:"balance"`
-	Estimation struct {
+	// Robustness compares each other estimator with the headline per layer.
+	Robustness []Agreement `json:"robustness"`
+	// UnitFigures are descriptive observed and expected edits per import
+	// area (UnitFigure), not per-area effects.
+	UnitFigures []UnitFigure  `json:"unit_figures"`
+	Balance     []BalanceJSON `json:"balance"`
+	Estimation  struct {
 		Window did.Window `json:"event_window"`
 		Draws  int        `json:"bootstrap_draws"`
 		Seed   uint64     `json:"seed"`
@@ -116,7 +119,7 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 }
 
 func newReport(ep *episode.Episode, st *study.Study, est *did.Estimates, so study.Options, spec string) *Report {
-	r := &Report{Schema: Schema, Window: st.Window, Before: so.Before, After: so.After,
+	r := &Report{Schema: Schema, Window: st.Window, Before: so.Before, After: so.After, Robustness: []Agreement{},
 		Effects: est.Effects, EventStudy: est.EventStudy, ByCohort: est.ByCohort, Placebo: est.Placebo, Study: st,
 		Warnings: []string{}, Notes: append([]string{}, st.Notes...), UnitList: st.Units}
 	r.Import = ImportSummary{ID: ep.ID, Changesets: len(ep.Changesets), FirstMonth: ep.FirstMonth,
@@ -127,20 +130,18 @@ func newReport(ep *episode.Episode, st *study.Study, est *did.Estimates, so stud
 	}
 	r.Units = st.Counts(spec)
 	r.Estimation.Window, r.Estimation.Draws, r.Estimation.Seed = est.Window, est.Draws, est.Seed
-	var poor []string
 	for _, b := range st.Balance {
 		r.Balance = append(r.Balance, BalanceJSON{Covariate: b.Name, MeanTreated: orZero(b.MeanTreated),
 			MeanControl: orZero(b.MeanControl), MatchedMeanControl: orZero(b.MatchedMeanControl),
 			SMDBefore: orZero(b.SMD), SMDAfter: orZero(b.MatchedSMD), FlagBefore: b.Imbalanced, FlagAfter: b.MatchedImbalanced})
-		if b.MatchedImbalanced {
-			poor = append(poor, b.Name)
-		}
 	}
-	if len(poor) > 0 {
-		r.Warnings = append(r.Warnings, fmt.Sprintf("poor balance after matching (|SMD| >= %.1f, Austin 2009) on: %s; matched controls differ from import areas before the import",
-			match.BalanceThreshold, strings.Join(poor, ", ")))
-	}
+	var alarms []string
+	r.Robustness, alarms = robustness(est.Effects)
+	r.Warnings = append(r.Warnings, alarms...)
 	r.Warnings = append(r.Warnings, est.Warnings...)
+	r.Warnings = append(r.Warnings, growthWarnings(st.Balance, r.Units.Treated, r.Units.Controls)...)
+	r.Notes = append(r.Notes, est.Notes...)
+	r.UnitFigures = unitFigures(st.Panel, est.Window)
 	if st.Outside > 0 {
 		r.Notes = append(r.Notes, fmt.Sprintf("%d events fell outside every unit and were not counted", st.Outside))
 	}

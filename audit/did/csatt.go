@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
@@ -423,13 +424,16 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 			byCohort[g] = sumPost / float64(nPost)
 		}
 	}
-	adj := 1.0
-	if G > 1 {
-		adj = math.Sqrt(float64(G) / float64(G-1))
-	}
+	// Small-sample factors by arm (see csVarianceFactors): no overall
+	// G/(G−1), which would leave the treated arm's variance shrunk.
+	fT, fC, H, ok := csVarianceFactors(p, cl, G, len(cohorts))
 	scale := func(s []float64) []float64 {
-		for i := range s {
-			s[i] *= adj
+		for g := range s {
+			if tClusters[g] {
+				s[g] *= fT
+			} else {
+				s[g] *= fC
+			}
 		}
 		return s
 	}
@@ -442,32 +446,36 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 		relPhi[u] = (M*overall.phi[u] - theta*treatedMean.phi[u]) / (cf * cf)
 	}
 	sR := scale(clusterSums(relPhi, cl, G))
-	tc := len(tClusters)
-	boot := opts.useBootstrap(tc)
+	boot := opts.Inference == InferenceBootstrap
 	var bd *bootDraws
 	if boot {
 		bd = newBootDraws(rng, opts.Draws, G)
 	}
 	res := &csResult{byCohort: byCohort}
 	e := &estimate{att: theta, treatedUnits: nTreated, controlUnits: len(r.controls)}
-	infer := func(est float64, s []float64) (se, lo, hi, pv float64) {
-		return inferSums(est, s, bd, tc, G)
+	ifInfer := func(est float64, s []float64) (se, lo, hi, pv float64) {
+		return inferSums(est, s, bd, H)
 	}
-	e.se, e.lo, e.hi, e.p = infer(theta, sO)
+	e.se, e.lo, e.hi, e.p = ifInfer(theta, sO)
 	if cf > 0 {
-		_, rlo, rhi, _ := infer(theta/cf, sR)
+		_, rlo, rhi, _ := ifInfer(theta/cf, sR)
 		e.hasRel, e.rel, e.relLo, e.relHi = true, theta/cf, rlo, rhi
 	}
 	name, _ := bootName(G)
 	if boot {
 		e.method = fmt.Sprintf("multiplier-bootstrap-%s-%d", name, opts.Draws)
 	} else {
-		e.method = "analytic-influence-function"
-		if tc < FewTreatedClusters {
-			e.method += "-t(G-1)"
-		}
+		e.method = fmt.Sprintf("influence-function-t(%d)", H-1)
 	}
-	e.note = fmt.Sprintf("%s group-time ATT, never-treated controls, varying base period, %d cohort(s), cohort-size weights over event months 0..%d",
+	if !ok {
+		e.noInterval, e.lo, e.hi, e.relLo, e.relHi = true, theta, theta, e.rel, e.rel
+		e.method += "-no-interval"
+		e.note += "every cohort has one treated cluster, so the treated areas' variance cannot be estimated; "
+	} else if H < infer.MinTreatedForInterval {
+		e.noInterval, e.lo, e.hi, e.relLo, e.relHi = true, theta, theta, e.rel, e.rel
+		e.note += fmt.Sprintf("%d treated clusters are too few for a reliable interval; p is rough; ", H)
+	}
+	e.note += fmt.Sprintf("%s group-time ATT, never-treated controls, varying base period, %d cohort(s), cohort-size weights over event months 0..%d",
 		method, len(cohorts), win.Post-1)
 	res.overall = e
 	gs := make([]int, 0, len(cohortAgg))
@@ -477,7 +485,7 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 	slices.Sort(gs)
 	for _, g := range gs {
 		a := cohortAgg[g]
-		se, lo, hi, _ := infer(a.est, scale(clusterSums(a.phi, cl, G)))
+		se, lo, hi, _ := ifInfer(a.est, scale(clusterSums(a.phi, cl, G)))
 		e.cohorts = append(e.cohorts, cohortPoint{g: g, units: len(cohorts[g]), est: a.est, se: se, lo: lo, hi: hi})
 	}
 	// event study and pre-trend test
@@ -489,7 +497,7 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 			continue
 		}
 		s := scale(clusterSums(a.phi, cl, G))
-		se, lo, hi, _ := infer(a.est, s)
+		se, lo, hi, _ := ifInfer(a.est, s)
 		res.events = append(res.events, eventPoint{e: ei, est: a.est, se: se, lo: lo, hi: hi})
 		if ei < 0 {
 			preEst = append(preEst, a.est)
@@ -508,7 +516,7 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 				v.SetSym(a, b, sum)
 			}
 		}
-		if pv, ok := leadTest(preEst, v, G); ok {
+		if pv, ok := leadTest(preEst, v, H); ok && H >= infer.MinTreatedForInterval {
 			res.preP, res.hasPreP = pv, true
 		}
 	}
@@ -516,38 +524,78 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 }
 
 // inferSums turns an estimate and its cluster influence sums into a standard
-// error, 95% interval and p-value: analytic (normal, or t(G−1) with few treated
-// clusters) or by multiplier bootstrap.
-func inferSums(est float64, s []float64, bd *bootDraws, treatedClusters, G int) (se, lo, hi, p float64) {
+// error, 95% interval and p-value: analytic with t(H−1) quantiles (H the
+// smaller of the treated and untreated cluster counts), or, when bd is given,
+// by the multiplier bootstrap, whose interval est ± the 95% quantile of
+// |Σ v_g s_g| and p-value P(|Σ v_g s_g| ≥ |est|) come from the same draws.
+func inferSums(est float64, s []float64, bd *bootDraws, H int) (se, lo, hi, p float64) {
 	ss := 0.0
 	for _, v := range s {
 		ss += v * v
 	}
 	se = math.Sqrt(ss)
 	if bd == nil {
-		c := critical(treatedClusters, G)
-		return se, est - c*se, est + c*se, pTwoSided(est/se, treatedClusters, G)
+		t := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(max(H-1, 1))}
+		c := t.Quantile(0.975)
+		return se, est - c*se, est + c*se, 2 * t.Survival(math.Abs(est/se))
 	}
-	d := make([]float64, bd.B)
-	for i := range d {
-		v := bd.v[i*G : (i+1)*G]
+	abs := make([]float64, bd.B)
+	hits := 0
+	for i := range abs {
+		v := bd.v[i*bd.G : (i+1)*bd.G]
 		x := 0.0
 		for g, sg := range s {
 			x += v[g] * sg
 		}
-		d[i] = x
-	}
-	abs := make([]float64, bd.B)
-	for i, x := range d {
 		abs[i] = math.Abs(x)
+		if abs[i] >= math.Abs(est) {
+			hits++
+		}
 	}
 	q := quantile(abs, 0.95)
-	iqr := quantile(d, 0.75) - quantile(d, 0.25)
-	seB := iqr / (distuv.UnitNormal.Quantile(0.75) - distuv.UnitNormal.Quantile(0.25))
-	if !(seB > 0) {
-		seB = se
+	return se, est - q, est + q, float64(hits+1) / float64(bd.B+1)
+}
+
+// csVarianceFactors returns the factors that scale the cluster influence
+// sums of treated clusters (fT) and untreated clusters (fC), H the smaller of
+// the two cluster counts, and ok false when the treated arm's variance
+// cannot be estimated. The treated units' influence is taken around their
+// cohort's mean, so the treated sums lose one degree of freedom per cohort:
+// their sum of squares estimates (H_T − C)/H_T of the variance (H_T treated
+// clusters, C cohorts), and fT = √(H_T/(H_T − C)); the controls' around one
+// mean, fC = √(H_C/(H_C − 1)). This is the HC1 correction applied to each
+// arm of a difference of means, as in the two-sample variance of a
+// difference (Imbens & Kolesár 2016 discuss why the arm with few clusters
+// drives the reference distribution, whence t(H − 1)). With C ≥ H_T
+// (every cohort one treated cluster) no within-cohort variance exists.
+func csVarianceFactors(p *panel.Panel, cl []int, G, cohorts int) (fT, fC float64, H int, ok bool) {
+	tcl := make([]bool, G)
+	for u, un := range p.Units {
+		if un.FirstTreated >= 1 && un.Weight > 0 {
+			tcl[cl[u]] = true
+		}
 	}
-	return seB, est - q, est + q, 2 * distuv.UnitNormal.Survival(math.Abs(est/seB))
+	ccl := map[int]bool{}
+	for u, un := range p.Units {
+		if un.FirstTreated == -1 && un.Weight > 0 && !tcl[cl[u]] {
+			ccl[cl[u]] = true
+		}
+	}
+	hT, hC := 0, len(ccl)
+	for _, t := range tcl {
+		if t {
+			hT++
+		}
+	}
+	H = min(hT, hC)
+	fC = 1
+	if hC > 1 {
+		fC = math.Sqrt(float64(hC) / float64(hC-1))
+	}
+	if hT <= cohorts {
+		return 1, fC, H, false
+	}
+	return math.Sqrt(float64(hT) / float64(hT-cohorts)), fC, H, true
 }
 
 // placebo is a cs-att estimate with start dates moved back.
@@ -592,15 +640,21 @@ func placeboCS(p *panel.Panel, y []float64, cl []int, G int, opts Options, rng *
 		}
 	}
 	sums := clusterSums(agg.phi, cl, G)
-	if G > 1 {
-		for i := range sums {
-			sums[i] *= math.Sqrt(float64(G) / float64(G-1))
+	fT, fC, H, ok := csVarianceFactors(p, cl, G, len(cohorts))
+	if !ok {
+		return nil, errors.New("every cohort has one treated cluster: no placebo interval")
+	}
+	for g := range sums {
+		if tClusters[g] {
+			sums[g] *= fT
+		} else {
+			sums[g] *= fC
 		}
 	}
 	var bd *bootDraws
-	if opts.useBootstrap(len(tClusters)) {
+	if opts.Inference == InferenceBootstrap {
 		bd = newBootDraws(rng, opts.Draws, G)
 	}
-	_, lo, hi, pv := inferSums(agg.est, sums, bd, len(tClusters), G)
+	_, lo, hi, pv := inferSums(agg.est, sums, bd, H)
 	return &placebo{att: agg.est, lo: lo, hi: hi, p: pv, ok: true}, nil
 }

@@ -67,10 +67,10 @@ func TestDiD2x2CardKrueger(t *testing.T) {
 }
 
 // TestCSEqualsDiD2x2 checks on random two-period panels that the group-time
-// estimator with one cohort and two months is exactly the 2x2 DiD, point and
-// standard error up to the degrees-of-freedom factor (CS 2021, section 2: the
-// 2x2 is the building block). Random values: the identity must hold for any
-// data.
+// estimator with one cohort and two months is exactly the 2x2 DiD (CS 2021,
+// section 2: the 2x2 is the building block), and that its standard error is
+// the two-sample one with each arm's own degrees of freedom. Random values:
+// the identities must hold for any data.
 func TestCSEqualsDiD2x2(t *testing.T) {
 	rng := rand.New(rand.NewPCG(7, 7))
 	for trial := range 20 {
@@ -82,8 +82,9 @@ func TestCSEqualsDiD2x2(t *testing.T) {
 			co = append(co, [2]float64{rng.Float64() * 10, rng.Float64() * 10})
 		}
 		p := twoPeriodPanel(tr, co)
+		weighted := trial%2 == 1
 		for i := range p.Units {
-			if !p.Units[i].Treated() {
+			if !p.Units[i].Treated() && weighted {
 				p.Units[i].Weight = 0.5 + rng.Float64()
 			}
 		}
@@ -101,11 +102,28 @@ func TestCSEqualsDiD2x2(t *testing.T) {
 		if math.Abs(d.att-cs.overall.att) > 1e-10 {
 			t.Errorf("trial %d: did-2x2 %v, cs-att %v", trial, d.att, cs.overall.att)
 		}
-		// CR1 of the regression on long differences vs the influence-function
-		// variance with G/(G−1): they differ only by (N−1)/(N−K), K = 2.
-		n := float64(len(p.Units))
-		if want := cs.overall.se * math.Sqrt((n-1)/(n-2)); math.Abs(d.se-want) > 1e-9*want {
-			t.Errorf("trial %d: did-2x2 SE %v, cs-att SE x dof %v", trial, d.se, want)
+		if weighted {
+			continue
+		}
+		// One cohort, one pre and one post month, one unit per cluster: the
+		// influence-function variance with the per-arm HC1 factors is the
+		// unequal-variance two-sample variance of the mean changes,
+		// s_T²/n_T + s_C²/n_C (Welch 1947; R's t.test(var.equal = FALSE)).
+		welch := 0.0
+		for _, arm := range [][][2]float64{tr, co} {
+			m := 0.0
+			for _, v := range arm {
+				m += v[1] - v[0]
+			}
+			m /= float64(len(arm))
+			ss := 0.0
+			for _, v := range arm {
+				ss += (v[1] - v[0] - m) * (v[1] - v[0] - m)
+			}
+			welch += ss / float64(len(arm)-1) / float64(len(arm))
+		}
+		if want := math.Sqrt(welch); math.Abs(cs.overall.se-want) > 1e-9*want {
+			t.Errorf("trial %d: cs-att SE %v, Welch two-sample SE %v", trial, cs.overall.se, want)
 		}
 	}
 }

@@ -7,6 +7,7 @@ import (
 	"runtime"
 	"sync"
 
+	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
 )
 
@@ -29,7 +30,7 @@ func Estimate(ctx context.Context, p *panel.Panel, opts Options) (*Estimates, er
 		return nil, err
 	}
 	out := &Estimates{Window: opts.Window, Draws: opts.Draws, Seed: opts.Seed, Cautions: estimateCautions,
-		Effects: []Effect{}, EventStudy: []EventStudyRow{}, ByCohort: []CohortRow{}, Placebo: []PlaceboRow{}, Warnings: []string{}}
+		Effects: []Effect{}, EventStudy: []EventStudyRow{}, ByCohort: []CohortRow{}, Placebo: []PlaceboRow{}, Warnings: []string{}, Notes: []string{}}
 	cl, G := p.ClusterIndex()
 	nT, nC, early := 0, 0, 0
 	for _, u := range p.Units {
@@ -60,8 +61,9 @@ func Estimate(ctx context.Context, p *panel.Panel, opts Options) (*Estimates, er
 			tcl[cl[u]] = true
 		}
 	}
-	if len(tcl) < FewTreatedClusters {
-		out.Warnings = append(out.Warnings, fmt.Sprintf("only %d treated clusters (< %d): intervals use the wild or multiplier bootstrap (inference %q) and t(G-1) quantiles; read them as rough", len(tcl), FewTreatedClusters, opts.Inference))
+	if h := min(len(tcl), G-len(tcl)); h < infer.MinTreatedForInterval {
+		out.Notes = append(out.Notes, fmt.Sprintf("only %d treated clusters: no interval is reliable with fewer than %d; the %s p-values come from a randomization test over the eligible comparison areas",
+			h, infer.MinTreatedForInterval, Headline))
 	}
 	design, desErr := newESDesign(p, opts.Window)
 	dr := len(p.Units[0].Covariates) > 0
@@ -81,7 +83,7 @@ func Estimate(ctx context.Context, p *panel.Panel, opts Options) (*Estimates, er
 			if ctx.Err() != nil {
 				return
 			}
-			results[o] = estimateOutcome(p, o, cl, G, opts, design, desErr, dr)
+			results[o] = estimateOutcome(ctx, p, o, cl, G, opts, design, desErr, dr)
 		}()
 	}
 	wg.Wait()
@@ -94,8 +96,37 @@ func Estimate(ctx context.Context, p *panel.Panel, opts Options) (*Estimates, er
 		out.ByCohort = append(out.ByCohort, r.cohorts...)
 		out.Placebo = append(out.Placebo, r.placebo...)
 		out.Warnings = append(out.Warnings, r.warnings...)
+		out.Notes = append(out.Notes, r.notes...)
 	}
+	out.Warnings = append(out.Warnings, preTrendWarnings(p.Outcomes, results)...)
 	return out, nil
+}
+
+// preTrendWarnings warns for each outcome whose headline pre-trend test
+// rejects at 5% after Holm's adjustment across the outcomes tested (one
+// family: an audit tests every layer, and unadjusted tests would raise an
+// alarm on some layer of most audits with parallel trends).
+func preTrendWarnings(names []string, results []outcomeResult) []string {
+	var ps []float64
+	var idx []int
+	for o, r := range results {
+		if r.headHas {
+			ps = append(ps, r.headPre)
+			idx = append(idx, o)
+		}
+	}
+	adj, err := infer.Holm(ps)
+	if err != nil {
+		return nil
+	}
+	var out []string
+	for i, o := range idx {
+		if adj[i] < 0.05 {
+			out = append(out, fmt.Sprintf("%s: before the import, import areas and comparison areas moved apart (%s joint test of the event study's leads: p = %.3g, %.3g after Holm's adjustment across %d outcomes); the comparison may not show what would have happened without the import",
+				names[o], Headline, ps[i], adj[i], len(ps)))
+		}
+	}
+	return out
 }
 
 type outcomeResult struct {
@@ -104,14 +135,20 @@ type outcomeResult struct {
 	cohorts  []CohortRow
 	placebo  []PlaceboRow
 	warnings []string
+	notes    []string
+	headPre  float64 // the headline's joint lead test, when headHas
+	headHas  bool
 }
 
-func estimateOutcome(p *panel.Panel, o int, cl []int, G int, opts Options, design *esDesign, desErr error, dr bool) outcomeResult {
+func estimateOutcome(ctx context.Context, p *panel.Panel, o int, cl []int, G int, opts Options, design *esDesign, desErr error, dr bool) outcomeResult {
 	name := p.Outcomes[o]
 	y := p.Y[o]
 	var r outcomeResult
 	warn := func(format string, args ...any) {
 		r.warnings = append(r.warnings, fmt.Sprintf("%s: ", name)+fmt.Sprintf(format, args...))
+	}
+	note := func(format string, args ...any) {
+		r.notes = append(r.notes, fmt.Sprintf("%s: ", name)+fmt.Sprintf(format, args...))
 	}
 	total := 0.0
 	for u, un := range p.Units {
@@ -126,25 +163,40 @@ func estimateOutcome(p *panel.Panel, o int, cl []int, G int, opts Options, desig
 		return r
 	}
 	add := func(est string, e *estimate, err error) {
+		// Problems with the headline are warnings; with the robustness
+		// estimators, information (notes), so that one audit raises few
+		// alarms (the headline's pre-trend tests are Holm-adjusted across
+		// outcomes in Estimate).
+		flag := note
+		if est == Headline {
+			flag = warn
+		}
 		if err != nil {
 			if errors.Is(err, errSingular) {
-				warn("%s: singular design: %v", est, err)
+				flag("%s: singular design: %v", est, err)
 			} else {
-				warn("%s: %v", est, err)
+				flag("%s: %v", est, err)
 			}
 			return
 		}
 		eff, ok := e.effect(name, est)
 		if !ok {
-			warn("%s: estimate not finite (too little variation); left out", est)
+			flag("%s: estimate not finite (too little variation); left out", est)
 			return
 		}
 		r.effects = append(r.effects, eff)
-		if e.hasPre && e.preP < 0.05 {
-			warn("%s: pre-trend test fails (p = %.3g): treated and control areas moved differently before the import", est, e.preP)
+		switch {
+		case est == Headline:
+			r.headPre, r.headHas = e.preP, e.hasPre
+		case e.hasPre && e.preP < 0.05:
+			note("%s (robustness check): its pre-trend test gives p = %.3g", est, e.preP)
+		}
+		scale := ScaleCount
+		if est == EstimatorPPML {
+			scale = ScaleRelative
 		}
 		for _, ev := range e.events {
-			row := EventStudyRow{Layer: name, Estimator: est, EventTime: ev.e, Estimate: ev.est, CI95: [2]float64{ev.lo, ev.hi}, SE: ev.se}
+			row := EventStudyRow{Layer: name, Estimator: est, Scale: scale, EventTime: ev.e, Estimate: ev.est, CI95: [2]float64{ev.lo, ev.hi}, SE: ev.se}
 			if ev.reference {
 				row.CI95 = [2]float64{0, 0}
 			}
@@ -173,15 +225,15 @@ func estimateOutcome(p *panel.Panel, o int, cl []int, G int, opts Options, desig
 		if pl, err := placeboCS(p, y, cl, G, opts, rngFor(opts.Seed, name, "placebo")); err == nil {
 			r.placebo = append(r.placebo, pl.row(name, opts.PlaceboShift)...)
 			if len(pl.row(name, opts.PlaceboShift)) > 0 && pl.p < 0.05 {
-				warn("cs-att placebo %d months early shows an effect (p = %.3g): anticipation or diverging trends", opts.PlaceboShift, pl.p)
+				note("cs-att placebo %d months early (robustness check) gives p = %.3g", opts.PlaceboShift, pl.p)
 			}
 		} else {
-			warn("placebo: %v", err)
+			note("placebo: %v", err)
 		}
 	} else {
 		add(EstimatorCS, nil, err)
 	}
-	pp, err := stackedPPML(p, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorPPML))
+	pp, err := stackedPPML(ctx, p, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorPPML))
 	add(EstimatorPPML, pp, err)
 	if desErr != nil {
 		add(EstimatorTWFELinear, nil, desErr)

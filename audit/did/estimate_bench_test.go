@@ -66,7 +66,7 @@ func BenchmarkEstimators(b *testing.B) {
 		return err
 	})
 	run(EstimatorPPML, func() error {
-		_, err := stackedPPML(p, y, cl, G, opts, rng)
+		_, err := stackedPPML(context.Background(), p, y, cl, G, opts, rng)
 		return err
 	})
 	run(EstimatorTWFELinear, func() error {

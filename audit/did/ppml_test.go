@@ -1,6 +1,8 @@
 package did
 
 import (
+	"context"
+	"errors"
 	"math"
 	"testing"
 
@@ -105,7 +107,7 @@ func TestStackedPoissonMatchesDummyFit(t *testing.T) {
 		}
 		cl, G := p.ClusterIndex()
 		st := stackPanel(p, p.Y[0], cl, Window{Pre: 4, Post: 6}, 0)
-		fast, err := fitStackedPoisson(st.y, st.d, st.w, st.cl, G, st.blocks, st.n2)
+		fast, err := fitStackedPoisson(st.y, [][]float64{st.d}, st.w, st.cl, G, st.blocks, st.n2)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -127,5 +129,97 @@ func TestStackedPoissonMatchesDummyFit(t *testing.T) {
 				t.Fatalf("seed %d: cluster %d contribution %v vs %v", seed, g, fast.a[0][g], slow.a[0][g])
 			}
 		}
+	}
+}
+
+// TestStackedPoissonEventStudyMatchesDummyFit: with one regressor per event
+// month the concentrated fit must still give the dummy-variable fit's
+// coefficients and CR1 covariance (fitPoissonFE, checked against R's glm).
+func TestStackedPoissonEventStudyMatchesDummyFit(t *testing.T) {
+	w := paneltest.World{PerCohort: 8, Cohorts: []int{5, 8}, Controls: 20, Months: 14, Delta: 0.3}
+	p := w.Panel(4)
+	for u := 30; u < 36; u++ {
+		p.Units[u].Weight = 0.5 + float64(u%3)/2
+	}
+	cl, G := p.ClusterIndex()
+	win := Window{Pre: 3, Post: 4}
+	st := stackPanel(p, p.Y[0], cl, win, 0)
+	var x [][]float64
+	for e := -win.Pre; e < win.Post; e++ {
+		if e == -1 {
+			continue
+		}
+		col := make([]float64, len(st.y))
+		for i, ev := range st.ev {
+			if ev == e {
+				col[i] = 1
+			}
+		}
+		x = append(x, col)
+	}
+	fast, err := fitStackedPoisson(st.y, x, st.w, st.cl, G, st.blocks, st.n2)
+	if err != nil {
+		t.Fatal(err)
+	}
+	slow, err := fitPoissonFE(st.y, x, st.f1, st.n1, st.f2, st.n2, st.w, st.cl, G)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for j := range x {
+		if math.Abs(fast.beta[j]-slow.beta[j]) > 1e-8 {
+			t.Errorf("b[%d] %v concentrated, %v dummy fit", j, fast.beta[j], slow.beta[j])
+		}
+		for k := range x {
+			if v1, v2 := fast.vcov.At(j, k), slow.vcov.At(j, k); math.Abs(v1-v2) > 1e-6*math.Sqrt(slow.vcov.At(j, j)*slow.vcov.At(k, k)) {
+				t.Errorf("V[%d,%d] %v concentrated, %v dummy fit", j, k, v1, v2)
+			}
+		}
+	}
+}
+
+// TestPPMLFewTreatedUsesRandomization: with three treated units no interval
+// is reliable (infer.MinTreatedForInterval), so the headline gives none, its
+// p-value is the randomization test's, and a planted +150% is still found.
+func TestPPMLFewTreatedUsesRandomization(t *testing.T) {
+	w := paneltest.World{PerCohort: 3, Cohorts: []int{8}, Controls: 17, Months: 16, Delta: 1.5}
+	p := w.Panel(11)
+	opts := DefaultOptions()
+	opts.Window = Window{Pre: 6, Post: 8}
+	cl, G := p.ClusterIndex()
+	e, err := stackedPPML(context.Background(), p, p.Y[0], cl, G, opts, rngFor(1, "layer0", EstimatorPPML))
+	if err != nil {
+		t.Fatal(err)
+	}
+	// C(20, 3) = 1140 reassignments, all enumerated.
+	if !e.noInterval || e.method != "randomization-exact-1140" {
+		t.Errorf("method %q, no interval %v; want randomization-exact-1140 and no interval", e.method, e.noInterval)
+	}
+	if e.relLo != e.rel || e.relHi != e.rel {
+		t.Errorf("interval [%v, %v] around %v; want none", e.relLo, e.relHi, e.rel)
+	}
+	if e.p > 0.01 || e.p < 1.0/1140 {
+		t.Errorf("randomization p %v for a planted +150%%; want in [1/1140, 0.01]", e.p)
+	}
+	if e.hasPre {
+		t.Errorf("pre-trend p %v with 3 treated clusters; want no test", e.preP)
+	}
+}
+
+// TestPPMLSeparatedLayer: a layer where every import area has zero counts
+// after the import is diagnosed by name (ErrSeparated), not estimated.
+func TestPPMLSeparatedLayer(t *testing.T) {
+	w := paneltest.World{PerCohort: 6, Cohorts: []int{8}, Controls: 12, Months: 16}
+	p := w.Panel(3)
+	for u, un := range p.Units {
+		if un.Treated() {
+			for m := un.FirstTreated; m < p.Months; m++ {
+				p.Y[0][u*p.Months+m] = 0
+			}
+		}
+	}
+	cl, G := p.ClusterIndex()
+	_, err := stackedPPML(context.Background(), p, p.Y[0], cl, G, DefaultOptions(), rngFor(1, "layer0", EstimatorPPML))
+	if !errors.Is(err, ErrSeparated) {
+		t.Fatalf("error %v, want ErrSeparated", err)
 	}
 }

@@ -18,6 +18,7 @@ type estimate struct {
 	att, se, lo, hi, p         float64
 	rel, relLo, relHi          float64
 	hasRel                     bool
+	noInterval                 bool // too few treated clusters: p from randomization, no interval
 	preP                       float64
 	hasPre                     bool
 	treatedUnits, controlUnits int
@@ -63,7 +64,7 @@ func rngFor(seed uint64, outcome, estimator string) *rand.Rand {
 // effect converts e to an Effect, reporting false when a number is not finite.
 func (e *estimate) effect(layer, est string) (Effect, bool) {
 	eff := Effect{Layer: layer, Estimator: est, ATT: e.att, SE: e.se, PValue: e.p, CI95: [2]float64{e.lo, e.hi},
-		TreatedUnits: e.treatedUnits, ControlUnits: e.controlUnits, Method: e.method, Note: e.note}
+		TreatedUnits: e.treatedUnits, ControlUnits: e.controlUnits, Method: e.method, Note: e.note, NoInterval: e.noInterval}
 	for _, v := range []float64{e.att, e.se, e.p, e.lo, e.hi} {
 		if !finite(v) {
 			return eff, false

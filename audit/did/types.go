@@ -1,6 +1,15 @@
 package did
 
-import "fmt"
+import (
+	"errors"
+	"fmt"
+)
+
+// ErrSeparated marks an outcome whose Poisson fit has no finite estimate:
+// the import areas' counts are all zero on one side of the import
+// (separation; Correia, Guimarães & Zylkin 2021 on existence of Poisson
+// estimates).
+var ErrSeparated = errors.New("did: Poisson layer separated")
 
 // The estimators' options and results: what Estimate takes and returns, and
 // what every estimator file shares.
@@ -19,6 +28,12 @@ const (
 	InferenceBootstrap = "bootstrap" // always bootstrap
 )
 
+// Scales of EventStudyRow.
+const (
+	ScaleRelative = "relative" // exp(b) − 1
+	ScaleCount    = "count"    // events per unit-month
+)
+
 // Window is the event window around each cohort's first treated month: Pre
 // months before (event times −Pre..−1) and Post months from it (0..Post−1).
 type Window struct {
@@ -34,7 +49,17 @@ type Options struct {
 	Inference    string // InferenceAuto, InferenceAnalytic or InferenceBootstrap
 	PlaceboShift int    // months the placebo moves each start back (default Window.Pre/2, at least 1)
 	Workers      int    // outcomes estimated in parallel; 0 = GOMAXPROCS
+	// PoissonInference chooses the headline's interval with enough treated
+	// clusters: PoissonScoreBootstrap (default, also for "") or PoissonCR1T.
+	PoissonInference string
 }
+
+// Headline inference with at least infer.MinTreatedForInterval treated
+// clusters (Options.PoissonInference).
+const (
+	PoissonScoreBootstrap = "score-bootstrap" // Kline & Santos, null imposed, inverted
+	PoissonCR1T           = "cr1-t"           // CR1 t ratio against t(H − 1)
+)
 
 // DefaultOptions returns the defaults: a window of 12 months before
 // and 24 from treatment, 999 bootstrap draws, seed 1, automatic inference,
@@ -61,6 +86,8 @@ func (o Options) validate() error {
 		return fmt.Errorf("audit: %d bootstrap draws; use at least 99", o.Draws)
 	case o.Inference != InferenceAuto && o.Inference != InferenceAnalytic && o.Inference != InferenceBootstrap:
 		return fmt.Errorf("audit: inference %q; want auto, analytic or bootstrap", o.Inference)
+	case o.PoissonInference != "" && o.PoissonInference != PoissonScoreBootstrap && o.PoissonInference != PoissonCR1T:
+		return fmt.Errorf("audit: poisson inference %q; want %s or %s", o.PoissonInference, PoissonScoreBootstrap, PoissonCR1T)
 	case o.PlaceboShift < 0:
 		return fmt.Errorf("audit: placebo shift %d months is negative", o.PlaceboShift)
 	}
@@ -72,7 +99,11 @@ func (o Options) validate() error {
 // when RelativeEffect is set, otherwise of ATT. ATT is in outcome units
 // (events per unit-month); RelativeEffect is ATT over the treated units'
 // counterfactual mean (post-period treated mean − ATT); for ppml-twfe it is
-// exp(b) − 1. Null fields were not computed (see Note).
+// exp(b) − 1 and SE is the cluster-robust standard error of b (log points).
+// NoInterval is true when the treated clusters are too few for any interval
+// to be reliable: CI95 then collapses to the estimate and PValue is the
+// randomization test's (Method says which). Null fields were not computed
+// (see Note).
 type Effect struct {
 	Layer          string     `json:"layer"`
 	Estimator      string     `json:"estimator"`
@@ -85,15 +116,19 @@ type Effect struct {
 	TreatedUnits   int        `json:"treated_units"`
 	ControlUnits   int        `json:"control_units"`
 	Method         string     `json:"method"`
+	NoInterval     bool       `json:"no_interval"`
 	Note           string     `json:"note"`
 }
 
-// EventStudyRow is one event-time coefficient (ATT in outcome units; the
-// reference period −1 of twfe-linear is 0 by construction and listed with
-// zero interval).
+// EventStudyRow is one event-time coefficient. Scale says what Estimate and
+// CI95 are: ScaleRelative (ppml-twfe: exp(b_e) − 1, SE of b_e in log points)
+// or ScaleCount (ATT in outcome units). The reference period −1 is 0 by
+// construction and listed with zero interval; a row whose CI95 equals its
+// estimate has no band (too few treated clusters).
 type EventStudyRow struct {
 	Layer     string     `json:"layer"`
 	Estimator string     `json:"estimator"`
+	Scale     string     `json:"scale"`
 	EventTime int        `json:"event_time"`
 	Estimate  float64    `json:"estimate"`
 	CI95      [2]float64 `json:"ci95"`
@@ -134,7 +169,8 @@ type Estimates struct {
 	EventStudy []EventStudyRow `json:"event_study"`
 	ByCohort   []CohortRow     `json:"by_cohort"`
 	Placebo    []PlaceboRow    `json:"placebo"`
-	Warnings   []string        `json:"warnings"`
+	Warnings   []string        `json:"warnings"` // problems with the headline estimator
+	Notes      []string        `json:"notes"`    // information: robustness checks' own tests and failures
 	Cautions   []string        `json:"cautions"`
 }
 

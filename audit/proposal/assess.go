@@ -543,8 +543,10 @@ func nearestImports(pr *Profile, eps []episode.Episode, ips []importProfile, n i
 
 // AddPastAudits adds what the audits of the nearest past imports found:
 // effects by episode id give an expected range per layer (over those imports,
-// the lowest lower and highest upper 95% limit of one estimator, cs-att when
-// present), and their checklists the keys they neglected that the proposal
+// the lowest lower and highest upper 95% limit of the headline estimator,
+// did.Headline, the one each past audit's own summary reports; an import
+// whose headline has no reliable interval is named in the notes and left
+// out of the range), and their checklists the keys they neglected that the proposal
 // also lacks: a neglected key (primary reference) of a class the proposal
 // has, where the checklist.Wilson upper 95% limit of the proposal's share lies below
 // the reference share. Imports not among Nearest are ignored.
@@ -559,14 +561,17 @@ func (a *Assessment) AddPastAudits(effects map[string][]did.Effect, checklists m
 		id := m.Episode.ID
 		byLayer := map[string]did.Effect{}
 		for _, e := range effects[id] {
-			cur, ok := byLayer[e.Layer]
-			if !ok || e.Estimator == did.EstimatorCS && cur.Estimator != did.EstimatorCS {
+			if e.Estimator == did.Headline {
 				byLayer[e.Layer] = e
 			}
 		}
 		for _, l := range layers.Layers {
 			e, ok := byLayer[l.String()]
 			if !ok || math.IsNaN(e.CI95[0]) || math.IsNaN(e.CI95[1]) {
+				continue
+			}
+			if e.NoInterval {
+				a.Notes = append(a.Notes, fmt.Sprintf("layer %s: past import %s has no reliable interval (%d import areas; %s) and is left out of the range", e.Layer, id, e.TreatedUnits, e.Method))
 				continue
 			}
 			ac := ranges[e.Layer]

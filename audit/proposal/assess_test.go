@@ -308,8 +308,10 @@ func TestAddPastAudits(t *testing.T) {
 	effects := map[string][]did.Effect{
 		"imp-1": {{Layer: "attribute", Estimator: did.EstimatorCS, RelativeEffect: rel(-0.3), CI95: [2]float64{-0.5, -0.1}},
 			{Layer: "attribute", Estimator: did.EstimatorPPML, RelativeEffect: rel(-0.9), CI95: [2]float64{-0.95, -0.85}}},
-		"imp-2": {{Layer: "attribute", Estimator: did.EstimatorCS, RelativeEffect: rel(-0.1), CI95: [2]float64{-0.2, 0.05}}},
-		"imp-9": {{Layer: "attribute", Estimator: did.EstimatorCS, RelativeEffect: rel(5), CI95: [2]float64{4, 6}}},
+		"imp-2": {{Layer: "attribute", Estimator: did.EstimatorCS, RelativeEffect: rel(-0.1), CI95: [2]float64{-0.2, 0.05}},
+			{Layer: "attribute", Estimator: did.EstimatorPPML, RelativeEffect: rel(-0.2), CI95: [2]float64{-0.4, 0.1}},
+			{Layer: "geometry", Estimator: did.EstimatorPPML, RelativeEffect: rel(0.3), CI95: [2]float64{0.3, 0.3}, NoInterval: true, TreatedUnits: 2}},
+		"imp-9": {{Layer: "attribute", Estimator: did.EstimatorPPML, RelativeEffect: rel(5), CI95: [2]float64{4, 6}}},
 	}
 	cls := map[string]*checklist.Checklist{"imp-1": {Rows: []checklist.Row{
 		{Class: "building=*", Key: "building:levels", Reference: checklist.RefMatchedControls, Neglected: true, ImportShare: 0.05, ReferenceShare: 0.55},
@@ -320,8 +322,13 @@ func TestAddPastAudits(t *testing.T) {
 		t.Fatalf("expected ranges %+v", a.Expected)
 	}
 	r := a.Expected[0]
-	if r.Estimator != did.EstimatorCS || r.Low != -0.5 || r.High != 0.05 || len(r.Imports) != 2 {
-		t.Errorf("range %+v; want cs-att from -0.5 to 0.05 over imp-1 and imp-2", r)
+	// The range is the headline's, as each past audit's summary reports it;
+	// a headline without a reliable interval is named, not ranged.
+	if r.Estimator != did.Headline || r.Low != -0.95 || r.High != 0.1 || len(r.Imports) != 2 {
+		t.Errorf("range %+v; want ppml-twfe from -0.95 to 0.1 over imp-1 and imp-2", r)
+	}
+	if !strings.Contains(strings.Join(a.Notes, "\n"), "layer geometry: past import imp-2 has no reliable interval") {
+		t.Errorf("notes %v; want imp-2's geometry named as without an interval", a.Notes)
 	}
 	if len(a.Lacking) != 1 || a.Lacking[0].Key != "building:levels" {
 		t.Errorf("lacking %+v; want building:levels only (addr:street is on 95%% of proposed features)", a.Lacking)

@@ -127,28 +127,14 @@ func tidySVG(b []byte, label string) []byte {
 	return []byte(strings.TrimSpace(s) + "\n")
 }
 
-// chartEstimator picks the estimator whose event study a layer's chart shows:
-// the linear event study (it has a fixed reference month), else cs-att, else
-// whatever is there.
+// chartEstimator picks the estimator whose event study a layer's chart
+// shows: the headline (did.Headline), so the chart tells the summary's
+// story; a report without headline rows shows no event-study chart.
 func chartEstimator(rows []did.EventStudyRow, layer string) string {
-	have := map[string]bool{}
 	for _, r := range rows {
-		if r.Layer == layer {
-			have[r.Estimator] = true
+		if r.Layer == layer && r.Estimator == headlineEstimator {
+			return headlineEstimator
 		}
-	}
-	for _, e := range []string{"twfe-linear", "cs-att"} {
-		if have[e] {
-			return e
-		}
-	}
-	var names []string
-	for e := range have {
-		names = append(names, e)
-	}
-	sort.Strings(names)
-	if len(names) > 0 {
-		return names[0]
 	}
 	return ""
 }
@@ -172,7 +158,18 @@ func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool,
 	sort.Slice(sel, func(i, j int) bool { return sel[i].EventTime < sel[j].EventTime })
 	p := newPlot(fmt.Sprintf("%s edits around the import (%s)", capital(strings.ReplaceAll(layer, "_", " ")), est))
 	p.X.Label.Text = "months since the import reached the area"
+	// Relative rows (the Poisson event study) are drawn in percent.
+	scale := 1.0
 	p.Y.Label.Text = "difference in edits per area-month"
+	if len(sel) > 0 && sel[0].Scale == did.ScaleRelative {
+		scale = 100
+		p.Y.Label.Text = "change against the comparison areas, %"
+	}
+	for i := range sel {
+		sel[i].Estimate *= scale
+		sel[i].CI95[0] *= scale
+		sel[i].CI95[1] *= scale
+	}
 
 	pts := make(plotter.XYs, len(sel))
 	band := make(plotter.XYs, 0, 2*len(sel))

@@ -3,8 +3,7 @@ package report
 import (
 	"fmt"
 	"io"
-	"slices"
-	"strings"
+	"math"
 
 	"github.com/paulmach/orb/geojson"
 
@@ -13,14 +12,18 @@ import (
 	"github.com/loadwake/loadwake/layers"
 )
 
+// unitFiguresLabel says what a unit's observed and expected figures are.
+const unitFiguresLabel = "descriptive, not an effect estimate: observed edits in the months after the import reached this area, and the edits expected from its own months before times the growth its comparison areas saw"
+
 // WriteUnitsGeoJSON writes every unit as an RFC 7946 Feature with the
 // properties id, status (treated, control, unmatched, dropped, excluded),
 // reason, intensity, first_month (null when the import never reached it),
-// weight, import_features and, per layer, ESTIMATOR_relative_LAYER for the
-// headline estimator (ppml_twfe_relative_attribute, ...) and for cs-att
-// (cs_att_relative_attribute, ...): the import's relative effect in that layer
-// (the same for every unit; null when not estimated), so a map can label
-// import areas with it.
+// weight, import_features and, per layer, observed_LAYER and expected_LAYER
+// (observed_attribute, ...): for an import area, its edits in the months
+// after the import reached it against its own edits before times the growth
+// its comparison areas saw (audit.UnitFigure; null for other areas). These
+// are descriptive figures of one area, labelled so by the figures property,
+// not the import's effect there: the pooled effect is the report's headline.
 func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.Report) error {
 	if shapes == nil {
 		return fmt.Errorf("%w: no units", ErrInput)
@@ -31,19 +34,17 @@ func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.Report) error {
 			info[u.ID] = u
 		}
 	}
-	ests := []string{headlineEstimator, "cs-att"}
-	prop := func(est, layer string) string { return strings.ReplaceAll(est, "-", "_") + "_relative_" + layer }
-	effects := map[string]any{}
-	for _, est := range ests {
-		for _, l := range layers.Layers {
-			effects[prop(est, l.String())] = nil
-		}
-	}
+	figures := map[string]map[string]any{} // unit → property → value
 	if r != nil {
-		for _, e := range r.Effects {
-			if _, ok := layers.ParseLayer(e.Layer); ok && slices.Contains(ests, e.Estimator) && e.RelativeEffect != nil {
-				effects[prop(e.Estimator, e.Layer)] = *e.RelativeEffect
+		for _, f := range r.UnitFigures {
+			if _, ok := layers.ParseLayer(f.Layer); !ok {
+				continue
 			}
+			if figures[f.Unit] == nil {
+				figures[f.Unit] = map[string]any{}
+			}
+			figures[f.Unit]["observed_"+f.Layer] = f.Observed
+			figures[f.Unit]["expected_"+f.Layer] = math.Round(100*f.Expected) / 100
 		}
 	}
 	fc := geojson.NewFeatureCollection()
@@ -71,8 +72,12 @@ func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.Report) error {
 		}
 		f.Properties["weight"] = u.Weight
 		f.Properties["import_features"] = u.ImportFeatures
-		for k, v := range effects {
-			f.Properties[k] = v
+		for _, l := range layers.Layers {
+			f.Properties["observed_"+l.String()] = figures[id]["observed_"+l.String()]
+			f.Properties["expected_"+l.String()] = figures[id]["expected_"+l.String()]
+		}
+		if figures[id] != nil {
+			f.Properties["figures"] = unitFiguresLabel
 		}
 		fc.Append(f)
 	}

@@ -160,6 +160,16 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 </table>
 <p class="muted">Differences are standardized mean differences: the gap between the group means in standard deviations. Within ±0.1 counts as alike.</p>
 {{end}}</section>
+{{end}}{{if .Robust}}<section id="robustness">
+<h2>Robustness checks</h2>
+<p>Other estimators measure the same change differently; each is compared with the headline ({{.Estimator}}).</p>
+<table>
+<thead><tr><th>Layer</th><th>Check</th><th class="n">Headline</th><th class="n">Check's estimate</th><th>Verdict</th><th>Why they can differ</th></tr></thead>
+<tbody>{{range .Robust}}
+<tr><td>{{.Layer}}</td><td>{{.Estimator}}</td><td class="n">{{.Headline}}</td><td class="n">{{.Check}}</td><td>{{.Verdict}}</td><td>{{.Explanation}}</td></tr>{{end}}
+</tbody>
+</table>
+</section>
 {{end}}{{if .Estimates}}<section id="estimates">
 <h2>All estimates</h2>
 <table>

@@ -63,6 +63,13 @@ func WriteMarkdown(w io.Writer, in Input) error {
 			}
 		}
 
+		if len(v.Robust) > 0 {
+			fmt.Fprintf(&b, "\n## Robustness checks\n\nOther estimators measure the same change differently; each is compared with the headline (%s).\n\n", e(v.Estimator))
+			b.WriteString("| Layer | Check | Headline | Check's estimate | Verdict | Why they can differ |\n|---|---|---:|---:|---|---|\n")
+			for _, r := range v.Robust {
+				fmt.Fprintf(&b, "| %s | %s | %s | %s | %s | %s |\n", e(r.Layer), e(r.Estimator), e(r.Headline), e(r.Check), e(r.Verdict), e(r.Explanation))
+			}
+		}
 		if len(v.Estimates) > 0 {
 			b.WriteString("\n## All estimates\n\n")
 			b.WriteString("| Outcome | Estimator | Effect | 95% interval | ATT per area-month | p | Pre-import p | Method | Areas import/comparison |\n|---|---|---:|---|---:|---:|---:|---|---:|\n")

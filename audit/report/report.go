@@ -170,7 +170,7 @@ func MakeCharts(in Input) ([]Chart, error) {
 		}
 		if ok {
 			out = append(out, Chart{Name: "event-study-" + l.String(), SVG: svg,
-				Caption: fmt.Sprintf("Each dot is the estimated difference in %s per area and month between import areas and their comparison areas, by month relative to the import's arrival (dashed line). The shaded band is the 95%% interval. Before the line, dots near zero mean both groups moved alike; after it, they show the change that followed.", layerWords(l.String()))})
+				Caption: fmt.Sprintf("Each dot is the estimated change in %s in import areas against their comparison areas, in percent, by month relative to the import's arrival (dashed line), from the same Poisson model as the headline (%s). The shaded band is the 95%% interval (none when the import areas are too few for a reliable one). Before the line, dots near zero mean both groups moved alike; after it, they show the change that followed.", layerWords(l.String()), headlineEstimator)})
 		}
 	}
 	if svg, ok, err := BalanceSVG(in.Audit.Balance); err != nil {

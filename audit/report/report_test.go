@@ -55,13 +55,18 @@ func fixedAudit() *audit.Report {
 	}
 	for e := -3; e <= 3; e++ {
 		for _, l := range []string{"geometry", "attribute", "new_feature", "deletion"} {
-			row := did.EventStudyRow{Layer: l, Estimator: "twfe-linear", EventTime: e, Estimate: 0.1 * float64(e), CI95: [2]float64{0.1*float64(e) - 0.5, 0.1*float64(e) + 0.5}, SE: 0.25}
+			row := did.EventStudyRow{Layer: l, Estimator: "ppml-twfe", Scale: did.ScaleRelative, EventTime: e, Estimate: 0.1 * float64(e), CI95: [2]float64{0.1*float64(e) - 0.5, 0.1*float64(e) + 0.5}, SE: 0.25}
 			if e == -1 {
 				row.Estimate, row.CI95 = 0, [2]float64{0, 0}
 			}
 			r.EventStudy = append(r.EventStudy, row)
 		}
 	}
+	r.Robustness = []audit.Agreement{
+		{Layer: "geometry", Estimator: "cs-att", Headline: -0.1, Relative: -0.12, Verdict: audit.VerdictAgree, Explanation: "The check tells the same story as the headline."},
+		{Layer: "attribute", Estimator: "cs-att", Headline: -0.33, Relative: -0.38, Verdict: audit.VerdictAgree, Explanation: "The check tells the same story as the headline."},
+	}
+	r.UnitFigures = []audit.UnitFigure{{Unit: "A.3", Layer: "attribute", Observed: 40, Expected: 61.234}}
 	r.Placebo = []did.PlaceboRow{{Layer: "attribute", Estimator: "cs-att", ShiftMonths: 6, ATT: 0.1, CI95: [2]float64{-0.3, 0.5}, PValue: 0.6}}
 	r.Balance = []audit.BalanceJSON{
 		{Covariate: "features_at_start", MeanTreated: 120, MeanControl: 60, MatchedMeanControl: 110, SMDBefore: 0.8, SMDAfter: 0.08},
@@ -359,11 +364,18 @@ func TestUnitsGeoJSONRFC7946(t *testing.T) {
 	if props["id"] != "A.3" || props["status"] != "treated" || props["first_month"] != "2021-02" || props["weight"] != 1.0 || props["intensity"] != 0.9 {
 		t.Errorf("A.3 properties = %v", props)
 	}
-	if props["cs_att_relative_attribute"] != -0.38 || props["cs_att_relative_new_feature"] != nil || props["ppml_twfe_relative_attribute"] != -0.33 {
-		t.Errorf("A.3 effects: cs-att attribute %v, new_feature %v, ppml-twfe attribute %v", props["cs_att_relative_attribute"],
-			props["cs_att_relative_new_feature"], props["ppml_twfe_relative_attribute"])
+	// Per-area figures are descriptive and labelled so; no pooled effect is
+	// copied onto the areas.
+	if props["observed_attribute"] != 40.0 || props["expected_attribute"] != 61.23 || props["observed_geometry"] != nil || props["figures"] != unitFiguresLabel {
+		t.Errorf("A.3 figures: observed %v, expected %v, geometry %v, label %v", props["observed_attribute"],
+			props["expected_attribute"], props["observed_geometry"], props["figures"])
 	}
-	if p := fc.Features[1].Properties; p["status"] != "control" || p["first_month"] != nil {
+	for k := range props {
+		if strings.Contains(k, "relative") {
+			t.Errorf("A.3 carries %s: the pooled effect copied onto one area", k)
+		}
+	}
+	if p := fc.Features[1].Properties; p["status"] != "control" || p["first_month"] != nil || p["figures"] != nil {
 		t.Errorf("A.6 properties = %v", p)
 	}
 	back, err := spatial.FromGeoJSON("units.geojson", b.Bytes(), spatial.Options{})
@@ -460,7 +472,7 @@ func TestChartContent(t *testing.T) {
 		svg  []byte
 		want []string
 	}{
-		{"event study", es, []string{"Attribute edits around the import (twfe-linear)", "95% interval", "import arrives", "reference month (fixed at 0)",
+		{"event study", es, []string{"Attribute edits around the import (ppml-twfe)", "95% interval", "import arrives", "reference month (fixed at 0)",
 			"months since the import reached the area", "#0072B2", "#D55E00"}},
 		// The fixture spans 100–103°E at 0–3°N: 3° of longitude × cos(1.5°)
 		// is 333.8 km, a quarter of it 83 km, so the bar is 50 km.

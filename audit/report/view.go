@@ -5,6 +5,7 @@ import (
 	"math"
 	"strings"
 
+	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/checklist"
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/layers"
@@ -23,6 +24,7 @@ type view struct {
 	Areas     []string
 	Balance   []balanceRow
 	Estimates []estimateRow
+	Robust    []robustRow
 	Placebo   []placeboRow
 	Notes     []string
 	Cautions  []string
@@ -40,6 +42,10 @@ type balanceRow struct {
 
 type estimateRow struct {
 	Outcome, Estimator, Effect, Interval, ATT, P, PreTrend, Method, Units string
+}
+
+type robustRow struct {
+	Layer, Estimator, Headline, Check, Verdict, Explanation string
 }
 
 type placeboRow struct {
@@ -93,6 +99,15 @@ func Reading(e did.Effect) string {
 			dir = "fewer"
 		}
 		fmt.Fprintf(&b, "Import areas saw about %.0f%% %s %s than they would have without the import, judged by the matched comparison areas", math.Abs(100*r), dir, what)
+		if e.NoInterval {
+			fmt.Fprintf(&b, ". With %d import area(s) no interval is reliable; a randomization test, which re-deals the import over the comparison areas, gives p = %s:", e.TreatedUnits, pval(e.PValue))
+			if e.PValue < 0.05 {
+				b.WriteString(" a change this large is rare when the import is dealt to other areas.")
+			} else {
+				b.WriteString(" changes this large are common when the import is dealt to other areas, so the data are compatible with no change at all.")
+			}
+			return b.String()
+		}
 		fmt.Fprintf(&b, " (95%% interval %s to %s).", pct(e.CI95[0]), pct(e.CI95[1]))
 	} else {
 		dir := "more"
@@ -116,6 +131,9 @@ func Reading(e did.Effect) string {
 }
 
 func effectText(e did.Effect) (effect, interval string) {
+	if e.NoInterval && e.RelativeEffect != nil {
+		return pct(*e.RelativeEffect), "none reliable (randomization p = " + pval(e.PValue) + ")"
+	}
 	if e.RelativeEffect != nil {
 		return pct(*e.RelativeEffect), pct(e.CI95[0]) + " to " + pct(e.CI95[1])
 	}
@@ -170,7 +188,7 @@ func newView(in Input) view {
 		{"95% interval", "The range of effects the data support. Read it as the figure's uncertainty: an interval from -40% to -5% says 'fewer, by somewhere between 5% and 40%'. An interval that includes 0% means no change cannot be ruled out."},
 		{"Pre-import test (pre-trend)", "Checks whether import areas and comparison areas already moved differently before the import. If it fails (p below 0.05), the comparison is doubtful and the effect may reflect that earlier difference rather than the import."},
 		{"p-value", "How often a difference this large would show up by chance if the import had no effect. Small values (below 0.05) are conventionally called significant; they are not proof."},
-		{"Estimators", "The headline comes from " + headlineEstimator + ". ppml-twfe fits the counts with a Poisson model, comparing each wave of import areas only with clean comparison areas, and reads the change as a ratio, which suits edit counts that grow and shrink in proportion; cs-att compares each wave with never-imported comparison areas (Callaway and Sant'Anna's method) in edit counts; twfe-linear gives the month-by-month chart; did-2x2 is the simple before/after, import/comparison difference. When they agree the result is sturdier."},
+		{"Estimators", "Every headline figure, chart and per-area figure comes from one model, " + headlineEstimator + ": it fits the counts with a Poisson model, comparing each wave of import areas only with clean comparison areas, and reads the change as a ratio, which suits edit counts that grow and shrink in proportion. The other estimators are robustness checks: cs-att compares each wave with never-imported comparison areas (Callaway and Sant'Anna's method) in edit counts; twfe-linear is the linear month-by-month regression; did-2x2 is the simple before/after, import/comparison difference. The robustness section says, layer by layer, whether they agree."},
 	}
 
 	u := r.Units
@@ -197,6 +215,13 @@ func newView(in Input) view {
 		if _, ok := layers.ParseLayer(e.Layer); !ok {
 			v.Estimates = append(v.Estimates, estimateRowOf(e))
 		}
+	}
+	for _, a := range r.Robustness {
+		row := robustRow{Layer: a.Layer, Estimator: a.Estimator, Headline: pct(a.Headline), Check: pct(a.Relative), Verdict: a.Verdict, Explanation: a.Explanation}
+		if a.Verdict == audit.VerdictNotComputed {
+			row.Check = "n/a"
+		}
+		v.Robust = append(v.Robust, row)
 	}
 	for _, p := range r.Placebo {
 		v.Placebo = append(v.Placebo, placeboRow{Outcome: p.Layer, Shift: fmt.Sprintf("%d months", p.ShiftMonths),

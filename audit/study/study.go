@@ -132,8 +132,42 @@ type Study struct {
 	Notes     []string  // clipping, dropped units and similar, in plain words
 }
 
+// GrowthPrefix starts the balance rows of pre-import growth per layer: the
+// log ratio of the second half of the pre-import months' edits to the first
+// half's. With unit fixed effects level differences are absorbed; growth
+// differences are what threaten the comparison.
+const GrowthPrefix = "pre-import growth "
+
 // ErrStudy is the sentinel under errors that make a study impossible.
 var ErrStudy = errors.New("study: cannot build study")
+
+// Stores a study cannot use; both wrap ErrStudy.
+var (
+	// ErrUnclassified: the store's edits were never classified into layers.
+	ErrUnclassified = fmt.Errorf("%w: the store's edits are not classified (run `loadwake classify` on it first)", ErrStudy)
+	// ErrSnapshot: the store holds one version per object (a snapshot
+	// extract), so no edit has a predecessor and follow-on editing cannot be
+	// counted; every object would look newly mapped in its last month.
+	ErrSnapshot = fmt.Errorf("%w: the store holds a snapshot, not a history: no edit has a predecessor, so follow-on editing before and after the import cannot be counted (ingest a full-history file, .osh.pbf or history XML, covering the months before the import)", ErrStudy)
+)
+
+// checkEstimable refuses stores no study can be built on: unclassified ones
+// and snapshots (classified edits that are all first versions: no geometry,
+// attribute or deletion event at all).
+func checkEstimable(ctx context.Context, src layers.DerivedReader) error {
+	sum, err := layers.Summarize(ctx, src)
+	if errors.Is(err, layers.ErrNotClassified) {
+		return ErrUnclassified
+	}
+	if err != nil {
+		return fmt.Errorf("read classification summary: %w", err)
+	}
+	changes := sum.Events[layers.Geometry.String()] + sum.Events[layers.Attribute.String()] + sum.Events[layers.Deletion.String()]
+	if changes == 0 && sum.Events[layers.NewFeature.String()] > 0 {
+		return ErrSnapshot
+	}
+	return nil
+}
 
 // Outcome names beyond the four layers.
 const (
@@ -199,6 +233,9 @@ func Build(ctx context.Context, src layers.DerivedReader, ref ImportRef, units U
 	}
 	if len(ref.Changesets) == 0 || ref.First.IsZero() {
 		return nil, fmt.Errorf("%w: import %q has no changesets", ErrStudy, ref.ID)
+	}
+	if err := checkEstimable(ctx, src); err != nil {
+		return nil, err
 	}
 	first, err := layers.FirstEdits(ctx, src)
 	if err != nil {
@@ -491,6 +528,17 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	for _, c := range classes {
 		diagNames = append(diagNames, "log1p features "+c)
 	}
+	for _, l := range layers.Layers {
+		diagNames = append(diagNames, GrowthPrefix+l.String())
+	}
+	// growth is the log ratio of a layer's edits in the second half of the
+	// pre-import months to the first half (+0.5 each): what unit fixed
+	// effects do not absorb and parallel trends need alike.
+	growth := func(name string, u int) float64 {
+		pre := clip(b.y[name], u)[:epMonth]
+		h := len(pre) / 2
+		return math.Log((mean(pre[h:]) + 0.5) / (mean(pre[:h]) + 0.5))
+	}
 	diag := func(u int) []float64 {
 		row := cov(u)
 		for _, l := range layers.Layers {
@@ -498,6 +546,9 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 		}
 		for _, c := range classes {
 			row = append(row, math.Log1p(float64(b.classLive[u][c])))
+		}
+		for _, l := range layers.Layers {
+			row = append(row, growth(l.String(), u))
 		}
 		return row
 	}
