@@ -11,6 +11,7 @@ require (
 	github.com/paulmach/osm v0.8.0
 	github.com/spf13/cobra v1.10.2
 	github.com/spf13/pflag v1.0.9
+	github.com/yuin/goldmark v1.8.7
 	go.yaml.in/yaml/v4 v4.0.0
 	golang.org/x/term v0.48.0
 	gonum.org/v1/gonum v0.17.0

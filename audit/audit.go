@@ -80,10 +80,12 @@ type Report struct {
 		Draws  int        `json:"bootstrap_draws"`
 		Seed   uint64     `json:"seed"`
 	} `json:"estimation"`
-	Warnings []string         `json:"warnings"`
-	Notes    []string         `json:"notes"`
-	Cautions []string         `json:"cautions"`
-	UnitList []study.UnitInfo `json:"unit_list"`
+	// Provenance says where the figures come from.
+	Provenance *Provenance      `json:"provenance"`
+	Warnings   []string         `json:"warnings"`
+	Notes      []string         `json:"notes"`
+	Cautions   []string         `json:"cautions"`
+	UnitList   []study.UnitInfo `json:"unit_list"`
 
 	// Study is the panel behind the report, for charts and exports; not in JSON.
 	Study *study.Study `json:"-"`
@@ -94,6 +96,8 @@ type Options struct {
 	Study    study.Options
 	Estimate did.Options // zero value: did.DefaultOptions with the study's window
 	UnitSpec string      // how the units were given, for the report
+	// Generator says what made the report, for its provenance.
+	Generator Generator
 }
 
 // Run builds the study of episode ep (its matched panel) and estimates
@@ -115,7 +119,13 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 	if err != nil {
 		return nil, fmt.Errorf("estimate: %w", err)
 	}
-	return newReport(ep, st, est, so, opts.UnitSpec), nil
+	r := newReport(ep, st, est, so, opts.UnitSpec)
+	r.Provenance = NewProvenance(opts.Generator)
+	r.Provenance.Window, r.Provenance.Units = st.Window, opts.UnitSpec
+	if err := r.Provenance.addImport(ctx, src, ep); err != nil {
+		return nil, err
+	}
+	return r, nil
 }
 
 func newReport(ep *episode.Episode, st *study.Study, est *did.Estimates, so study.Options, spec string) *Report {

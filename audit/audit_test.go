@@ -4,6 +4,8 @@ import (
 	"bytes"
 	"context"
 	"encoding/json"
+	"fmt"
+	"strings"
 	"testing"
 
 	"github.com/loadwake/loadwake/audit"
@@ -25,6 +27,18 @@ func TestRunAuditJSONContract(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
+	// Provenance: every changeset of the episode linked to its page, the
+	// simulator's source and documentation tags found, the ODbL line.
+	p := rep.Provenance
+	if p == nil || len(p.Changesets) != len(ep.Changesets) || p.Attribution != audit.Attribution {
+		t.Fatalf("provenance %+v", p)
+	}
+	if p.Changesets[0].URL != fmt.Sprintf("https://www.openstreetmap.org/changeset/%d", ep.Changesets[0]) {
+		t.Errorf("changeset link %s", p.Changesets[0].URL)
+	}
+	if len(p.SourceTags) == 0 || len(p.Documentation) == 0 || !strings.HasPrefix(p.Documentation[0], "https://wiki.quorvesk.example/") {
+		t.Errorf("source tags %v, documentation %v", p.SourceTags, p.Documentation)
+	}
 	var buf bytes.Buffer
 	if err := rep.WriteJSON(&buf); err != nil {
 		t.Fatal(err)
@@ -33,7 +47,7 @@ func TestRunAuditJSONContract(t *testing.T) {
 	if err := json.Unmarshal(buf.Bytes(), &doc); err != nil {
 		t.Fatal(err)
 	}
-	for _, k := range []string{"schema", "import", "units", "effects", "event_study", "balance", "warnings", "cautions"} {
+	for _, k := range []string{"schema", "import", "units", "effects", "event_study", "balance", "warnings", "cautions", "provenance"} {
 		if _, ok := doc[k]; !ok {
 			t.Errorf("audit JSON lacks %q", k)
 		}

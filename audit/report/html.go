@@ -21,6 +21,8 @@ type htmlPage struct {
 	Charts        []htmlChart
 	Checklist     *htmlChecklist
 	Assessment    *htmlAssessment
+	Invented      bool      // the invented-data banner
+	Provenance    []provRow // where the figures come from
 }
 
 type htmlChart struct {
@@ -51,10 +53,12 @@ type htmlAssessment struct {
 }
 
 var pageFuncs = template.FuncMap{
-	"pct": func(x float64) string { return fmt.Sprintf("%.1f%%", 100*x) },
-	"pp":  func(x float64) string { return fmt.Sprintf("%+.1f", 100*x) },
-	"f2":  func(x float64) string { return fmt.Sprintf("%.2f", x) },
-	"g2":  func(x float64) string { return fmt.Sprintf("%.2g", x) },
+	"inventedBanner": func() string { return InventedBanner },
+	"safeURL":        safeURL,
+	"pct":            func(x float64) string { return fmt.Sprintf("%.1f%%", 100*x) },
+	"pp":             func(x float64) string { return fmt.Sprintf("%+.1f", 100*x) },
+	"f2":             func(x float64) string { return fmt.Sprintf("%.2f", x) },
+	"g2":             func(x float64) string { return fmt.Sprintf("%.2g", x) },
 	"rng": func(r proposal.LayerRange) string {
 		if r.Relative {
 			return fmt.Sprintf("%+.0f%% to %+.0f%%", 100*r.Low, 100*r.High)
@@ -98,6 +102,9 @@ figure { margin: 1.25rem 0 1.75rem; background: #fff; border: 1px solid var(--ru
 figure svg { display: block; width: 100%; height: auto; max-height: 40rem; }
 figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 .charts { display: grid; grid-template-columns: 1fr; max-width: 48rem; }
+.invented { border: 3px solid var(--warn); background: #fff4ea; padding: .6rem 1rem; }
+.provenance dt { font-weight: 600; margin-top: .4rem; }
+.provenance dd { margin-left: 1rem; overflow-wrap: anywhere; }
 .cautions { border-top: 3px solid var(--ink); margin-top: 2.5rem; padding-top: .5rem; }
 .muted { color: var(--muted); }
 @media print { body { background: #fff; } figure { break-inside: avoid; } }
@@ -106,7 +113,8 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 <body>
 <main>
 <h1>{{.Title}}</h1>
-{{range .Lead}}<p class="lead">{{.}}</p>
+{{if .Invented}}<p class="invented" role="note"><strong>{{inventedBanner}}</strong></p>
+{{end}}{{range .Lead}}<p class="lead">{{.}}</p>
 {{end}}
 {{if .HasAudit}}{{if .Warnings}}<section class="warnings" id="warnings">
 <h2>Warnings</h2>
@@ -236,6 +244,12 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 <li>{{.}}</li>{{end}}
 </ul>
 </section>
+{{end}}{{if .Provenance}}<section class="provenance" id="provenance">
+<h2>Where these figures come from</h2>
+<dl>{{range .Provenance}}
+<dt>{{.Label}}</dt><dd>{{.Text}}{{if .Links}}{{if .Text}}: {{end}}{{range $i, $l := .Links}}{{if $i}}, {{end}}{{if safeURL $l.URL}}<a href="{{$l.URL}}">{{$l.Text}}</a>{{else}}{{$l.Text}}{{end}}{{end}}{{end}}</dd>{{end}}
+</dl>
+</section>
 {{end}}<section class="cautions" id="cautions">
 <h2>Cautions</h2>
 <ul>{{range .Cautions}}
@@ -263,6 +277,9 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 		return err
 	}
 	pg := htmlPage{view: newView(in)}
+	if p := in.provenance(); p != nil {
+		pg.Invented, pg.Provenance = p.Invented, provenanceRows(p)
+	}
 	if in.Audit != nil {
 		pg.MainWarnings, pg.OtherWarnings = splitWarnings(pg.Warnings, in.Audit.Effects)
 	}

@@ -20,6 +20,10 @@ func WriteMarkdown(w io.Writer, in Input) error {
 	e := markdown.Escape
 	var b bytes.Buffer
 	fmt.Fprintf(&b, "# %s\n\n", e(v.Title))
+	prov := in.provenance()
+	if prov != nil && prov.Invented {
+		fmt.Fprintf(&b, "> **%s**\n\n", e(InventedBanner))
+	}
 	for _, s := range v.Lead {
 		fmt.Fprintf(&b, "%s\n", e(s))
 	}
@@ -104,6 +108,7 @@ func WriteMarkdown(w io.Writer, in Input) error {
 			fmt.Fprintf(&b, "- %s\n", e(s))
 		}
 	}
+	writeProvenanceMarkdown(&b, prov)
 	b.WriteString("\n## Cautions\n\n")
 	for _, s := range v.Cautions {
 		fmt.Fprintf(&b, "- %s\n", e(s))

@@ -32,6 +32,9 @@ type Input struct {
 	Checklist *checklist.Checklist
 	// Assessment is an assessment of a proposed import.
 	Assessment *proposal.Assessment
+	// Provenance, when set, is shown instead of the audit's (reports without
+	// an audit take theirs from here).
+	Provenance *audit.Provenance
 }
 
 func (in Input) check() error {

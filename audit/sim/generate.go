@@ -15,6 +15,7 @@ import (
 	"slices"
 	"sort"
 	"strconv"
+	"strings"
 
 	"github.com/paulmach/orb"
 	"github.com/paulmach/orb/geojson"
@@ -610,6 +611,10 @@ func (g *gen) beginChangeset(s *session) {
 			{Key: "created_by", Value: "Tidemark 0.9 bulk upload"},
 			{Key: "import", Value: "yes"},
 			{Key: "source", Value: acc.Dataset},
+			// The import's documentation page, as the import guidelines ask
+			// changesets to link it (an invented address under the reserved
+			// .example domain, RFC 2606).
+			{Key: "url", Value: "https://wiki.quorvesk.example/Import/" + strings.ReplaceAll(acc.Agency, " ", "_")},
 		}
 	} else {
 		g.cur.tags = osm.Tags{

@@ -123,7 +123,7 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 		return err
 	}
 	if o.report != "" {
-		return writeReports(out, o.report, report.Input{Assessment: a})
+		return writeReports(out, o.report, report.Input{Assessment: a, Provenance: audit.NewProvenance(generator(ctx, st, false))})
 	}
 	return nil
 }

@@ -74,7 +74,8 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 	eo.Draws, eo.Seed, eo.Inference = o.draws, o.seed, o.inference
 	eo.Window = did.Window{Pre: min(o.pre, o.study.before), Post: o.study.after}
 	rep, err := audit.Run(cmd.Context(), in.store, in.episode, in.all, in.units,
-		audit.Options{Study: o.study.studyOptions(), Estimate: eo, UnitSpec: o.study.units})
+		audit.Options{Study: o.study.studyOptions(), Estimate: eo, UnitSpec: o.study.units,
+			Generator: generator(cmd.Context(), in.store, false)})
 	if err != nil {
 		return err
 	}

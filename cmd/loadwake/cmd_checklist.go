@@ -92,7 +92,7 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 		return err
 	}
 	if o.report != "" {
-		return writeReports(out, o.report, report.Input{Checklist: cl})
+		return writeReports(out, o.report, report.Input{Checklist: cl, Provenance: audit.NewProvenance(generator(cmd.Context(), nil, false))})
 	}
 	return nil
 }

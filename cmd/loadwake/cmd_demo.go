@@ -175,7 +175,7 @@ func demoStudy(ctx context.Context, st *ingest.Store, o *demoOptions, p demoPath
 	}
 	eo := did.DefaultOptions()
 	eo.Draws = o.draws
-	ao := audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile}
+	ao := audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile, Generator: generator(ctx, st, true)}
 	rep, err := audit.Run(ctx, st, ep, eps, units, ao)
 	if err != nil {
 		return report.Input{}, err

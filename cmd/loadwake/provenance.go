@@ -1,0 +1,69 @@
+package main
+
+import (
+	"context"
+	"os"
+	"runtime/debug"
+	"strings"
+	"time"
+
+	"github.com/loadwake/loadwake/audit"
+	"github.com/loadwake/loadwake/ingest"
+)
+
+// buildVersion is loadwake's version from the build info: the module version
+// when installed from a tag, else the VCS revision (with "+dirty" for a
+// modified tree), else "devel".
+func buildVersion() string {
+	bi, ok := debug.ReadBuildInfo()
+	if !ok {
+		return "unknown"
+	}
+	v := bi.Main.Version
+	rev, dirty := "", false
+	for _, s := range bi.Settings {
+		switch s.Key {
+		case "vcs.revision":
+			rev = s.Value
+		case "vcs.modified":
+			dirty = s.Value == "true"
+		}
+	}
+	if (v == "" || v == "(devel)") && rev != "" {
+		v = "devel-" + rev[:min(12, len(rev))]
+		if dirty {
+			v += "+dirty"
+		}
+	}
+	if v == "" {
+		v = "devel"
+	}
+	return v
+}
+
+// commandLine is the exact command that ran, each argument quoted when it
+// holds anything a shell would split or expand.
+func commandLine() string {
+	args := make([]string, len(os.Args))
+	for i, a := range os.Args {
+		if i == 0 {
+			a = "loadwake"
+		}
+		if a == "" || strings.ContainsAny(a, " \t\n'\"\\$`*?[]{}()<>|&;#~!") {
+			a = "'" + strings.ReplaceAll(a, "'", `'\''`) + "'"
+		}
+		args[i] = a
+	}
+	return strings.Join(args, " ")
+}
+
+// generator says what makes a report now, from the store st (nil: no store).
+func generator(ctx context.Context, st *ingest.Store, invented bool) audit.Generator {
+	g := audit.Generator{Version: buildVersion(), CommandLine: commandLine(), Generated: time.Now(), Invented: invented}
+	if st != nil {
+		if stats, err := st.Stats(ctx); err == nil {
+			g.DataFirst, g.DataLast = stats.FirstEdit, stats.LastEdit
+		}
+	}
+	return g
+}
