@@ -19,14 +19,16 @@ const maxGroupGapDays = 3650
 // decoder walks a rule file's YAML nodes, filling a spec and collecting every
 // problem with its position instead of stopping at the first.
 type decoder struct {
-	file  string
-	probs Problems
+	file            string
+	probs           Problems
+	endLine, endCol int // just after the file's last character
 }
 
 // decode parses data into a spec. The spec is complete only when no problem
 // was found.
 func decode(file string, data []byte) (spec, Problems) {
 	d := &decoder{file: file}
+	d.endLine, d.endCol = endOf(data)
 	var s spec
 	var doc yaml.Node
 	if err := yaml.Unmarshal(data, &doc); err != nil {
@@ -72,12 +74,7 @@ func (d *decoder) syntax(data []byte, err error) {
 		// UTF-8) carry only the byte offset.
 		line, col = posOf(data, le.Mark.Index)
 	}
-	// At the end of the input libyaml moves to a fresh line even when the
-	// last line has no newline; point at the real end instead.
-	if endLine, endCol := endOf(data); line > endLine || line == endLine && col > endCol {
-		line, col = endLine, endCol
-	}
-	d.probs = append(d.probs, Problem{File: d.file, Line: line, Column: col, Msg: msg})
+	d.add(line, col, msg)
 }
 
 // endOf returns the 1-based line and column just after the last character of
@@ -107,7 +104,17 @@ func posOf(data []byte, off int) (line, col int) {
 }
 
 func (d *decoder) addf(n *yaml.Node, format string, args ...any) {
-	d.probs = append(d.probs, Problem{File: d.file, Line: n.Line, Column: n.Column, Msg: fmt.Sprintf(format, args...)})
+	d.add(n.Line, n.Column, fmt.Sprintf(format, args...))
+}
+
+// add records a problem. At the end of the input libyaml moves to a fresh
+// line even when the last line has no newline, and places a syntax error or
+// an empty node ("---" alone) there; such positions point at the real end.
+func (d *decoder) add(line, col int, msg string) {
+	if line > d.endLine || line == d.endLine && col > d.endCol {
+		line, col = d.endLine, d.endCol
+	}
+	d.probs = append(d.probs, Problem{File: d.file, Line: line, Column: col, Msg: msg})
 }
 
 // deref follows an alias to the node it names.

@@ -257,6 +257,8 @@ func TestProblemsMore(t *testing.T) {
 	}{
 		{"syntax", "format: 1\nfeature_classes: [\n", "s.yaml:3:1: YAML syntax: did not find expected node content"},
 		{"empty", "", "s.yaml:1:1: rule file is empty"},
+		// yaml places the empty document at a fresh line 2; the file ends at 1:4.
+		{"document start only", "---", "s.yaml:1:4: the rule file must be a mapping, not empty"},
 		{"not a mapping", "- 1\n", "s.yaml:1:1: the rule file must be a mapping, not a list"},
 		{"missing sections", "format: 1\n", `s.yaml:1:1: the rule file lacks field "feature_classes"`},
 		{"format", "format: 2\n", "s.yaml:1:9: format 2 is not known; this loadwake reads format 1"},
