@@ -312,6 +312,9 @@ func (b *bulkIngest) tempDir() (string, error) {
 // written, so that an interruption is seen on the next open.
 func (b *bulkIngest) write(ctx context.Context) (err error) {
 	s := b.s
+	if err := b.reduceRuns(ctx); err != nil {
+		return err
+	}
 	b.buf.sort()
 	cursors := []cursor{&memCursor{b: &b.buf}}
 	for _, path := range b.runs {
@@ -357,6 +360,28 @@ func (b *bulkIngest) write(ctx context.Context) (err error) {
 		return err
 	}
 	s.interrupted.Store(false)
+	return nil
+}
+
+// maxFanIn is how many spilled runs one merge reads at once; each holds a
+// read buffer, so more runs are first merged in groups into longer ones,
+// which keeps memory flat however large the input.
+const maxFanIn = 64
+
+// reduceRuns merges groups of spilled runs until at most maxFanIn are left.
+func (b *bulkIngest) reduceRuns(ctx context.Context) error {
+	for len(b.runs) > maxFanIn {
+		var next []string
+		for i := 0; i < len(b.runs); i += maxFanIn {
+			group := b.runs[i:min(i+maxFanIn, len(b.runs))]
+			path, err := mergeRuns(ctx, group, filepath.Join(b.runDir, fmt.Sprintf("merged-%d-%05d", len(b.runs), len(next))))
+			if err != nil {
+				return fmt.Errorf("%s: %w", b.s.name(), err)
+			}
+			next = append(next, path)
+		}
+		b.runs = next
+	}
 	return nil
 }
 

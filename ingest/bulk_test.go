@@ -117,6 +117,7 @@ func TestBulkMatchesTransactional(t *testing.T) {
 	}{
 		{"one run", 0},
 		{"spilled runs", 16 << 10},
+		{"more runs than one merge reads", 2 << 10},
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {

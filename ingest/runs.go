@@ -4,6 +4,7 @@ import (
 	"bufio"
 	"bytes"
 	"container/heap"
+	"context"
 	"encoding/binary"
 	"errors"
 	"fmt"
@@ -91,13 +92,17 @@ func (b *sortBuffer) reset() {
 func (b *sortBuffer) len() int { return len(b.idx) }
 
 // add appends r; its bytes are copied. budget is the byte size the buffer
-// will grow to, allocated at once so that it never copies itself.
+// may grow to: it doubles up to that, so a small input allocates little.
 func (b *sortBuffer) add(r *record, budget int) {
-	if b.data == nil {
-		b.data = make([]byte, 0, budget)
-		b.idx = make([]uint32, 0, budget/64)
-	}
 	b.scratch = appendRecord(b.scratch[:0], r)
+	if need := len(b.data) + len(b.scratch); need > cap(b.data) {
+		grown := make([]byte, len(b.data), max(need, min(2*cap(b.data), budget), 1<<20))
+		copy(grown, b.data)
+		b.data = grown
+		if n := len(b.idx); n > 0 {
+			b.lastKey = b.keyAt(b.idx[n-1]) // point into the new array
+		}
+	}
 	off := len(b.data)
 	b.data = append(b.data, b.scratch...)
 	b.idx = append(b.idx, uint32(off))
@@ -157,6 +162,56 @@ func (b *sortBuffer) spill(dir string, n int) (string, error) {
 	}
 	if err := f.Close(); err != nil {
 		return "", fmt.Errorf("write sort run %s: %w", path, err)
+	}
+	return path, nil
+}
+
+// mergeRuns merges the sorted runs at paths into one new run at path, keeping
+// every record, and removes the inputs.
+func mergeRuns(ctx context.Context, paths []string, path string) (string, error) {
+	var cursors []cursor
+	for _, p := range paths {
+		c, err := openRun(p)
+		if err != nil {
+			return "", err
+		}
+		defer c.close()
+		cursors = append(cursors, c)
+	}
+	f, err := os.Create(path)
+	if err != nil {
+		return "", fmt.Errorf("write sort run: %w", err)
+	}
+	defer f.Close()
+	w := bufio.NewWriterSize(f, 1<<20)
+	m := newMerger(cursors)
+	var buf []byte
+	for n := 0; ; n++ {
+		if n%scanBatch == 0 {
+			if err := ctx.Err(); err != nil {
+				return "", err
+			}
+		}
+		r, err := m.next()
+		if err != nil {
+			return "", err
+		}
+		if r == nil {
+			break
+		}
+		buf = appendRecord(buf[:0], r)
+		if _, err := w.Write(buf); err != nil {
+			return "", fmt.Errorf("write sort run %s: %w", path, err)
+		}
+	}
+	if err := w.Flush(); err != nil {
+		return "", fmt.Errorf("write sort run %s: %w", path, err)
+	}
+	if err := f.Close(); err != nil {
+		return "", fmt.Errorf("write sort run %s: %w", path, err)
+	}
+	for _, p := range paths {
+		os.Remove(p)
 	}
 	return path, nil
 }

@@ -66,7 +66,7 @@ type Options struct {
 // DefaultOptions returns options tuned for loading on a small machine in
 // bounded memory: two compactors, 32 MiB memtables, a 32 MiB block cache, a
 // 32 MiB cache of table indexes and Bloom filters (so that their memory does
-// not grow with the store), tables of 8 MiB at every level (Badger's table
+// not grow with the store), tables of 4 MiB at every level (Badger's table
 // builders hold several times a table's size each, uncompressed), Snappy
 // compression, no fsync per write (an interrupted ingest loses at most the
 // unflushed batches, which a rerun writes again) and a silent logger.
@@ -77,7 +77,7 @@ func DefaultOptions() Options {
 		memTableSize: 32 << 20,
 		blockCache:   32 << 20,
 		indexCache:   32 << 20,
-		tableSize:    8 << 20,
+		tableSize:    4 << 20,
 		compactors:   2,
 	}
 }
