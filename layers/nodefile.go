@@ -106,3 +106,10 @@ func (t *nodePositions) close() error {
 	}
 	return t.sortedTable.close()
 }
+
+// release drops the table's pages from the resident set; nil does nothing.
+func (t *nodePositions) release() {
+	if t != nil {
+		t.sortedTable.release()
+	}
+}

@@ -19,3 +19,13 @@ func mapFile(f *os.File, size int64) ([]byte, func() error, error) {
 	}
 	return data, func() error { return syscall.Munmap(data) }, nil
 }
+
+// releaseMapping drops the pages of a read-only file mapping from the
+// process's resident set; they stay in the page cache, and the next read
+// maps them again without reading the disk. Concurrent readers are safe: the
+// file does not change.
+func releaseMapping(data []byte) {
+	if len(data) > 0 {
+		syscall.Madvise(data, syscall.MADV_DONTNEED)
+	}
+}

@@ -83,6 +83,17 @@ func (x *nodeWayIndex) get(ctx context.Context, src Source) (*nodeWayTable, erro
 	return t, nil
 }
 
+// release drops the table's pages from the resident set unless it is being
+// built.
+func (x *nodeWayIndex) release() {
+	if x.mu.TryLock() {
+		if x.table != nil {
+			x.table.release()
+		}
+		x.mu.Unlock()
+	}
+}
+
 // close unmaps the table if it was built.
 func (x *nodeWayIndex) close() error {
 	if x.table == nil {

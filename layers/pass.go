@@ -68,6 +68,11 @@ type Options struct {
 // enough that the queued runs stay small.
 const defaultChunk = 512
 
+// releaseEvery is how many runs the scan hands out between drops of the
+// tables' pages from the resident set: some 130,000 versions, a few
+// milliseconds of page faults to map the hot pages again.
+const releaseEvery = 256
+
 func (o Options) workers() int {
 	if o.Workers > 0 {
 		return o.Workers
@@ -186,6 +191,7 @@ func Run(ctx context.Context, src Source, r Rules, opts Options) (Summary, error
 	}
 	defer func() { p.nodes.close() }() // after a failure; closing twice is harmless
 	index := &nodeWayIndex{dir: opts.TempDir, runLen: opts.nodeWayRun}
+	p.index = index
 	if index.runLen <= 0 {
 		index.runLen = defaultNodeWayRun
 	}
@@ -260,6 +266,7 @@ type pass struct {
 	opts    Options
 	workers []*worker
 	nodes   *nodePositions // written by the node scan
+	index   *nodeWayIndex  // built on the first vertex move
 	fp      fingerprint
 	first   map[osm.UserID]int64 // earliest version per account, unix seconds
 	sum     Summary
@@ -347,6 +354,7 @@ func (p *pass) scan(t osm.Type) error {
 	size := p.opts.chunkSize()
 	run := make([]osm.Object, 0, size)
 	var n, lastID int64
+	runs := 0
 	err := p.src.ScanVersions(ctx, t, func(o osm.Object) error {
 		p.fp.add(o)
 		n++
@@ -364,6 +372,10 @@ func (p *pass) scan(t osm.Type) error {
 			p.scanned.Store(n - 1)
 			if err := dispatch(run); err != nil {
 				return err
+			}
+			if runs++; runs%releaseEvery == 0 {
+				p.nodes.release()
+				p.index.release()
 			}
 			run = make([]osm.Object, 0, size)
 		}

@@ -122,6 +122,15 @@ func (t *sortedTable) search(want int64, hint int) int {
 	return lo + sort.Search(hi-lo, func(i int) bool { return t.key(lo+i) >= want })
 }
 
+// release drops the table's pages from the resident set (see releaseMapping),
+// so that the process's memory does not grow with the table while the page
+// cache keeps what is read often.
+func (t *sortedTable) release() {
+	if t != nil {
+		releaseMapping(t.data)
+	}
+}
+
 // close unmaps the table; closing a nil or closed table does nothing.
 func (t *sortedTable) close() error {
 	if t == nil || t.unmap == nil {
