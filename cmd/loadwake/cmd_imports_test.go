@@ -47,9 +47,9 @@ func TestImportsCommand(t *testing.T) {
 		created    int
 		matchers   []string
 	}{
-		{"rules name the account", []string{"imports", "--rules", tiger, "--json"}, "imp-448153", []osm.ChangesetID{448153, 448653}, 4, []string{"tiger-account"}},
-		{"account id", []string{"imports", "--account", "7168", "--json"}, "manual-448153", []osm.ChangesetID{448153, 448653}, 4, []string{"manual"}},
-		{"changeset list", []string{"imports", "--changesets", ids, "--json"}, "manual-448653", []osm.ChangesetID{448653}, 3, []string{"manual"}},
+		{"rules name the account", []string{"imports", "--rules", tiger, "--json", "-"}, "imp-448153", []osm.ChangesetID{448153, 448653}, 4, []string{"tiger-account"}},
+		{"account id", []string{"imports", "--account", "7168", "--json", "-"}, "manual-448153", []osm.ChangesetID{448153, 448653}, 4, []string{"manual"}},
+		{"changeset list", []string{"imports", "--changesets", ids, "--json", "-"}, "manual-448653", []osm.ChangesetID{448653}, 3, []string{"manual"}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

@@ -73,7 +73,7 @@ func TestIngestAndStatsCommands(t *testing.T) {
 		t.Errorf("second ingest: %v\n%s", err, out)
 	}
 
-	out, _, err = execRoot(t, "--store", store, "stats", "--json")
+	out, _, err = execRoot(t, "--store", store, "stats", "--json", "-")
 	if err != nil {
 		t.Fatal(err)
 	}

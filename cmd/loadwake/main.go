@@ -4,7 +4,7 @@ package main
 import (
 	"context"
 	"errors"
-	"fmt"
+	"io"
 	"os"
 	"os/signal"
 	"syscall"
@@ -12,32 +12,32 @@ import (
 
 func main() {
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
-	defer stop()
-	root := newRootCommand(newGlobalOptions())
-	err := root.ExecuteContext(ctx)
-	os.Exit(exitCode(ctx, err))
+	go func() {
+		// After the first Ctrl-C the command winds down; a second one ends it at once.
+		<-ctx.Done()
+		stop()
+	}()
+	code := run(ctx, os.Args[1:], os.Getenv, os.Stdout, os.Stderr)
+	stop()
+	os.Exit(code)
 }
 
-// Exit codes, set only here.
-const (
-	exitOK        = 0
-	exitFailure   = 1
-	exitUsage     = 2
-	exitCancelled = 130
-)
-
-func exitCode(ctx context.Context, err error) int {
-	switch {
-	case err == nil:
+// run executes the command line args and returns the exit code; errors are
+// printed on stderr led by the command's name, with what to do.
+func run(ctx context.Context, args []string, getenv func(string) string, stdout, stderr io.Writer) int {
+	root := newRootCommand(newGlobalOptions(getenv))
+	root.SetArgs(args)
+	root.SetOut(stdout)
+	root.SetErr(stderr)
+	cmd, err := root.ExecuteContextC(ctx)
+	if err == nil {
 		return exitOK
-	case errors.Is(err, context.Canceled) || ctx.Err() != nil:
-		fmt.Fprintln(os.Stderr, "loadwake: interrupted; the store is consistent, rerun to continue")
-		return exitCancelled
-	case errors.As(err, new(usageError)):
-		fmt.Fprintln(os.Stderr, "loadwake:", err)
-		return exitUsage
-	default:
-		fmt.Fprintln(os.Stderr, "loadwake:", err)
-		return exitFailure
 	}
+	if cmd != nil && !cmd.Runnable() && !errors.As(err, new(usageError)) {
+		// A command that only groups others fails on a wrong command line: "loadwake frobnicate".
+		err = usageError{msg: err.Error()}
+	}
+	code := exitCode(ctx, err)
+	io.WriteString(stderr, errorMessage(cmd, code, err))
+	return code
 }

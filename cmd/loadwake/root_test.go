@@ -13,7 +13,7 @@ import (
 // and returns what it wrote to stdout and stderr.
 func execRoot(t testing.TB, args ...string) (stdout, stderr string, err error) {
 	t.Helper()
-	root := newRootCommand(newGlobalOptions())
+	root := newRootCommand(newGlobalOptions(noEnv))
 	var out, errb bytes.Buffer
 	root.SetOut(&out)
 	root.SetErr(&errb)
@@ -46,4 +46,16 @@ func ingestFixture(t testing.TB, name string) string {
 		t.Fatal(err)
 	}
 	return store
+}
+
+// noEnv is an environment without variables.
+func noEnv(string) string { return "" }
+
+// execMain runs the command line as main does, with the environment env,
+// and returns the exit code and what went to stdout and stderr.
+func execMain(t testing.TB, env map[string]string, args ...string) (code int, stdout, stderr string) {
+	t.Helper()
+	var out, errb bytes.Buffer
+	code = run(context.Background(), args, func(k string) string { return env[k] }, &out, &errb)
+	return code, out.String(), errb.String()
 }
