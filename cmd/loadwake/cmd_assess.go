@@ -56,7 +56,7 @@ It ends with the review points of the community's import guidelines. The
 figures are a first screen for local review, not a conflation or a decision.`,
 		Args:        exactArgs(1),
 		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
-		RunE: func(cmd *cobra.Command, args []string) error { return runAssess(cmd, g, &o, args[0]) },
+		RunE:        func(cmd *cobra.Command, args []string) error { return runAssess(cmd, g, &o, args[0]) },
 	}
 	f := cmd.Flags()
 	f.StringVar(&o.rules, "rules", "", "rule `FILE` (default: the built-in rules; see loadwake rules show)")

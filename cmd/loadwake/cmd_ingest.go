@@ -81,7 +81,7 @@ func runIngest(cmd *cobra.Command, g *globalOptions, o *ingestOptions, paths []s
 	case err != nil && cmd.Context().Err() != nil:
 		// exitCode says what an interruption leaves behind.
 	case err != nil && !o.noClassify:
-		fmt.Fprintln(errw, "not classified: fix the file the error names and rerun ingest (what was stored is kept)")
+		fmt.Fprintln(cmd.OutOrStdout(), "not classified: fix the file the error names and rerun ingest (what was stored is kept)")
 	case err == nil && !o.noClassify:
 		err = classifyStore(cmd, g, s, r, false)
 	}

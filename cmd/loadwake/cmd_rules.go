@@ -22,7 +22,13 @@ func newRulesCommand(g *globalOptions) *cobra.Command {
 keys fall into and which changesets count as imports. Print the built-in rules
 with "rules show", edit a copy, check it with "rules check FILE" and pass it to
 other commands with --rules FILE.`,
-		Args: noArgs,
+		Args: func(cmd *cobra.Command, args []string) error {
+			if len(args) > 0 {
+				return usagef("unknown command %q: the commands of %s are show and check", args[0], cmd.CommandPath())
+			}
+			return nil
+		},
+		RunE: func(cmd *cobra.Command, _ []string) error { return cmd.Help() },
 	}
 	show := &cobra.Command{
 		Use:   "show",
@@ -82,7 +88,7 @@ func runRulesCheck(cmd *cobra.Command, file string) error {
 		for _, p := range *ps {
 			fmt.Fprintln(cmd.OutOrStdout(), p.Error())
 		}
-		return fmt.Errorf("%s: %d problem(s)", file, len(*ps))
+		return fmt.Errorf("%s: %d problem(s), listed above (%w)", file, len(*ps), rules.ErrInvalid)
 	case err != nil:
 		return err
 	}

@@ -21,8 +21,9 @@ import (
 // nothing. Bars fit the terminal's width: descriptions are shortened, never
 // wrapped.
 type progress struct {
-	w     io.Writer // nil: silent
-	width int       // columns of the terminal
+	w        io.Writer     // nil: silent
+	width    int           // columns of the terminal
+	throttle time.Duration // least time between redraws
 }
 
 // newProgress returns the progress display of cmd's stderr.
@@ -35,12 +36,17 @@ func newProgress(cmd *cobra.Command, g *globalOptions) *progress {
 	if err != nil || w <= 0 {
 		w = 80
 	}
-	return &progress{w: f, width: w}
+	return &progress{w: f, width: w, throttle: 100 * time.Millisecond}
 }
 
 // Room for what the library draws besides the description and the bar:
-// percentage, counts, rate and [elapsed:left], for byte and count bars.
-const progressStatsWidth = 44
+// percentage, counts, rate and [elapsed:left] on a wide terminal; the
+// percentage and [elapsed:left] alone on a narrow one.
+const (
+	progressStatsWide   = 46
+	progressStatsNarrow = 24
+	progressNarrow      = 72 // terminals narrower than this get the short form
+)
 
 // bar returns a bar counting to total (bytes when isBytes), with an ETA, or a
 // spinner with the elapsed time when total is negative.
@@ -48,23 +54,31 @@ func (p *progress) bar(desc string, total int64, isBytes bool) *progressbar.Prog
 	if p.w == nil {
 		return progressbar.DefaultSilent(total)
 	}
-	desc = fitText(desc, max(12, p.width/3))
-	barWidth := min(40, p.width-uniseg.StringWidth(desc)-progressStatsWidth)
+	narrow := p.width < progressNarrow
+	stats := progressStatsWide
+	if narrow {
+		stats = progressStatsNarrow
+	}
+	desc = fitText(desc, max(8, min(p.width/3, p.width-stats-6)))
+	barWidth := min(40, p.width-uniseg.StringWidth(desc)-stats)
 	opts := []progressbar.Option{
 		progressbar.OptionSetWriter(p.w),
 		progressbar.OptionSetDescription(desc),
-		progressbar.OptionSetWidth(max(barWidth, 5)),
+		progressbar.OptionSetWidth(max(barWidth, 3)),
 		progressbar.OptionUseANSICodes(true),
-		progressbar.OptionThrottle(100 * time.Millisecond),
+		progressbar.OptionThrottle(p.throttle),
 		progressbar.OptionClearOnFinish(),
 		progressbar.OptionSetRenderBlankState(true),
 	}
 	if total < 0 {
 		opts = append(opts, progressbar.OptionSpinnerType(14), progressbar.OptionSetElapsedTime(true))
 	} else {
-		opts = append(opts, progressbar.OptionShowCount(), progressbar.OptionSetPredictTime(true),
-			progressbar.OptionShowBytes(isBytes))
-		if !isBytes {
+		opts = append(opts, progressbar.OptionSetPredictTime(true), progressbar.OptionShowBytes(isBytes && !narrow),
+			progressbar.OptionShowTotalBytes(!narrow))
+		if !narrow {
+			opts = append(opts, progressbar.OptionShowCount())
+		}
+		if !isBytes && !narrow {
 			opts = append(opts, progressbar.OptionShowIts(), progressbar.OptionSetItsString("v"))
 		}
 	}
