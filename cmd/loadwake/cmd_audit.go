@@ -59,7 +59,7 @@ The figures are evidence for the community's review, not a verdict.`,
 }
 
 func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
-	if err := o.est.validate(); err != nil {
+	if err := o.est.validate(&o.study, cmd.Flags()); err != nil {
 		return err
 	}
 	outs, err := newOutputs(cmd, o.json, o.md)

@@ -108,6 +108,9 @@ func snapshotChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions
 	if o.study.importID != "" || o.study.changesets != "" || o.study.account != "" {
 		return nil, usagef("--provenance selects the import's features by a tag; leave out --import, --changesets and --account")
 	}
+	if o.study.units != "" {
+		return nil, usagef("--provenance compares features across the whole store, without units; leave out --units")
+	}
 	prov, err := checklist.ParseProvenance(o.provenance)
 	if err != nil {
 		return nil, usagef("--provenance: %v", err)

@@ -56,7 +56,7 @@ func runReport(cmd *cobra.Command, g *globalOptions, o *reportOptions) error {
 	if o.out == "" {
 		return usagef("--out is required: the folder to write the report into")
 	}
-	if err := o.est.validate(); err != nil {
+	if err := o.est.validate(&o.study, cmd.Flags()); err != nil {
 		return err
 	}
 	ctx := cmd.Context()

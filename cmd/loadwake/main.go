@@ -41,3 +41,26 @@ func run(ctx context.Context, args []string, getenv func(string) string, stdout,
 	io.WriteString(stderr, errorMessage(cmd, code, err))
 	return code
 }
+
+// Exit codes, the same for every command (the README's table). They are set
+// only here.
+const (
+	exitOK          = 0   // the command did its job
+	exitFailure     = 1   // an error in the data or the run: a missing, unreadable or malformed file, a study that cannot be built
+	exitUsage       = 2   // the command line is wrong: unknown command or flag, bad or conflicting flag values, wrong arguments
+	exitInterrupted = 130 // Ctrl-C (SIGINT) or SIGTERM stopped the command
+)
+
+// exitCode maps the error a command returned to the process's exit code.
+func exitCode(ctx context.Context, err error) int {
+	switch {
+	case err == nil:
+		return exitOK
+	case errors.Is(err, context.Canceled) || ctx.Err() != nil:
+		return exitInterrupted
+	case errors.As(err, new(usageError)):
+		return exitUsage
+	default:
+		return exitFailure
+	}
+}

@@ -162,7 +162,12 @@ func addEstimatorFlags(f *pflag.FlagSet, e *estimatorFlags) {
 	f.IntVar(&e.windowBefore, "window-before", 12, "months before each unit's import the estimators use (at most --before)")
 }
 
-func (e *estimatorFlags) validate() error {
+// validate checks the flags; s is the study they estimate on, and f the
+// command's flags, to tell given values from defaults.
+func (e *estimatorFlags) validate(s *studyFlags, f *pflag.FlagSet) error {
+	if f.Changed("window-before") && f.Changed("before") && e.windowBefore > s.before {
+		return usagef("--window-before %d is longer than the panel's --before %d: the estimators can use only the months the panel holds", e.windowBefore, s.before)
+	}
 	return checkEstimator(e.draws, e.inference, e.windowBefore, 1)
 }
 

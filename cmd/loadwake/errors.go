@@ -1,7 +1,6 @@
 package main
 
 import (
-	"context"
 	"errors"
 	"fmt"
 	"io/fs"
@@ -10,18 +9,14 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/match"
+	"github.com/loadwake/loadwake/audit/panel"
+	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/audit/spatial"
+	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
-)
-
-// Exit codes, the same for every command (the README's table). They are set
-// only here.
-const (
-	exitOK          = 0   // the command did its job
-	exitFailure     = 1   // an error in the data or the run: a missing, unreadable or malformed file, a study that cannot be built
-	exitUsage       = 2   // the command line is wrong: unknown command or flag, bad or conflicting flag values, wrong arguments
-	exitInterrupted = 130 // Ctrl-C (SIGINT) or SIGTERM stopped the command
 )
 
 // usageError marks an error in how the command was called (exit code 2).
@@ -46,20 +41,6 @@ const annInterrupted = "interrupted"
 // interruptedReadOnly is what an interruption leaves behind for the commands
 // that only read the store.
 const interruptedReadOnly = "the store was only read and is unchanged; files already reported as written are complete, the others were not written; rerun the same command"
-
-// exitCode maps the error a command returned to the process's exit code.
-func exitCode(ctx context.Context, err error) int {
-	switch {
-	case err == nil:
-		return exitOK
-	case errors.Is(err, context.Canceled) || ctx.Err() != nil:
-		return exitInterrupted
-	case errors.As(err, new(usageError)):
-		return exitUsage
-	default:
-		return exitFailure
-	}
-}
 
 // errorMessage is what stderr shows for err: a line led by the command's
 // name ("loadwake audit: ..."), then a line saying what to do.
@@ -104,6 +85,16 @@ func hint(err error) string {
 		return "give an OSM PBF, OSM XML, OsmChange or changeset file (plain, gzip or bzip2)"
 	case errors.Is(err, rules.ErrInvalid):
 		return "fix the rule file; \"loadwake rules check FILE\" lists every problem as file:line:column"
+	case errors.Is(err, match.ErrMatch), errors.Is(err, match.ErrModel):
+		return "too few untouched units to match: lower --k, drop --caliper, or choose smaller units (a higher tiles:Z or finer polygons)"
+	case errors.Is(err, spatial.ErrUnits):
+		return "check --units: tiles:Z (a lower Z gives fewer, larger tiles), or a GeoJSON file of polygons in longitude/latitude with an id property (--unit-id)"
+	case errors.Is(err, panel.ErrInvalid):
+		return "fix the panel file at the row named above, or name its columns with --unit, --time, --first-treated and --outcome"
+	case errors.Is(err, proposal.ErrInvalid):
+		return "fix the proposal file at the position named above (OSM XML, OsmChange or GeoJSON with tags as properties)"
+	case errors.Is(err, study.ErrStudy):
+		return "the study cannot be built as asked: widen --before/--after, lower --min-intensity, or choose other units"
 	case errors.Is(err, episode.ErrNoImport):
 		return "list the store's imports with \"loadwake imports\", then pass --import ID, --account NAME or --changesets FILE"
 	case errors.Is(err, sim.ErrOutputExists):
