@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io/fs"
 	"strings"
+	"syscall"
 
 	"github.com/spf13/cobra"
 
@@ -75,6 +76,12 @@ func hint(err error) string {
 	switch {
 	case errors.Is(err, errNoStore):
 		return "run \"loadwake ingest FILE...\" to make one, or name it with --store DIR (or LOADWAKE_STORE)"
+	case errors.Is(err, errIsDir), errors.Is(err, syscall.EISDIR):
+		return "name the files inside the folder, not the folder (a shell pattern such as DIR/*.osc.gz works)"
+	case errors.Is(err, fs.ErrNotExist):
+		return "check the path: no such file or folder"
+	case errors.Is(err, fs.ErrPermission):
+		return "check the file's permissions"
 	case errors.Is(err, ingest.ErrLocked):
 		return "another loadwake process uses this store: wait until it ends, or pass another --store"
 	case errors.Is(err, ingest.ErrSchemaNewer):
@@ -99,12 +106,6 @@ func hint(err error) string {
 		return "list the store's imports with \"loadwake imports\", then pass --import ID, --account NAME or --changesets FILE"
 	case errors.Is(err, sim.ErrOutputExists):
 		return "pass --force to replace the files, or choose another --out"
-	case errors.Is(err, errIsDir):
-		return "name the files inside the folder (a shell pattern such as DIR/*.osc.gz works)"
-	case errors.Is(err, fs.ErrNotExist):
-		return "check the path: no such file or folder"
-	case errors.Is(err, fs.ErrPermission):
-		return "check the file's permissions"
 	}
 	return ""
 }

@@ -9,8 +9,6 @@ import (
 	"runtime/debug"
 	"strings"
 	"testing"
-
-	"github.com/loadwake/loadwake/rules"
 )
 
 // TestExitCodes runs command lines as main does and checks the exit code of
@@ -19,10 +17,7 @@ import (
 func TestExitCodes(t *testing.T) {
 	store := ingestFixture(t, "way_6394949.osm")
 	dir := t.TempDir()
-	bad := filepath.Join(dir, "bad.osm")
-	if err := os.WriteFile(bad, []byte("<osm>\n <node id=\"1\" version=\"1\" lat=\"x\" lon=\"2\" timestamp=\"2020-01-01T00:00:00Z\"/>\n</osm>\n"), 0o644); err != nil {
-		t.Fatal(err)
-	}
+	bad := writeBadOSM(t, dir)
 	badRules := filepath.Join(dir, "bad.yaml")
 	if err := os.WriteFile(badRules, []byte("format: 1\nextra: 1\n"), 0o644); err != nil {
 		t.Fatal(err)
@@ -58,7 +53,7 @@ func TestExitCodes(t *testing.T) {
 		{"folder as input file", []string{"--store", filepath.Join(dir, "new.db"), "ingest", dir}, exitFailure, "loadwake ingest: input file " + dir + ": is a folder", "name the files inside"},
 		{"malformed input file", []string{"--store", filepath.Join(dir, "bad.db"), "ingest", bad}, exitFailure, "loadwake ingest: ", "fix or replace the file"},
 		{"missing panel", []string{"estimate", "--panel", missing, "--outcome", "x"}, exitFailure, "loadwake estimate: panel: ", "check the path"},
-		{"folder as panel", []string{"estimate", "--panel", dir, "--outcome", "x"}, exitFailure, "loadwake estimate: ", ""},
+		{"folder as panel", []string{"estimate", "--panel", dir, "--outcome", "x"}, exitFailure, "loadwake estimate: ", "name the files inside"},
 		{"no store", []string{"--store", filepath.Join(dir, "none"), "stats"}, exitFailure, "loadwake stats: no store at", "loadwake ingest FILE"},
 		{"bad rule file", []string{"rules", "check", badRules}, exitFailure, "loadwake rules check: " + badRules + ": ", "loadwake rules check FILE"},
 		{"no such import", []string{"--store", store, "audit", "--units", "tiles:12", "--import", "imp-1"}, exitFailure, "loadwake audit: ", "loadwake imports"},
@@ -185,11 +180,7 @@ func TestOutputFlags(t *testing.T) {
 // the store's imports (the TIGER account of TestImportsCommand's rule file).
 func TestCompleteImport(t *testing.T) {
 	store := ingestFixture(t, "way_6394949.osm")
-	tiger := filepath.Join(t.TempDir(), "tiger.yaml")
-	src := strings.Replace(string(rules.DefaultYAML()), "  matchers:\n", "  matchers:\n    - name: tiger-account\n      account_ids: [7168]\n", 1)
-	if err := os.WriteFile(tiger, []byte(src), 0o644); err != nil {
-		t.Fatal(err)
-	}
+	tiger := tigerRules(t, t.TempDir())
 	for _, cmd := range []string{"audit", "panel", "report", "checklist"} {
 		t.Run(cmd, func(t *testing.T) {
 			code, out, _ := execMain(t, nil, "__complete", "--store", store, cmd, "--rules", tiger, "--import", "")

@@ -3,10 +3,13 @@ package main
 import (
 	"bytes"
 	"context"
+	"os"
 	"path/filepath"
+	"strings"
 	"testing"
 
 	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/rules"
 )
 
 // execRoot runs the root command with args, as a user would from a shell,
@@ -58,4 +61,27 @@ func execMain(t testing.TB, env map[string]string, args ...string) (code int, st
 	var out, errb bytes.Buffer
 	code = run(context.Background(), args, func(k string) string { return env[k] }, &out, &errb)
 	return code, out.String(), errb.String()
+}
+
+// tigerRules writes into dir a rule file naming the TIGER import account by
+// id (OSM wiki, TIGER page; from memory) and returns its path.
+func tigerRules(t testing.TB, dir string) string {
+	t.Helper()
+	tiger := filepath.Join(dir, "tiger.yaml")
+	src := strings.Replace(string(rules.DefaultYAML()), "  matchers:\n", "  matchers:\n    - name: tiger-account\n      account_ids: [7168]\n", 1)
+	if err := os.WriteFile(tiger, []byte(src), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return tiger
+}
+
+// writeBadOSM writes into dir an OSM XML file whose node on line 2 has a
+// latitude that is not a number, and returns its path.
+func writeBadOSM(t testing.TB, dir string) string {
+	t.Helper()
+	bad := filepath.Join(dir, "bad.osm")
+	if err := os.WriteFile(bad, []byte("<osm>\n <node id=\"1\" version=\"1\" lat=\"x\" lon=\"2\" timestamp=\"2020-01-01T00:00:00Z\"/>\n</osm>\n"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	return bad
 }
