@@ -5,6 +5,7 @@ import (
 	"fmt"
 	"io"
 	"iter"
+	"path/filepath"
 
 	"github.com/paulmach/osm"
 	"github.com/spf13/cobra"
@@ -28,13 +29,13 @@ type assessOptions struct {
 	draws    int
 	json     string
 	md       string
-	report   string // write the report folder here
+	out      string // write the report folder here
 }
 
 func newAssessCommand(g *globalOptions) *cobra.Command {
 	var o assessOptions
 	cmd := &cobra.Command{
-		Use:   "assess PROPOSAL [--units SPEC] [--distance 15] [--json FILE] [--md FILE]",
+		Use:   "assess PROPOSAL [--units SPEC] [--distance 15] [--json FILE] [--md FILE] [--out DIR]",
 		Short: "Assess a proposed import against the store and past imports",
 		Long: `assess reads a proposed import (OSM XML, OsmChange or GeoJSON with tags as
 properties) and reports:
@@ -53,20 +54,21 @@ properties) and reports:
 
 It ends with the review points of the community's import guidelines. The
 figures are a first screen for local review, not a conflation or a decision.`,
-		Args: exactArgs(1),
-		RunE: func(cmd *cobra.Command, args []string) error { return runAssess(cmd, g, &o, args[0]) },
+		Args:        exactArgs(1),
+		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
+		RunE:        func(cmd *cobra.Command, args []string) error { return runAssess(cmd, g, &o, args[0]) },
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.rules, "rules", "", "rule file (default: the built-in rules)")
+	f.StringVar(&o.rules, "rules", "", "rule `FILE` (default: the built-in rules; see loadwake rules show)")
 	f.StringVar(&o.units, "units", "tiles:14", `spatial units: "tiles:Z" or a GeoJSON file of polygons`)
 	f.StringVar(&o.unitID, "unit-id", "id", "GeoJSON property holding each unit's id")
 	f.Float64Var(&o.distance, "distance", proposal.DefaultDuplicateDistance, "metres within which an existing feature of the same class is a likely duplicate")
 	f.IntVar(&o.nearest, "nearest", proposal.DefaultNearestImports, "past imports to compare with")
 	f.BoolVar(&o.noAudit, "no-audit", false, "do not audit the nearest past imports (faster; no expected effects or neglected keys)")
 	f.IntVar(&o.draws, "draws", 999, "bootstrap draws of the past imports' audits")
-	f.StringVar(&o.json, "json", "", "write the assessment as JSON to this file")
-	f.StringVar(&o.md, "md", "", "write the assessment as Markdown to this file")
-	f.StringVar(&o.report, "report", "", "write the report folder (Markdown and HTML to post) here")
+	addFileFlag(f, &o.json, "json", "the assessment as JSON")
+	addFileFlag(f, &o.md, "md", "the assessment as Markdown")
+	addOutFlag(f, &o.out, "the report (Markdown and HTML to post)")
 	return cmd
 }
 
@@ -89,7 +91,11 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	case o.draws < 99:
 		return usagef("--draws must be at least 99")
 	}
-	ctx, out := cmd.Context(), cmd.OutOrStdout()
+	outs, err := newOutputs(cmd, o.json, o.md)
+	if err != nil {
+		return err
+	}
+	ctx, out := cmd.Context(), outs.text
 	r, err := loadRules(o.rules)
 	if err != nil {
 		return err
@@ -110,20 +116,25 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	}
 	eo := did.DefaultOptions()
 	eo.Draws = o.draws
+	done := newProgress(cmd, g).step("assess " + filepath.Base(path) + " against past imports")
 	a, err := audit.Assess(ctx, st, r, p, audit.AssessOptions{SkipPast: o.noAudit,
 		Proposal: proposal.AssessOptions{Distance: o.distance, Units: units, Nearest: o.nearest},
 		Audit:    audit.Options{Estimate: eo, UnitSpec: o.units}})
+	done()
 	if err != nil {
 		return err
 	}
 	if err := a.WriteMarkdown(out); err != nil {
 		return err
 	}
-	if err := writeOutputs(out, output{o.json, a.WriteJSON}, output{o.md, a.WriteMarkdown}); err != nil {
+	if err := outs.write(o.json, a.WriteJSON); err != nil {
 		return err
 	}
-	if o.report != "" {
-		return writeReports(out, o.report, report.Input{Assessment: a, Provenance: audit.NewProvenance(generator(ctx, st, false))})
+	if err := outs.write(o.md, a.WriteMarkdown); err != nil {
+		return err
+	}
+	if o.out != "" {
+		return writeReports(out, o.out, report.Input{Assessment: a, Provenance: audit.NewProvenance(generator(ctx, st, false))})
 	}
 	return nil
 }

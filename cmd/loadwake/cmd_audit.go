@@ -3,30 +3,26 @@ package main
 import (
 	"fmt"
 	"io"
-	"os"
 
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
-	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/report"
 )
 
 // auditOptions holds the flags of `loadwake audit`.
 type auditOptions struct {
-	study     studyFlags
-	json      string // write the audit JSON here
-	report    string // write the report folder here
-	md        string // write the report's Markdown here
-	draws     int
-	seed      uint64
-	inference string
-	pre       int // event window months before treatment for the estimators
+	study studyFlags
+	json  string // write the audit JSON here
+	out   string // write the report folder here
+	md    string // write the report's Markdown here
+	est   estimatorFlags
 }
 
 func newAuditCommand(g *globalOptions) *cobra.Command {
 	var o auditOptions
 	cmd := &cobra.Command{
-		Use:   "audit --units SPEC [--import ID] [--json FILE]",
+		Use:   "audit --units SPEC [--import ID] [--json FILE] [--md FILE] [--out DIR]",
 		Short: "Estimate how follow-on editing changed after an import, per layer",
 		Long: `audit builds the import's panel with matched control units (see loadwake panel)
 and estimates, for each layer, attribute key family and contributor group, how
@@ -46,40 +42,40 @@ effect is the change as a share of what the import's units would have seen
 without it. The JSON contract is described in the README ("The audit JSON").
 
 The figures are evidence for the community's review, not a verdict.`,
-		Args: noArgs,
-		RunE: func(cmd *cobra.Command, _ []string) error { return runAudit(cmd, g, &o) },
+		Example: `  loadwake audit --units tiles:14 --import imp-6143 --json audit.json --out review
+  loadwake audit --units districts.geojson --json - | jq .effects`,
+		Args:              noArgs,
+		Annotations:       map[string]string{annInterrupted: interruptedReadOnly},
+		ValidArgsFunction: cobra.NoFileCompletions,
+		RunE:              func(cmd *cobra.Command, _ []string) error { return runAudit(cmd, g, &o) },
 	}
-	o.study.addFlags(cmd.Flags())
+	o.study.addFlags(cmd, g)
 	f := cmd.Flags()
-	f.StringVar(&o.json, "json", "", "write the audit as JSON to this file")
-	f.StringVar(&o.report, "report", "", "write the report folder (Markdown, HTML with charts, JSON, GeoJSON, panel CSV) here")
-	f.StringVar(&o.md, "md", "", "write the report's Markdown to this file")
-	f.IntVar(&o.draws, "draws", 999, "bootstrap draws")
-	f.Uint64Var(&o.seed, "seed", 1, "seed of the bootstrap draws")
-	f.StringVar(&o.inference, "inference", "auto", "auto (bootstrap when treated units are few), analytic or bootstrap")
-	f.IntVar(&o.pre, "pre", 12, "months before each unit's import used by the estimators (at most --before)")
+	addFileFlag(f, &o.json, "json", "the audit as JSON")
+	addFileFlag(f, &o.md, "md", "the report's Markdown")
+	addOutFlag(f, &o.out, "the report (Markdown, HTML with charts, JSON, GeoJSON, panel CSV)")
+	addEstimatorFlags(f, &o.est)
 	return cmd
 }
 
 func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
-	if o.draws < 99 {
-		return usagef("--draws must be at least 99")
+	if err := o.est.validate(&o.study, cmd.Flags()); err != nil {
+		return err
 	}
-	in, err := o.study.open(cmd.Context(), g)
+	outs, err := newOutputs(cmd, o.json, o.md)
+	if err != nil {
+		return err
+	}
+	in, err := o.study.open(cmd, g)
 	if err != nil {
 		return err
 	}
 	defer in.store.Close()
-	eo := did.DefaultOptions()
-	eo.Draws, eo.Seed, eo.Inference = o.draws, o.seed, o.inference
-	eo.Window = did.Window{Pre: min(o.pre, o.study.before), Post: o.study.after}
-	rep, err := audit.Run(cmd.Context(), in.store, in.episode, in.all, in.units,
-		audit.Options{Study: o.study.studyOptions(), Estimate: eo, UnitSpec: o.study.units,
-			Generator: generator(cmd.Context(), in.store, false)})
+	rep, err := runStudyAudit(cmd, g, in, &o.study, &o.est)
 	if err != nil {
 		return err
 	}
-	out := cmd.OutOrStdout()
+	out := outs.text
 	fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, joinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
 	if err := audit.WriteUnitSummary(out, rep.Study); err != nil {
 		return err
@@ -95,37 +91,17 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 	for _, c := range rep.Cautions {
 		fmt.Fprintln(out, "caution:", c)
 	}
-	if o.json != "" {
-		if err := writeFile(o.json, rep.WriteJSON); err != nil {
-			return err
-		}
-		fmt.Fprintln(out, "wrote", o.json)
-	}
-	if o.md != "" {
-		if err := writeReportMarkdown(o.md, reportInput(rep, in.units, nil, nil)); err != nil {
-			return err
-		}
-		fmt.Fprintln(out, "wrote", o.md)
-	}
-	if o.report != "" {
-		if err := writeReports(out, o.report, reportInput(rep, in.units, nil, nil)); err != nil {
-			return err
-		}
-	}
-	return nil
-}
-
-// writeFile creates path and lets write fill it.
-func writeFile(path string, write func(w io.Writer) error) error {
-	f, err := os.Create(path)
-	if err != nil {
+	md := func(w io.Writer) error { return report.WriteMarkdown(w, reportInput(rep, in.units, nil, nil)) }
+	if err := outs.write(o.json, rep.WriteJSON); err != nil {
 		return err
 	}
-	if err := write(f); err != nil {
-		f.Close()
-		return fmt.Errorf("write %s: %w", path, err)
+	if err := outs.write(o.md, md); err != nil {
+		return err
 	}
-	return f.Close()
+	if o.out != "" {
+		return writeReports(out, o.out, reportInput(rep, in.units, nil, nil))
+	}
+	return nil
 }
 
 func joinOr(s []string, none string) string {

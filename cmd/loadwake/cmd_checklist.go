@@ -1,7 +1,6 @@
 package main
 
 import (
-	"context"
 	"fmt"
 	"io"
 	"strings"
@@ -23,13 +22,13 @@ type checklistOptions struct {
 	minFeatures int
 	json        string
 	md          string
-	report      string // write the report folder here
+	out         string // write the report folder here
 }
 
 func newChecklistCommand(g *globalOptions) *cobra.Command {
 	var o checklistOptions
 	cmd := &cobra.Command{
-		Use:   "checklist (--units SPEC [--import ID] | --provenance TAG) [--json FILE] [--md FILE]",
+		Use:   "checklist (--units SPEC [--import ID] | --provenance TAG) [--json FILE] [--md FILE] [--out DIR]",
 		Short: "List attribute keys an import's features carry less often than comparable features",
 		Long: `checklist compares, for each feature class an import created, how many of the
 imported features carry each attribute key at the end of the study window with
@@ -53,18 +52,19 @@ or key~regex; they are compared with features of the same class without it.
 The Markdown (--md) is a checklist to paste into a review, closing with the
 cautions: the figures are evidence for local review; follow the community's
 import guidelines before any follow-up edit.`,
-		Args: noArgs,
-		RunE: func(cmd *cobra.Command, _ []string) error { return runChecklist(cmd, g, &o) },
+		Args:        noArgs,
+		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
+		RunE:        func(cmd *cobra.Command, _ []string) error { return runChecklist(cmd, g, &o) },
 	}
-	o.study.addFlags(cmd.Flags())
+	o.study.addFlags(cmd, g)
 	f := cmd.Flags()
 	f.StringVar(&o.provenance, "provenance", "", "snapshot mode: tag marking the import's features (prefix:*, key, key=value or key~regex)")
 	f.StringVar(&o.types, "types", "", "snapshot mode: object types to count, any of n,w,r (default all)")
 	f.Float64Var(&o.minShare, "min-share", checklist.DefaultMinShare, "least share of reference features carrying a key for it to be considered")
 	f.IntVar(&o.minFeatures, "min-features", checklist.DefaultMinFeatures, "least number of reference features carrying a key (and of reference features per class)")
-	f.StringVar(&o.json, "json", "", "write the checklist as JSON to this file")
-	f.StringVar(&o.md, "md", "", "write the checklist as Markdown to this file")
-	f.StringVar(&o.report, "report", "", "write the report folder (Markdown and HTML to post) here")
+	addFileFlag(f, &o.json, "json", "the checklist as JSON")
+	addFileFlag(f, &o.md, "md", "the checklist as Markdown")
+	addOutFlag(f, &o.out, "the report (Markdown and HTML to post)")
 	return cmd
 }
 
@@ -75,33 +75,41 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 	if o.minFeatures < 1 {
 		return usagef("--min-features must be at least 1")
 	}
+	outs, err := newOutputs(cmd, o.json, o.md)
+	if err != nil {
+		return err
+	}
 	co := checklist.Options{MinShare: o.minShare, MinFeatures: o.minFeatures}
 	var cl *checklist.Checklist
-	var err error
 	if o.provenance != "" {
-		cl, err = snapshotChecklist(cmd.Context(), g, o, co)
+		cl, err = snapshotChecklist(cmd, g, o, co)
 	} else {
-		cl, err = studyChecklist(cmd.Context(), g, o, co)
+		cl, err = studyChecklist(cmd, g, o, co)
 	}
 	if err != nil {
 		return err
 	}
-	out := cmd.OutOrStdout()
-	writeChecklistText(out, cl)
-	if err := writeOutputs(out, output{o.json, cl.WriteJSON}, output{o.md, cl.WriteMarkdown}); err != nil {
+	writeChecklistText(outs.text, cl)
+	if err := outs.write(o.json, cl.WriteJSON); err != nil {
 		return err
 	}
-	if o.report != "" {
-		return writeReports(out, o.report, report.Input{Checklist: cl, Provenance: audit.NewProvenance(generator(cmd.Context(), nil, false))})
+	if err := outs.write(o.md, cl.WriteMarkdown); err != nil {
+		return err
+	}
+	if o.out != "" {
+		return writeReports(outs.text, o.out, report.Input{Checklist: cl, Provenance: audit.NewProvenance(generator(cmd.Context(), nil, false))})
 	}
 	return nil
 }
 
 // snapshotChecklist is the checklist of features marked by --provenance, on
 // a store from a current extract.
-func snapshotChecklist(ctx context.Context, g *globalOptions, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
+func snapshotChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
 	if o.study.importID != "" || o.study.changesets != "" || o.study.account != "" {
 		return nil, usagef("--provenance selects the import's features by a tag; leave out --import, --changesets and --account")
+	}
+	if o.study.units != "" {
+		return nil, usagef("--provenance compares features across the whole store, without units; leave out --units")
 	}
 	prov, err := checklist.ParseProvenance(o.provenance)
 	if err != nil {
@@ -119,40 +127,22 @@ func snapshotChecklist(ctx context.Context, g *globalOptions, o *checklistOption
 		return nil, err
 	}
 	defer st.Close()
-	return checklist.Snapshot(ctx, st, r, prov, co)
+	defer newProgress(cmd, g).step("checklist of " + o.provenance)()
+	return checklist.Snapshot(cmd.Context(), st, r, prov, co)
 }
 
 // studyChecklist is the checklist of one import's study over the units.
-func studyChecklist(ctx context.Context, g *globalOptions, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
+func studyChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
 	if o.types != "" {
 		return nil, usagef("--types applies to --provenance (snapshot mode) only")
 	}
-	in, err := o.study.open(ctx, g)
+	in, err := o.study.open(cmd, g)
 	if err != nil {
 		return nil, err
 	}
 	defer in.store.Close()
-	return audit.ChecklistOf(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), co)
-}
-
-// output is a file a command writes when its flag names one.
-type output struct {
-	path  string
-	write func(io.Writer) error
-}
-
-// writeOutputs writes each output with a path and says so on out.
-func writeOutputs(out io.Writer, outs ...output) error {
-	for _, w := range outs {
-		if w.path == "" {
-			continue
-		}
-		if err := writeFile(w.path, w.write); err != nil {
-			return err
-		}
-		fmt.Fprintln(out, "wrote", w.path)
-	}
-	return nil
+	defer newProgress(cmd, g).step("checklist " + in.episode.ID)()
+	return audit.ChecklistOf(cmd.Context(), in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), co)
 }
 
 // parseTypes reads --types: a comma-separated list of n, w and r.

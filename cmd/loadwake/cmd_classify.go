@@ -1,15 +1,10 @@
 package main
 
 import (
-	"fmt"
-	"os"
-
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
-	"github.com/paulmach/osm"
 	"github.com/spf13/cobra"
-	"golang.org/x/term"
 )
 
 // classifyOptions holds the flags of `loadwake classify`.
@@ -29,7 +24,8 @@ that touched only provenance keys such as source or created_by are counted
 apart as bookkeeping). The events are kept in the store for the later steps.
 It does nothing when the rules and the stored data are unchanged since the last
 run, unless --force.`,
-		Args: noArgs,
+		Args:        noArgs,
+		Annotations: map[string]string{annInterrupted: "classification stopped: the events of finished batches are kept; rerun classify to complete it"},
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runClassify(cmd, g, &o)
 		},
@@ -57,17 +53,15 @@ func runClassify(cmd *cobra.Command, g *globalOptions, o *classifyOptions) error
 
 // classifyStore runs the classification pass over st and prints its summary.
 func classifyStore(cmd *cobra.Command, g *globalOptions, st *ingest.Store, r *rules.RuleSet, force bool) error {
+	stats, err := st.Stats(cmd.Context())
+	if err != nil {
+		return err
+	}
 	opts := layers.Options{Force: force}
-	errw := cmd.ErrOrStderr()
-	f, isFile := errw.(*os.File)
-	tty := isFile && term.IsTerminal(int(f.Fd()))
-	if !g.quiet && tty {
-		opts.Progress = func(t osm.Type, n int64) { fmt.Fprintf(errw, "\rclassifying %s versions: %d ", t, n) }
-	}
+	hook, done := newProgress(cmd, g).classify(stats.Versions())
+	opts.Progress = hook
 	sum, err := layers.Run(cmd.Context(), st, r, opts)
-	if opts.Progress != nil {
-		fmt.Fprint(errw, "\r\033[K")
-	}
+	done()
 	if err != nil {
 		return err
 	}

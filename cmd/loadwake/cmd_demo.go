@@ -37,7 +37,7 @@ type demoOptions struct {
 	draws int
 }
 
-func newDemoCommand(_ *globalOptions) *cobra.Command {
+func newDemoCommand(g *globalOptions) *cobra.Command {
 	o := demoOptions{out: "demo-out", seed: 1, draws: 199}
 	cmd := &cobra.Command{
 		Use:   "demo [--out DIR] [--force] [--seed N]",
@@ -53,8 +53,9 @@ reports into DIR/report/.
 All data are invented: never upload them to OpenStreetMap.`,
 		Example: `  loadwake demo
   loadwake demo --out /tmp/demo --force --seed 7`,
-		Args: noArgs,
-		RunE: func(cmd *cobra.Command, _ []string) error { return runDemo(cmd.Context(), cmd.OutOrStdout(), &o) },
+		Args:        noArgs,
+		Annotations: map[string]string{annInterrupted: "the demo stopped before its report; rerun it with --force"},
+		RunE:        func(cmd *cobra.Command, _ []string) error { return runDemo(cmd, g, &o) },
 	}
 	f := cmd.Flags()
 	f.StringVar(&o.out, "out", o.out, "folder for the world, the store and the reports")
@@ -102,29 +103,33 @@ func (o *demoOptions) config() sim.Config {
 	return cfg
 }
 
-func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
+func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
+	ctx, out, prog := cmd.Context(), cmd.OutOrStdout(), newProgress(cmd, g)
 	if err := o.validate(); err != nil {
 		return err
 	}
 	p := newDemoPaths(o.out)
 	if entries, err := os.ReadDir(o.out); err == nil && len(entries) > 0 && !o.force {
-		return fmt.Errorf("%s is not empty: pass --force to replace an earlier demo, or choose another --out", o.out)
+		return fmt.Errorf("%w: %s", sim.ErrOutputExists, o.out)
 	}
 	// The store is rebuilt each time, so that a changed seed leaves no old history.
 	if err := os.RemoveAll(p.store); err != nil {
 		return err
 	}
 	start := time.Now()
-	st, err := demoStore(ctx, o.config(), p)
+	st, err := demoStore(ctx, prog, o.config(), p)
 	if err != nil {
 		return err
 	}
 	defer st.Close()
-	in, err := demoStudy(ctx, st, o, p)
+	in, err := demoStudy(ctx, prog, st, o, p)
 	if err != nil {
 		return err
 	}
-	if err := writeReports(io.Discard, p.report, in); err != nil {
+	done := prog.step("demo: write the report")
+	err = writeReports(io.Discard, p.report, in)
+	done()
+	if err != nil {
 		return err
 	}
 	for _, line := range demoSummary(in.Audit, in.Checklist, p.report) {
@@ -136,8 +141,11 @@ func runDemo(ctx context.Context, out io.Writer, o *demoOptions) error {
 
 // demoStore invents the world of cfg and returns its store, ingested and
 // classified.
-func demoStore(ctx context.Context, cfg sim.Config, p demoPaths) (*ingest.Store, error) {
-	if _, err := sim.Generate(ctx, cfg, p.world, true); err != nil {
+func demoStore(ctx context.Context, prog *progress, cfg sim.Config, p demoPaths) (*ingest.Store, error) {
+	done := prog.step("demo: invent the world")
+	_, err := sim.Generate(ctx, cfg, p.world, true)
+	done()
+	if err != nil {
 		return nil, err
 	}
 	st, err := ingest.Open(p.store, ingest.DefaultOptions())
@@ -145,9 +153,9 @@ func demoStore(ctx context.Context, cfg sim.Config, p demoPaths) (*ingest.Store,
 		return nil, err
 	}
 	paths := []string{filepath.Join(p.world, sim.HistoryFile), filepath.Join(p.world, sim.ChangesetsFile)}
-	_, err = ingest.Ingest(ctx, st, paths, ingest.IngestOptions{})
+	_, err = ingest.Ingest(ctx, st, paths, ingest.IngestOptions{Progress: prog.ingest()})
 	if err == nil {
-		_, err = layers.Run(ctx, st, rules.Default(), layers.Options{})
+		err = demoClassify(ctx, prog, st)
 	}
 	if err != nil {
 		st.Close()
@@ -156,12 +164,26 @@ func demoStore(ctx context.Context, cfg sim.Config, p demoPaths) (*ingest.Store,
 	return st, nil
 }
 
+// demoClassify runs the classification pass with a progress bar.
+func demoClassify(ctx context.Context, prog *progress, st *ingest.Store) error {
+	stats, err := st.Stats(ctx)
+	if err != nil {
+		return err
+	}
+	hook, done := prog.classify(stats.Versions())
+	defer done()
+	_, err = layers.Run(ctx, st, rules.Default(), layers.Options{Progress: hook})
+	return err
+}
+
 // demoStudy audits the largest import over the districts, builds its
 // checklist and assesses the invented follow-up proposal: what the reports
 // show.
-func demoStudy(ctx context.Context, st *ingest.Store, o *demoOptions, p demoPaths) (report.Input, error) {
+func demoStudy(ctx context.Context, prog *progress, st *ingest.Store, o *demoOptions, p demoPaths) (report.Input, error) {
 	r := rules.Default()
+	done := prog.step("demo: find imports")
 	eps, err := episode.Detect(ctx, st, r, episode.Options{})
+	done()
 	if err != nil {
 		return report.Input{}, err
 	}
@@ -176,15 +198,21 @@ func demoStudy(ctx context.Context, st *ingest.Store, o *demoOptions, p demoPath
 	eo := did.DefaultOptions()
 	eo.Draws = o.draws
 	ao := audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile, Generator: generator(ctx, st, true)}
+	done = prog.step("demo: audit " + ep.ID)
 	rep, err := audit.Run(ctx, st, ep, eps, units, ao)
+	done()
 	if err != nil {
 		return report.Input{}, err
 	}
+	done = prog.step("demo: checklist " + ep.ID)
 	cl, err := audit.ChecklistOf(ctx, st, r, ep, eps, units, study.Options{}, checklist.Options{})
+	done()
 	if err != nil {
 		return report.Input{}, fmt.Errorf("checklist: %w", err)
 	}
+	done = prog.step("demo: assess the invented proposal")
 	a, err := demoAssessment(ctx, st, r, p.proposal, units, rep, eps, ao, o.seed)
+	done()
 	if err != nil {
 		return report.Input{}, fmt.Errorf("assessment: %w", err)
 	}

@@ -85,7 +85,7 @@ func TestDemoAndReport(t *testing.T) {
 	}
 	md := filepath.Join(t.TempDir(), "audit.md")
 	out3 := filepath.Join(t.TempDir(), "audit-report")
-	if out, err := execRootOut(t, "--store", store, "audit", "--units", districts, "--import", rep.Import.ID, "--draws", "99", "--md", md, "--report", out3); err != nil {
+	if out, err := execRootOut(t, "--store", store, "audit", "--units", districts, "--import", rep.Import.ID, "--draws", "99", "--md", md, "--out", out3); err != nil {
 		t.Fatalf("audit --md --report: %v\n%s", err, out)
 	}
 	if b, err := os.ReadFile(md); err != nil || !bytes.HasPrefix(b, []byte("# Follow-on editing after import ")) {
@@ -95,14 +95,14 @@ func TestDemoAndReport(t *testing.T) {
 		t.Errorf("audit --report: %v", err)
 	}
 	out4 := filepath.Join(t.TempDir(), "checklist-report")
-	if out, err := execRootOut(t, "--store", store, "checklist", "--units", districts, "--import", rep.Import.ID, "--report", out4); err != nil {
+	if out, err := execRootOut(t, "--store", store, "checklist", "--units", districts, "--import", rep.Import.ID, "--out", out4); err != nil {
 		t.Fatalf("checklist --report: %v\n%s", err, out)
 	}
 	if b, err := os.ReadFile(filepath.Join(out4, report.FileMarkdown)); err != nil || !bytes.Contains(b, []byte("Neglected tags")) {
 		t.Errorf("checklist --report: %v", err)
 	}
 	out5 := filepath.Join(t.TempDir(), "assess-report")
-	if out, err := execRootOut(t, "--store", store, "assess", filepath.Join(dir, "proposal.geojson"), "--units", districts, "--draws", "99", "--report", out5); err != nil {
+	if out, err := execRootOut(t, "--store", store, "assess", filepath.Join(dir, "proposal.geojson"), "--units", districts, "--draws", "99", "--out", out5); err != nil {
 		t.Fatalf("assess --report: %v\n%s", err, out)
 	}
 	if b, err := os.ReadFile(filepath.Join(out5, report.FileHTML)); err != nil || !bytes.Contains(b, []byte("Proposed import")) {

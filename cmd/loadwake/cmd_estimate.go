@@ -3,7 +3,9 @@ package main
 import (
 	"encoding/json"
 	"fmt"
+	"io"
 	"os"
+	"path/filepath"
 	"strings"
 	"text/tabwriter"
 
@@ -50,7 +52,8 @@ is given), p-value, the joint pre-trend test, unit counts and the inference
 method. With fewer than 30 treated clusters the intervals come from a wild or
 multiplier bootstrap. A CSV written by the panel export has the default column
 names; name the columns of your own file with the flags.`,
-		Args: noArgs,
+		Args:        noArgs,
+		Annotations: map[string]string{annInterrupted: "nothing was written; rerun the same command"},
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runEstimate(cmd, g, &o)
 		},
@@ -64,36 +67,35 @@ names; name the columns of your own file with the flags.`,
 	f.StringVar(&o.cluster, "cluster", "", "column with the cluster for inference (default: the unit)")
 	f.StringVar(&o.weight, "weight", "", "column with matching weights (default: 1)")
 	f.StringSliceVar(&o.covariates, "covariate", nil, "pre-period covariate column(s), constant within a unit; cs-att becomes doubly robust")
-	f.StringVar(&o.json, "json", "", "write all estimates as JSON to this file (- for stdout)")
-	f.IntVar(&o.pre, "window-pre", o.pre, "months before treatment used")
-	f.IntVar(&o.post, "window-post", o.post, "months from treatment used")
+	addFileFlag(f, &o.json, "json", "all estimates as JSON")
+	f.IntVar(&o.pre, "window-before", o.pre, "months before treatment the estimators use")
+	f.IntVar(&o.post, "window-after", o.post, "months from treatment on the estimators use")
 	f.IntVar(&o.draws, "draws", o.draws, "bootstrap draws")
 	f.Uint64Var(&o.seed, "seed", o.seed, "seed of the bootstrap draws")
 	f.StringVar(&o.inference, "inference", o.inference, "auto, analytic or bootstrap")
 	return cmd
 }
 
-func runEstimate(cmd *cobra.Command, _ *globalOptions, o *estimateOptions) error {
+func runEstimate(cmd *cobra.Command, g *globalOptions, o *estimateOptions) error {
 	if o.panel == "" {
-		return usagef("estimate: --panel FILE.csv is required")
+		return usagef("--panel FILE.csv is required")
 	}
 	if len(o.outcomes) == 0 {
-		return usagef("estimate: name at least one --outcome column")
+		return usagef("name at least one --outcome column")
+	}
+	if err := checkEstimator(o.draws, o.inference, o.pre, o.post); err != nil {
+		return err
+	}
+	outs, err := newOutputs(cmd, o.json)
+	if err != nil {
+		return err
 	}
 	opts := did.DefaultOptions()
 	opts.Window = did.Window{Pre: o.pre, Post: o.post}
 	opts.Draws, opts.Seed, opts.Inference = o.draws, o.seed, o.inference
-	if o.pre < 1 || o.post < 1 || o.draws < 99 {
-		return usagef("estimate: --window-pre and --window-post must be >= 1 and --draws >= 99")
-	}
-	switch o.inference {
-	case did.InferenceAuto, did.InferenceAnalytic, did.InferenceBootstrap:
-	default:
-		return usagef("estimate: --inference %q: want auto, analytic or bootstrap", o.inference)
-	}
 	f, err := os.Open(o.panel)
 	if err != nil {
-		return err
+		return fmt.Errorf("panel: %w", err)
 	}
 	defer f.Close()
 	p, err := panel.ReadCSV(f, o.panel, panel.Columns{Unit: o.unit, Time: o.time, FirstTreated: o.firstTreated,
@@ -101,29 +103,18 @@ func runEstimate(cmd *cobra.Command, _ *globalOptions, o *estimateOptions) error
 	if err != nil {
 		return err
 	}
+	done := newProgress(cmd, g).step("estimate " + filepath.Base(o.panel))
 	es, err := did.Estimate(cmd.Context(), p, opts)
+	done()
 	if err != nil {
 		return fmt.Errorf("%s: %w", o.panel, err)
 	}
-	out := cmd.OutOrStdout()
-	if o.json != "-" {
-		printEstimates(out, es)
-	}
-	if o.json != "" {
-		b, err := json.MarshalIndent(es, "", "  ")
-		if err != nil {
-			return fmt.Errorf("estimate: encode JSON: %w", err)
-		}
-		b = append(b, '\n')
-		if o.json == "-" {
-			_, err = out.Write(b)
-			return err
-		}
-		if err := os.WriteFile(o.json, b, 0o644); err != nil {
-			return fmt.Errorf("estimate: %w", err)
-		}
-	}
-	return nil
+	printEstimates(outs.text, es)
+	return outs.write(o.json, func(w io.Writer) error {
+		enc := json.NewEncoder(w)
+		enc.SetIndent("", "  ")
+		return enc.Encode(es)
+	})
 }
 
 func printEstimates(w interface{ Write([]byte) (int, error) }, es *did.Estimates) {

@@ -66,7 +66,7 @@ func TestEstimateCommand(t *testing.T) {
 	panel := writeInventedPanel(t)
 	js := filepath.Join(t.TempDir(), "est.json")
 	out, _, err := execRoot(t, "estimate", "--panel", panel, "--outcome", "geometry,deletion", "--cluster", "cluster",
-		"--weight", "weight", "--window-pre", "6", "--window-post", "10", "--draws", "199", "--json", js)
+		"--weight", "weight", "--window-before", "6", "--window-after", "10", "--draws", "199", "--json", js)
 	if err != nil {
 		t.Fatal(err)
 	}

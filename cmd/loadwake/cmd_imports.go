@@ -2,17 +2,17 @@ package main
 
 import (
 	"fmt"
+	"io"
 	"os"
 
 	"github.com/loadwake/loadwake/audit/episode"
-	"github.com/loadwake/loadwake/rules"
 	"github.com/spf13/cobra"
 )
 
 // importsOptions holds the flags of `loadwake imports`.
 type importsOptions struct {
 	rules        string // rule file; "" means the built-in rules
-	json         bool   // JSON array instead of a table
+	json         string // file for the JSON array of episodes
 	changesets   string // file listing the changesets of a named import
 	account      string // account of a named import
 	includeEmpty bool   // keep matched changesets with no stored versions
@@ -31,7 +31,8 @@ FILE (ids separated by spaces, commas or lines; # starts a comment) or
 --account NAME (a name, or a numeric account id): the result is then that one
 episode, whatever the rules say.
 
---json prints an array of episodes with the fields:
+--json FILE writes an array of episodes (with --json - the JSON goes to stdout
+and the table to stderr) with the fields:
   id           "imp-" or "manual-" and the smallest changeset id; stable across runs
   matchers     names of the rules' matchers that matched ("manual" when named)
   accounts     [{uid, name}] of the changesets
@@ -54,21 +55,23 @@ community discussion, not findings about the people behind an account.`,
 		},
 	}
 	f := cmd.Flags()
-	f.StringVar(&o.rules, "rules", "", "rule file (default: the built-in rules; see loadwake rules show)")
-	f.BoolVar(&o.json, "json", false, "print a JSON array of episodes instead of a table")
-	f.StringVar(&o.changesets, "changesets", "", "file listing the changeset ids of one import to describe")
-	f.StringVar(&o.account, "account", "", "account name or numeric id of one import to describe")
+	addImportFlags(cmd, g, nil, &o.changesets, &o.account, &o.rules)
+	addFileFlag(f, &o.json, "json", "the episodes as a JSON array")
 	f.BoolVar(&o.includeEmpty, "include-empty", false, "keep matched changesets the store holds no versions of")
 	return cmd
 }
 
 func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
-	r := rules.Default()
-	if o.rules != "" {
-		var err error
-		if r, err = rules.Load(o.rules); err != nil {
-			return err
-		}
+	if err := checkImportChoice("", o.changesets, o.account); err != nil {
+		return err
+	}
+	outs, err := newOutputs(cmd, o.json)
+	if err != nil {
+		return err
+	}
+	r, err := loadRules(o.rules)
+	if err != nil {
+		return err
 	}
 	opts := episode.Options{Account: o.account, IncludeEmpty: o.includeEmpty}
 	if o.changesets != "" {
@@ -86,15 +89,17 @@ func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
 	if err != nil {
 		return err
 	}
+	done := newProgress(cmd, g).step("find imports")
 	eps, err := episode.Detect(cmd.Context(), st, r, opts)
+	done()
 	if cerr := st.Close(); err == nil {
 		err = cerr
 	}
 	if err != nil {
 		return err
 	}
-	if o.json {
-		return episode.WriteJSON(cmd.OutOrStdout(), eps)
+	if err := episode.Write(outs.text, eps); err != nil {
+		return err
 	}
-	return episode.Write(cmd.OutOrStdout(), eps)
+	return outs.write(o.json, func(w io.Writer) error { return episode.WriteJSON(w, eps) })
 }

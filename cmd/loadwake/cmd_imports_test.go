@@ -10,7 +10,6 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/episode"
-	"github.com/loadwake/loadwake/rules"
 	"github.com/paulmach/osm"
 )
 
@@ -24,12 +23,7 @@ import (
 func TestImportsCommand(t *testing.T) {
 	store := ingestFixture(t, "way_6394949.osm")
 	dir := t.TempDir()
-	// A rule file naming the TIGER import account by id (OSM wiki, TIGER page; from memory).
-	tiger := filepath.Join(dir, "tiger.yaml")
-	src := strings.Replace(string(rules.DefaultYAML()), "  matchers:\n", "  matchers:\n    - name: tiger-account\n      account_ids: [7168]\n", 1)
-	if err := os.WriteFile(tiger, []byte(src), 0o644); err != nil {
-		t.Fatal(err)
-	}
+	tiger := tigerRules(t, dir)
 	ids := filepath.Join(dir, "ids.txt")
 	if err := os.WriteFile(ids, []byte("# the way's TIGER changeset\n448653\n"), 0o644); err != nil {
 		t.Fatal(err)
@@ -47,9 +41,9 @@ func TestImportsCommand(t *testing.T) {
 		created    int
 		matchers   []string
 	}{
-		{"rules name the account", []string{"imports", "--rules", tiger, "--json"}, "imp-448153", []osm.ChangesetID{448153, 448653}, 4, []string{"tiger-account"}},
-		{"account id", []string{"imports", "--account", "7168", "--json"}, "manual-448153", []osm.ChangesetID{448153, 448653}, 4, []string{"manual"}},
-		{"changeset list", []string{"imports", "--changesets", ids, "--json"}, "manual-448653", []osm.ChangesetID{448653}, 3, []string{"manual"}},
+		{"rules name the account", []string{"imports", "--rules", tiger, "--json", "-"}, "imp-448153", []osm.ChangesetID{448153, 448653}, 4, []string{"tiger-account"}},
+		{"account id", []string{"imports", "--account", "7168", "--json", "-"}, "manual-448153", []osm.ChangesetID{448153, 448653}, 4, []string{"manual"}},
+		{"changeset list", []string{"imports", "--changesets", ids, "--json", "-"}, "manual-448653", []osm.ChangesetID{448653}, 3, []string{"manual"}},
 	}
 	for _, tt := range tests {
 		t.Run(tt.name, func(t *testing.T) {

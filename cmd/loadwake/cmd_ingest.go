@@ -9,7 +9,6 @@ import (
 	"github.com/dustin/go-humanize"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/spf13/cobra"
-	"golang.org/x/term"
 )
 
 // ingestOptions holds the flags of `loadwake ingest`.
@@ -41,6 +40,8 @@ leaves that for a later loadwake classify.
 
 OpenStreetMap data is licensed under the ODbL: keep its attribution in
 whatever you derive from the store.`,
+		Annotations: map[string]string{annInterrupted: "ingest stopped between batches: what was stored is kept and consistent; " +
+			"rerun the same command to continue (files ingested completely are skipped, nothing is stored twice)"},
 		Args: func(_ *cobra.Command, args []string) error {
 			if len(args) == 0 {
 				return usagef("ingest needs at least one FILE")
@@ -63,25 +64,24 @@ func runIngest(cmd *cobra.Command, g *globalOptions, o *ingestOptions, paths []s
 	}
 	for _, p := range paths {
 		if st, err := os.Stat(p); err != nil {
-			return fmt.Errorf("ingest: %w", err)
+			return fmt.Errorf("input file: %w", err)
 		} else if st.IsDir() {
-			return usagef("ingest: %s is a directory, not a file", p)
+			return fmt.Errorf("input file %s: %w", p, errIsDir)
 		}
 	}
 	s, err := ingest.Open(g.store, ingest.DefaultOptions())
 	if err != nil {
 		return err
 	}
-	opts := ingest.IngestOptions{}
+	opts := ingest.IngestOptions{Progress: newProgress(cmd, g).ingest()}
 	errw := cmd.ErrOrStderr()
-	if f, ok := errw.(*os.File); ok && !g.quiet && term.IsTerminal(int(f.Fd())) {
-		opts.Progress = ingest.NewLineProgress(errw, nil)
-	}
 	rep, err := ingest.Ingest(cmd.Context(), s, paths, opts)
 	printIngestReport(cmd.OutOrStdout(), errw, rep)
 	switch {
+	case err != nil && cmd.Context().Err() != nil:
+		// exitCode says what an interruption leaves behind.
 	case err != nil && !o.noClassify:
-		fmt.Fprintln(errw, "not classified: fix the file named above and rerun ingest (what was stored is kept)")
+		fmt.Fprintln(cmd.OutOrStdout(), "not classified: fix the file the error names and rerun ingest (what was stored is kept)")
 	case err == nil && !o.noClassify:
 		err = classifyStore(cmd, g, s, r, false)
 	}

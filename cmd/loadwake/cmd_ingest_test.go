@@ -73,7 +73,7 @@ func TestIngestAndStatsCommands(t *testing.T) {
 		t.Errorf("second ingest: %v\n%s", err, out)
 	}
 
-	out, _, err = execRoot(t, "--store", store, "stats", "--json")
+	out, _, err = execRoot(t, "--store", store, "stats", "--json", "-")
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -109,10 +109,7 @@ func TestIngestAndStatsCommands(t *testing.T) {
 func TestIngestCommandErrors(t *testing.T) {
 	dir := t.TempDir()
 	store := filepath.Join(dir, "db")
-	bad := filepath.Join(dir, "bad.osm")
-	if err := os.WriteFile(bad, []byte("<osm>\n <node id=\"1\" version=\"1\" lat=\"x\" lon=\"2\" timestamp=\"2020-01-01T00:00:00Z\"/>\n</osm>\n"), 0o644); err != nil {
-		t.Fatal(err)
-	}
+	bad := writeBadOSM(t, dir)
 	cases := []struct {
 		name  string
 		args  []string

@@ -37,26 +37,33 @@ pre-import activity (Mahalanobis distance, or --propensity). It prints the
 balance table and writes the panel as CSV (one row per unit and month; columns
 unit, month, first_treated, weight, cluster, then one per outcome), the format
 loadwake estimate reads.`,
-		Args: noArgs,
-		RunE: func(cmd *cobra.Command, _ []string) error { return runPanel(cmd, g, &o) },
+		Args:        noArgs,
+		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
+		RunE:        func(cmd *cobra.Command, _ []string) error { return runPanel(cmd, g, &o) },
 	}
-	o.study.addFlags(cmd.Flags())
-	cmd.Flags().StringVar(&o.csv, "csv", "", "write the panel to this CSV file")
+	o.study.addFlags(cmd, g)
+	addFileFlag(cmd.Flags(), &o.csv, "csv", "the panel as CSV")
 	cmd.Flags().BoolVar(&o.all, "all", false, "write every clean unit (unweighted) instead of the matched set")
 	return cmd
 }
 
 func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
-	in, err := o.study.open(cmd.Context(), g)
+	outs, err := newOutputs(cmd, o.csv)
+	if err != nil {
+		return err
+	}
+	in, err := o.study.open(cmd, g)
 	if err != nil {
 		return err
 	}
 	defer in.store.Close()
+	done := newProgress(cmd, g).step("panel " + in.episode.ID + ": build the study")
 	st, err := study.ForEpisode(cmd.Context(), in.store, in.episode, in.all, in.units, o.study.studyOptions())
+	done()
 	if err != nil {
 		return err
 	}
-	out := cmd.OutOrStdout()
+	out := outs.text
 	fmt.Fprintf(out, "import %s, panel %s to %s, %d outcomes\n", in.episode.ID, st.Window[0], st.Window[1], len(st.Panel.Outcomes))
 	if err := audit.WriteUnitSummary(out, st); err != nil {
 		return err
@@ -67,16 +74,12 @@ func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
 	for _, n := range st.Notes {
 		fmt.Fprintln(out, "note:", n)
 	}
-	if o.csv == "" {
-		return nil
-	}
 	p := st.Panel
 	if o.all {
 		p = st.All
 	}
-	if err := writeFile(o.csv, func(w io.Writer) error { return panel.WriteCSV(w, p) }); err != nil {
-		return err
+	if o.csv != "" {
+		fmt.Fprintf(out, "panel: %d units x %d months\n", len(p.Units), p.Months)
 	}
-	fmt.Fprintf(out, "wrote %s: %d units x %d months\n", o.csv, len(p.Units), p.Months)
-	return nil
+	return outs.write(o.csv, func(w io.Writer) error { return panel.WriteCSV(w, p) })
 }

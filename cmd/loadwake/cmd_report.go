@@ -7,7 +7,6 @@ import (
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/checklist"
-	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/report"
 )
 
@@ -15,10 +14,7 @@ import (
 type reportOptions struct {
 	study       studyFlags
 	out         string
-	draws       int
-	seed        uint64
-	inference   string
-	pre         int
+	est         estimatorFlags
 	noChecklist bool
 }
 
@@ -44,16 +40,14 @@ with the cautions: the figures are evidence for the community's review, not a
 verdict; imports follow the community's import guidelines and local review.`,
 		Example: `  loadwake report --units districts.geojson --out review
   loadwake report --units tiles:14 --import imp-6143 --out review`,
-		Args: noArgs,
-		RunE: func(cmd *cobra.Command, _ []string) error { return runReport(cmd, g, &o) },
+		Args:        noArgs,
+		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
+		RunE:        func(cmd *cobra.Command, _ []string) error { return runReport(cmd, g, &o) },
 	}
-	o.study.addFlags(cmd.Flags())
+	o.study.addFlags(cmd, g)
 	f := cmd.Flags()
-	f.StringVar(&o.out, "out", "", "folder to write the report into (required; created if missing)")
-	f.IntVar(&o.draws, "draws", 999, "bootstrap draws")
-	f.Uint64Var(&o.seed, "seed", 1, "seed of the bootstrap draws")
-	f.StringVar(&o.inference, "inference", "auto", "auto (bootstrap when treated units are few), analytic or bootstrap")
-	f.IntVar(&o.pre, "pre", 12, "months before each unit's import used by the estimators (at most --before)")
+	addOutFlag(f, &o.out, "the report (required)")
+	addEstimatorFlags(f, &o.est)
 	f.BoolVar(&o.noChecklist, "no-checklist", false, "leave the neglected-tag checklist out")
 	return cmd
 }
@@ -62,27 +56,24 @@ func runReport(cmd *cobra.Command, g *globalOptions, o *reportOptions) error {
 	if o.out == "" {
 		return usagef("--out is required: the folder to write the report into")
 	}
-	if o.draws < 99 {
-		return usagef("--draws must be at least 99")
+	if err := o.est.validate(&o.study, cmd.Flags()); err != nil {
+		return err
 	}
 	ctx := cmd.Context()
-	in, err := o.study.open(ctx, g)
+	in, err := o.study.open(cmd, g)
 	if err != nil {
 		return err
 	}
 	defer in.store.Close()
-	eo := did.DefaultOptions()
-	eo.Draws, eo.Seed, eo.Inference = o.draws, o.seed, o.inference
-	eo.Window = did.Window{Pre: min(o.pre, o.study.before), Post: o.study.after}
-	rep, err := audit.Run(ctx, in.store, in.episode, in.all, in.units,
-		audit.Options{Study: o.study.studyOptions(), Estimate: eo, UnitSpec: o.study.units,
-			Generator: generator(ctx, in.store, false)})
+	rep, err := runStudyAudit(cmd, g, in, &o.study, &o.est)
 	if err != nil {
 		return err
 	}
 	var cl *checklist.Checklist
 	if !o.noChecklist {
+		done := newProgress(cmd, g).step("checklist " + in.episode.ID)
 		cl, err = audit.ChecklistOf(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), checklist.Options{})
+		done()
 		if err != nil {
 			return fmt.Errorf("checklist: %w", err)
 		}

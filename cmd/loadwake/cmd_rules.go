@@ -10,7 +10,7 @@ import (
 
 // rulesOptions holds the flags of `loadwake rules show`.
 type rulesOptions struct {
-	file string // rule file to show instead of the built-in rules
+	rules string // rule file to show instead of the built-in rules
 }
 
 func newRulesCommand(g *globalOptions) *cobra.Command {
@@ -22,17 +22,23 @@ func newRulesCommand(g *globalOptions) *cobra.Command {
 keys fall into and which changesets count as imports. Print the built-in rules
 with "rules show", edit a copy, check it with "rules check FILE" and pass it to
 other commands with --rules FILE.`,
-		Args: noArgs,
+		Args: func(cmd *cobra.Command, args []string) error {
+			if len(args) > 0 {
+				return usagef("unknown command %q: the commands of %s are show and check", args[0], cmd.CommandPath())
+			}
+			return nil
+		},
+		RunE: func(cmd *cobra.Command, _ []string) error { return cmd.Help() },
 	}
 	show := &cobra.Command{
 		Use:   "show",
-		Short: "Print the built-in rules, or the effective rules of --file",
+		Short: "Print the built-in rules, or the effective rules of --rules FILE",
 		Args:  noArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runRulesShow(cmd, &o)
 		},
 	}
-	show.Flags().StringVar(&o.file, "file", "", "rule file to print as loadwake reads it (defaults filled in, comments dropped)")
+	show.Flags().StringVar(&o.rules, "rules", "", "rule `FILE` to print as loadwake reads it (defaults filled in, comments dropped)")
 	check := &cobra.Command{
 		Use:   "check FILE",
 		Short: "Check a rule file and print every problem as file:line:col: message",
@@ -60,16 +66,16 @@ func noArgs(cmd *cobra.Command, args []string) error {
 
 func runRulesShow(cmd *cobra.Command, o *rulesOptions) error {
 	out := cmd.OutOrStdout()
-	if o.file == "" {
+	if o.rules == "" {
 		fmt.Fprintf(out, "# built-in rules, sha256 %s\n", rules.Default().Hash())
 		_, err := out.Write(rules.DefaultYAML())
 		return err
 	}
-	r, err := rules.Load(o.file)
+	r, err := rules.Load(o.rules)
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(out, "# effective rules of %s, sha256 %s\n", o.file, r.Hash())
+	fmt.Fprintf(out, "# effective rules of %s, sha256 %s\n", o.rules, r.Hash())
 	_, err = out.Write(r.Canonical())
 	return err
 }
@@ -82,7 +88,7 @@ func runRulesCheck(cmd *cobra.Command, file string) error {
 		for _, p := range *ps {
 			fmt.Fprintln(cmd.OutOrStdout(), p.Error())
 		}
-		return fmt.Errorf("%s: %d problem(s)", file, len(*ps))
+		return fmt.Errorf("%s: %d problem(s), listed above (%w)", file, len(*ps), rules.ErrInvalid)
 	case err != nil:
 		return err
 	}

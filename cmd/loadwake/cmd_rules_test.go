@@ -25,7 +25,7 @@ func TestRulesShow(t *testing.T) {
 	if err := os.WriteFile(f, []byte(out), 0o644); err != nil {
 		t.Fatal(err)
 	}
-	out2, _, err := execRoot(t, "rules", "show", "--file", f)
+	out2, _, err := execRoot(t, "rules", "show", "--rules", f)
 	if err != nil {
 		t.Fatal(err)
 	}

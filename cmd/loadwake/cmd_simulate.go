@@ -53,6 +53,7 @@ them to OpenStreetMap.`,
 			}
 			return nil
 		},
+		Annotations: map[string]string{annInterrupted: "the files in the folder may be incomplete; rerun the same command with --force"},
 		PreRunE: func(cmd *cobra.Command, _ []string) error {
 			for _, name := range []string{"effect-geometry", "effect-attribute", "effect-new-feature", "effect-deletion"} {
 				o.effectSet = o.effectSet || cmd.Flags().Changed(name)
@@ -113,8 +114,6 @@ func runSimulate(cmd *cobra.Command, o *simulateOptions) error {
 	switch {
 	case errors.Is(err, sim.ErrConfig):
 		return usagef("%s", strings.TrimPrefix(err.Error(), "sim: invalid configuration: "))
-	case errors.Is(err, sim.ErrOutputExists):
-		return usagef("%s is not empty; pass --force to overwrite the simulation files in it", o.out)
 	case err != nil:
 		return err
 	}

@@ -48,8 +48,8 @@ func TestSimulateCommand(t *testing.T) {
 		}
 	}
 	// Second run into the same folder: refused without --force, done with it.
-	if _, err := execRootOut(t, "simulate", "--out", dir, "--months", "3", "--treated", "1"); !errors.As(err, new(usageError)) {
-		t.Errorf("rerun without --force: %v, want a usage error", err)
+	if code, _, stderr := execMain(t, nil, "simulate", "--out", dir, "--months", "3", "--treated", "1"); code != exitFailure || !strings.Contains(stderr, "pass --force") {
+		t.Errorf("rerun without --force: exit %d, %q; want %d and a hint to pass --force", code, stderr, exitFailure)
 	}
 	if _, err := execRootOut(t, "simulate", "--out", dir, "--months", "3", "--treated", "1", "--force"); err != nil {
 		t.Errorf("rerun with --force: %v", err)

@@ -17,7 +17,7 @@ import (
 
 // statsOptions holds the flags of `loadwake stats`.
 type statsOptions struct {
-	json bool
+	json string
 }
 
 func newStatsCommand(g *globalOptions) *cobra.Command {
@@ -27,14 +27,15 @@ func newStatsCommand(g *globalOptions) *cobra.Command {
 		Short: "Print what the store holds",
 		Long: `stats prints the store's totals: objects and versions by type, deleted
 versions, changesets, users, the time range of the edits, the bounding box of
-the nodes and the files ingested. --json prints the same as one JSON object
-(bbox as [west, south, east, north], as in GeoJSON, RFC 7946).`,
+the nodes and the files ingested. --json FILE writes the same as one JSON
+object (bbox as [west, south, east, north], as in GeoJSON, RFC 7946); with
+--json - the JSON goes to stdout and the table to stderr.`,
 		Args: noArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runStats(cmd, g, &o)
 		},
 	}
-	cmd.Flags().BoolVar(&o.json, "json", false, "print JSON")
+	addFileFlag(cmd.Flags(), &o.json, "json", "the totals as JSON")
 	return cmd
 }
 
@@ -81,15 +82,18 @@ func runStats(cmd *cobra.Command, g *globalOptions, o *statsOptions) error {
 	if err != nil {
 		return err
 	}
-	if o.json {
-		return printStatsJSON(cmd.OutOrStdout(), g.store, m, sum)
+	outs, err := newOutputs(cmd, o.json)
+	if err != nil {
+		return err
 	}
-	printStats(cmd.OutOrStdout(), g.store, m)
+	out := outs.text
+	printStats(out, g.store, m)
 	if sum == nil {
-		fmt.Fprintln(cmd.OutOrStdout(), "not classified yet: run loadwake classify")
-		return nil
+		fmt.Fprintln(out, "not classified yet: run loadwake classify")
+	} else if err := layers.WriteSummary(out, *sum); err != nil {
+		return err
 	}
-	return layers.WriteSummary(cmd.OutOrStdout(), *sum)
+	return outs.write(o.json, func(w io.Writer) error { return printStatsJSON(w, g.store, m, sum) })
 }
 
 func printStatsJSON(w io.Writer, store string, m ingest.Meta, sum *layers.Summary) error {

@@ -3,43 +3,12 @@ package main
 import (
 	"context"
 	"os"
-	"runtime/debug"
 	"strings"
 	"time"
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/ingest"
 )
-
-// buildVersion is loadwake's version from the build info: the module version
-// when installed from a tag, else the VCS revision (with "+dirty" for a
-// modified tree), else "devel".
-func buildVersion() string {
-	bi, ok := debug.ReadBuildInfo()
-	if !ok {
-		return "unknown"
-	}
-	v := bi.Main.Version
-	rev, dirty := "", false
-	for _, s := range bi.Settings {
-		switch s.Key {
-		case "vcs.revision":
-			rev = s.Value
-		case "vcs.modified":
-			dirty = s.Value == "true"
-		}
-	}
-	if (v == "" || v == "(devel)") && rev != "" {
-		v = "devel-" + rev[:min(12, len(rev))]
-		if dirty {
-			v += "+dirty"
-		}
-	}
-	if v == "" {
-		v = "devel"
-	}
-	return v
-}
 
 // commandLine is the exact command that ran, each argument quoted when it
 // holds anything a shell would split or expand.

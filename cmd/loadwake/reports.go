@@ -24,11 +24,6 @@ func writeReports(out io.Writer, dir string, in report.Input) error {
 	return nil
 }
 
-// writeReportMarkdown writes just the Markdown report to path.
-func writeReportMarkdown(path string, in report.Input) error {
-	return writeFile(path, func(w io.Writer) error { return report.WriteMarkdown(w, in) })
-}
-
 // reportInput gathers what a report shows; units may be nil.
 func reportInput(rep *audit.Report, units *spatial.Units, cl *checklist.Checklist, a *proposal.Assessment) report.Input {
 	in := report.Input{Audit: rep, Checklist: cl, Assessment: a}

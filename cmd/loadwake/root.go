@@ -1,8 +1,6 @@
 package main
 
 import (
-	"fmt"
-
 	"github.com/spf13/cobra"
 )
 
@@ -13,17 +11,17 @@ type globalOptions struct {
 	quiet bool   // no progress output
 }
 
-func newGlobalOptions() *globalOptions {
-	return &globalOptions{store: "./loadwake.db"}
-}
+// envStore names the environment variable holding the default store.
+const envStore = "LOADWAKE_STORE"
 
-// usageError marks an error in how the command was called (exit code 2).
-type usageError struct{ msg string }
-
-func (e usageError) Error() string { return e.msg }
-
-func usagef(format string, args ...any) error {
-	return usageError{msg: fmt.Sprintf(format, args...)}
+// newGlobalOptions returns the defaults: the store of $LOADWAKE_STORE, read
+// through getenv, or ./loadwake.db.
+func newGlobalOptions(getenv func(string) string) *globalOptions {
+	g := &globalOptions{store: "./loadwake.db"}
+	if s := getenv(envStore); s != "" {
+		g.store = s
+	}
+	return g
 }
 
 func newRootCommand(g *globalOptions) *cobra.Command {
@@ -36,12 +34,20 @@ imports, compares follow-on activity in import areas with matched untouched
 areas, lists attribute tags imported features went without, and assesses a
 proposed import against past ones.
 
+Every command takes --store DIR (default $LOADWAKE_STORE, else ./loadwake.db).
+--json FILE, --md FILE and --csv FILE write a file, "-" meaning stdout (the
+usual text then goes to stderr); --out DIR names an output folder. Exit codes:
+0 ok, 1 an error in the data or the run, 2 a wrong command line, 130
+interrupted.
+
 Its figures are evidence for a community's review, not a verdict: imports follow
 the community's import guidelines and local review.`,
+		Version:       buildVersion(),
 		SilenceUsage:  true,
 		SilenceErrors: true,
 	}
-	root.PersistentFlags().StringVar(&g.store, "store", g.store, "directory of the history store")
+	root.SetVersionTemplate("loadwake {{.Version}}\n")
+	root.PersistentFlags().StringVar(&g.store, "store", g.store, "directory of the history store (default from $"+envStore+")")
 	root.PersistentFlags().BoolVarP(&g.quiet, "quiet", "q", false, "no progress output on stderr")
 	root.SetFlagErrorFunc(func(_ *cobra.Command, err error) error { return usageError{msg: err.Error()} })
 
@@ -57,6 +63,7 @@ the community's import guidelines and local review.`,
 		newEstimateCommand(g),
 		newSimulateCommand(g),
 		newReportCommand(g), newDemoCommand(g),
+		newVersionCommand(),
 	)
 	return root
 }
