@@ -45,6 +45,10 @@ FUZZTIME ?= 30s
 fuzz:
 	$(GO) test -run '^$$' -fuzz FuzzXMLReader -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
 	$(GO) test -run '^$$' -fuzz FuzzOsmChangeReader -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
+	$(GO) test -run '^$$' -fuzz '^FuzzReadCSV$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/panel
+	$(GO) test -run '^$$' -fuzz '^FuzzFromGeoJSON$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/spatial
+	$(GO) test -run '^$$' -fuzz '^FuzzReadGeoJSONProposal$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/proposal
+	$(GO) test -run '^$$' -fuzz '^FuzzReadOSMProposal$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/proposal
 
 browser-test:
 	bash .ci/browser-test

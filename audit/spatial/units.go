@@ -71,6 +71,7 @@ type Units struct {
 
 	// Polygons.
 	ids    []string
+	names  []string
 	byID   map[string]int
 	polys  []orb.MultiPolygon
 	bounds []orb.Bound
@@ -188,8 +189,10 @@ func FromGeoJSON(name string, data []byte, opts Options) (*Units, error) {
 		if err := validMultiPolygon(mp); err != nil {
 			return nil, &FileError{File: name, Feature: i, Err: fmt.Errorf("unit %q: %w", id, err)}
 		}
+		nm, _ := f.Properties["name"].(string)
 		u.byID[id] = len(u.ids)
 		u.ids = append(u.ids, id)
+		u.names = append(u.names, nm)
 		u.polys = append(u.polys, mp)
 		u.bounds = append(u.bounds, mp.Bound())
 	}
@@ -482,6 +485,15 @@ func (u *Units) ID(i int) string {
 		return u.tile(i).String()
 	}
 	return u.ids[i]
+}
+
+// Name returns unit i's name: the "name" property of a GeoJSON unit or the
+// name tag of a boundary relation; empty for tiles and unnamed units.
+func (u *Units) Name(i int) string {
+	if u.tiles || i >= len(u.names) {
+		return ""
+	}
+	return u.names[i]
 }
 
 // Index returns the unit with the given id.
