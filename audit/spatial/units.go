@@ -1,6 +1,7 @@
 package spatial
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -10,6 +11,7 @@ import (
 	"strconv"
 	"strings"
 	"sync/atomic"
+	"time"
 
 	"github.com/paulmach/orb"
 	"github.com/paulmach/orb/geo"
@@ -54,6 +56,11 @@ type Options struct {
 	// so that a high zoom over a wide area fails early instead of exhausting
 	// memory downstream.
 	MaxTiles int
+	// Store is the history store admin:LEVEL units are assembled from.
+	Store VersionReader
+	// At is the time admin:LEVEL boundaries are taken at (the start of the
+	// study window); zero for the latest versions.
+	At time.Time
 }
 
 // Units is a fixed set of spatial units: slippy-map tiles over a study area,
@@ -85,6 +92,22 @@ type Units struct {
 // zoom Z (0 to MaxTileZoom) that meet opts.Bound, or the path of a GeoJSON
 // file of Polygon and MultiPolygon features (see FromGeoJSON).
 func Parse(spec string, opts Options) (*Units, error) {
+	return Build(context.Background(), spec, opts)
+}
+
+// Build is Parse with a context, and with "admin:LEVEL[,name=GLOB][,within=NAME]"
+// as a third kind of specification: the administrative boundaries of
+// opts.Store at opts.At (see AdminUnits and ParseAdminSpec).
+func Build(ctx context.Context, spec string, opts Options) (*Units, error) {
+	if a, ok, err := ParseAdminSpec(spec); ok {
+		if err != nil {
+			return nil, err
+		}
+		if opts.Store == nil {
+			return nil, fmt.Errorf("%w: %q needs a history store", ErrUnits, spec)
+		}
+		return AdminUnits(ctx, opts.Store, a, opts.At)
+	}
 	if z, ok := strings.CutPrefix(spec, "tiles:"); ok {
 		return tileUnits(spec, z, opts)
 	}
