@@ -19,7 +19,7 @@ func TestUnitsCommand(t *testing.T) {
 	}
 	type feature struct {
 		Geometry struct {
-			Type        string        `json:"type"`
+			Type        string          `json:"type"`
 			Coordinates [][][][]float64 `json:"coordinates"`
 		} `json:"geometry"`
 		Properties struct {
