@@ -20,10 +20,10 @@ func FuzzFromGeoJSON(f *testing.F) {
 		}
 		f.Add(data)
 	}
-	f.Add(gj(poly(`"id":"a"`, `[[0,0],[1,0],[1,1],[0,1],[0,0]]`), poly(`"id":"b"`, `[[0.5,0],[2,0],[2,1],[0.5,0]]`)))
-	f.Add(gj(poly(`"id":"bow"`, `[[0,0],[1,1],[1,0],[0,1],[0,0]]`)))
+	f.Add(gj(poly(`{"id":"a"}`, `[[[0,0],[1,0],[1,1],[0,1],[0,0]]]`), poly(`{"id":"b"}`, `[[[0.5,0],[2,0],[2,1],[0.5,0]]]`)))
+	f.Add(gj(poly(`{"id":"bow"}`, `[[[0,0],[1,1],[1,0],[0,1],[0,0]]]`)))
 	f.Add([]byte(`{"type":"FeatureCollection","crs":{"type":"name","properties":{"name":"urn:ogc:def:crs:EPSG::3857"}},"features":[` +
-		poly(`"id":1`, `[[1000000,6000000],[1100000,6000000],[1100000,6100000],[1000000,6000000]]`) + `]}`))
+		poly(`{"id":1}`, `[[[1000000,6000000],[1100000,6000000],[1100000,6100000],[1000000,6000000]]]`) + `]}`))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		u, err := FromGeoJSON("fuzz.geojson", data, Options{Bound: orb.Bound{Min: orb.Point{-1, -1}, Max: orb.Point{3, 3}}})
 		if err != nil {
