@@ -48,6 +48,10 @@ fuzz:
 	$(GO) test -run '^$$' -fuzz '^FuzzChangesetReader$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
 	$(GO) test -run '^$$' -fuzz '^FuzzPBFReader$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./ingest
 	$(GO) test -run '^$$' -fuzz '^FuzzParse$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./rules
+	$(GO) test -run '^$$' -fuzz '^FuzzReadCSV$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/panel
+	$(GO) test -run '^$$' -fuzz '^FuzzFromGeoJSON$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/spatial
+	$(GO) test -run '^$$' -fuzz '^FuzzReadGeoJSONProposal$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/proposal
+	$(GO) test -run '^$$' -fuzz '^FuzzReadOSMProposal$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/proposal
 
 browser-test:
 	bash .ci/browser-test

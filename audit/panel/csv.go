@@ -176,10 +176,17 @@ func ReadCSV(r io.Reader, name string, cols Columns) (*Panel, error) {
 		if errors.Is(err, io.EOF) {
 			break
 		}
-		line, _ := cr.FieldPos(0)
 		if err != nil {
+			// FieldPos is only valid after a successful Read; a malformed
+			// record carries its position in the csv.ParseError.
+			line := 0
+			var pe *csv.ParseError
+			if errors.As(err, &pe) {
+				line = pe.Line
+			}
 			return nil, &CSVError{File: name, Line: line, Err: err}
 		}
+		line, _ := cr.FieldPos(0)
 		id := strings.TrimSpace(rec[iu])
 		if id == "" {
 			return nil, fail(line, cols.Unit, "empty unit")

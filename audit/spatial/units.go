@@ -1,6 +1,7 @@
 package spatial
 
 import (
+	"context"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -10,6 +11,7 @@ import (
 	"strconv"
 	"strings"
 	"sync/atomic"
+	"time"
 
 	"github.com/paulmach/orb"
 	"github.com/paulmach/orb/geo"
@@ -48,12 +50,26 @@ type Options struct {
 	// absent and IDProperty is "id", the feature's own "id" member is used.
 	IDProperty string
 	// Bound is the study area, required for tiles:Z: the units are the tiles
-	// of zoom Z that meet it. Ignored for unit files.
+	// of zoom Z that meet it. For unit files it is the store's area, when
+	// set: a file whose units all miss it is refused (with a hint when
+	// swapping longitude and latitude would make them meet it), units that
+	// miss it get a warning.
 	Bound orb.Bound
+	// OverlapTolerance is the largest overlap share (overlapping area over
+	// the smaller unit's) two polygon units may have; 0 means
+	// DefaultOverlapTolerance, a negative value turns the check off. Units
+	// read for a store (Bound set, as the commands do) that overlap more are
+	// refused; a file read on its own gets a warning (Warnings) instead.
+	OverlapTolerance float64
 	// MaxTiles caps the number of tiles tiles:Z may produce (default 1<<22),
 	// so that a high zoom over a wide area fails early instead of exhausting
 	// memory downstream.
 	MaxTiles int
+	// Store is the history store admin:LEVEL units are assembled from.
+	Store VersionReader
+	// At is the time admin:LEVEL boundaries are taken at (the start of the
+	// study window); zero for the latest versions.
+	At time.Time
 }
 
 // Units is a fixed set of spatial units: slippy-map tiles over a study area,
@@ -71,6 +87,7 @@ type Units struct {
 
 	// Polygons.
 	ids    []string
+	names  []string
 	byID   map[string]int
 	polys  []orb.MultiPolygon
 	bounds []orb.Bound
@@ -84,6 +101,29 @@ type Units struct {
 // zoom Z (0 to MaxTileZoom) that meet opts.Bound, or the path of a GeoJSON
 // file of Polygon and MultiPolygon features (see FromGeoJSON).
 func Parse(spec string, opts Options) (*Units, error) {
+	return Build(context.Background(), spec, opts)
+}
+
+// Build is Parse with a context, and with "admin:LEVEL[,name=GLOB][,within=NAME]"
+// as a third kind of specification: the administrative boundaries of
+// opts.Store at opts.At (see AdminUnits and ParseAdminSpec).
+func Build(ctx context.Context, spec string, opts Options) (*Units, error) {
+	if a, ok, err := ParseAdminSpec(spec); ok {
+		if err != nil {
+			return nil, err
+		}
+		if opts.Store == nil {
+			return nil, fmt.Errorf("%w: %q needs a history store", ErrUnits, spec)
+		}
+		u, err := AdminUnits(ctx, opts.Store, a, opts.At)
+		if err != nil {
+			return nil, err
+		}
+		if err := u.checkOverlaps(opts.overlapTolerance()); err != nil {
+			return nil, fmt.Errorf("%w: %s: %w", ErrUnits, spec, err)
+		}
+		return u, nil
+	}
 	if z, ok := strings.CutPrefix(spec, "tiles:"); ok {
 		return tileUnits(spec, z, opts)
 	}
@@ -95,6 +135,13 @@ func Parse(spec string, opts Options) (*Units, error) {
 		return nil, fmt.Errorf("%w: read unit file: %w", ErrUnits, err)
 	}
 	return FromGeoJSON(spec, data, opts)
+}
+
+func (o Options) overlapTolerance() float64 {
+	if o.OverlapTolerance == 0 {
+		return DefaultOverlapTolerance
+	}
+	return o.OverlapTolerance
 }
 
 func tileUnits(spec, zs string, opts Options) (*Units, error) {
@@ -136,15 +183,25 @@ func tileUnits(spec, zs string, opts Options) (*Units, error) {
 // polygon: a ring with fewer than four positions, an unclosed ring, a
 // non-finite coordinate, zero area, or edges that cross or touch other than at
 // their shared vertex (self-intersection, checked with a sweep over edge
-// bounds). Holes are not checked to lie inside their shell, nor units to be
-// disjoint: where units overlap, Locate gives the first in file order.
+// bounds). Holes are not checked to lie inside their shell. Overlapping
+// units (see Overlaps and Options.OverlapTolerance) are refused when
+// opts.Bound is set and listed in Warnings otherwise; where units overlap,
+// Locate gives the first in file order. A file that is not JSON (a
+// GeoPackage, a shapefile, KML), a "crs" member other than WGS 84
+// longitude/latitude, or coordinates outside ±180/±90 are refused with the
+// ogr2ogr command that fixes them; with opts.Bound set, so are units that
+// all miss it (naming swapped axes when swapping them would help).
 func FromGeoJSON(name string, data []byte, opts Options) (*Units, error) {
 	prop := opts.IDProperty
 	if prop == "" {
 		prop = "id"
 	}
+	if what := sniffFormat(data); what != "" {
+		return nil, &FileError{File: name, Feature: -1, Err: fmt.Errorf("the file is %s, not GeoJSON; convert it: ogr2ogr -f GeoJSON -t_srs EPSG:4326 units.geojson %s", what, name)}
+	}
 	var fc struct {
 		Type     string            `json:"type"`
+		CRS      json.RawMessage   `json:"crs"`
 		Features []json.RawMessage `json:"features"`
 	}
 	if err := json.Unmarshal(data, &fc); err != nil {
@@ -156,6 +213,9 @@ func FromGeoJSON(name string, data []byte, opts Options) (*Units, error) {
 	}
 	if fc.Type != "FeatureCollection" {
 		return nil, &FileError{File: name, Feature: -1, Err: fmt.Errorf("top-level type is %q, want FeatureCollection", fc.Type)}
+	}
+	if err := checkCRS(name, fc.CRS); err != nil {
+		return nil, &FileError{File: name, Feature: -1, Err: err}
 	}
 	u := &Units{source: name, byID: map[string]int{}}
 	seen := map[string]int{}
@@ -185,16 +245,30 @@ func FromGeoJSON(name string, data []byte, opts Options) (*Units, error) {
 			return nil, &FileError{File: name, Feature: i, Err: fmt.Errorf("duplicate unit id %q (also feature %d)", id, j)}
 		}
 		seen[id] = i
+		if err := checkRange(name, mp); err != nil {
+			return nil, &FileError{File: name, Feature: i, Err: fmt.Errorf("unit %q: %w", id, err)}
+		}
 		if err := validMultiPolygon(mp); err != nil {
 			return nil, &FileError{File: name, Feature: i, Err: fmt.Errorf("unit %q: %w", id, err)}
 		}
+		nm, _ := f.Properties["name"].(string)
 		u.byID[id] = len(u.ids)
 		u.ids = append(u.ids, id)
+		u.names = append(u.names, nm)
 		u.polys = append(u.polys, mp)
 		u.bounds = append(u.bounds, mp.Bound())
 	}
 	if len(u.polys) == 0 {
 		return nil, &FileError{File: name, Feature: -1, Err: fmt.Errorf("no Polygon or MultiPolygon features among %d", len(fc.Features))}
+	}
+	if err := u.checkArea(opts.Bound); err != nil {
+		return nil, &FileError{File: name, Feature: -1, Err: err}
+	}
+	if err := u.checkOverlaps(opts.overlapTolerance()); err != nil {
+		if !opts.Bound.IsZero() {
+			return nil, &FileError{File: name, Feature: -1, Err: err}
+		}
+		u.warnings = append(u.warnings, fmt.Sprintf("%s: %v", name, err))
 	}
 	u.grid = newUnitGrid(u.bounds)
 	return u, nil
@@ -482,6 +556,15 @@ func (u *Units) ID(i int) string {
 		return u.tile(i).String()
 	}
 	return u.ids[i]
+}
+
+// Name returns unit i's name: the "name" property of a GeoJSON unit or the
+// name tag of a boundary relation; empty for tiles and unnamed units.
+func (u *Units) Name(i int) string {
+	if u.tiles || i >= len(u.names) {
+		return ""
+	}
+	return u.names[i]
 }
 
 // Index returns the unit with the given id.

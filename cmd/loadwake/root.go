@@ -64,6 +64,7 @@ the community's import guidelines and local review.`,
 		newSimulateCommand(g),
 		newReportCommand(g), newDemoCommand(g),
 		newVersionCommand(),
+		newUnitsCommand(g),
 	)
 	return root
 }
