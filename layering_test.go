@@ -23,6 +23,7 @@ var allowed = map[string][]string{
 	"ingest/ingesttest": {"ingest"},
 	"rules":             {},
 	"layers":            {"rules"},
+	"layers/export":     {"layers"},
 
 	// audit: leaves first, then the packages built on them.
 	"audit/markdown":    {},

@@ -57,6 +57,7 @@ the community's import guidelines and local review.`,
 		newEstimateCommand(g),
 		newSimulateCommand(g),
 		newReportCommand(g), newDemoCommand(g),
+		newExportCommand(g),
 	)
 	return root
 }
