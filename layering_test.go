@@ -23,6 +23,7 @@ var allowed = map[string][]string{
 	"ingest/ingesttest": {"ingest"},
 	"rules":             {},
 	"layers":            {"rules"},
+	"layers/export":     {"layers"},
 
 	// audit: leaves first, then the packages built on them.
 	"audit/markdown":    {},
@@ -32,7 +33,7 @@ var allowed = map[string][]string{
 	"audit/infer":       {},
 	"audit/sensitivity": {},
 	"audit/sim":         {},
-	"audit/episode":     {"rules"},
+	"audit/episode":     {"layers", "rules"},
 	"audit/did":         {"audit/panel", "audit/infer", "audit/sensitivity"},
 	"audit/study":       {"audit/episode", "audit/match", "audit/panel", "layers"},
 	"audit/checklist":   {"audit/markdown", "audit/study", "audit/episode", "audit/spatial", "layers", "rules"},

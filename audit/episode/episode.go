@@ -7,12 +7,13 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"iter"
+	"math"
 	"slices"
 	"strconv"
 	"strings"
 	"text/tabwriter"
 	"time"
-	"unique"
 
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
@@ -22,7 +23,8 @@ import (
 
 // Source is the history Detect reads. *ingest.Store meets it.
 type Source interface {
-	// ScanChangesets calls fn for every stored changeset's metadata.
+	// ScanChangesets calls fn for every stored changeset's metadata, in
+	// ascending id order (Detect joins them with its counters in that order).
 	ScanChangesets(ctx context.Context, fn func(c *osm.Changeset) error) error
 	// ScanVersions calls fn for every stored version of type t, id ascending
 	// then version ascending.
@@ -49,6 +51,8 @@ type Options struct {
 	// (changeset metadata that reaches beyond the history's extract). By
 	// default they are left out of rule-based episodes.
 	IncludeEmpty bool
+
+	spill int // changesets counted in memory at a time; 0 means defaultSpill
 }
 
 func (o Options) manual() bool { return len(o.Changesets) > 0 || o.Account != "" }
@@ -109,19 +113,6 @@ func (e *Episode) Bound() (b orb.Bound, ok bool) {
 	return orb.Bound{Min: orb.Point{e.BBox[0], e.BBox[1]}, Max: orb.Point{e.BBox[2], e.BBox[3]}}, true
 }
 
-// csStats are the counters Detect keeps per changeset.
-type csStats struct {
-	creates, modifies, deletes int32
-	first, last                int64 // unix seconds of the earliest and latest version
-	uid                        osm.UserID
-	user                       string
-	nodes                      orb.Bound
-	hasNodes                   bool
-	classes                    map[string]int32
-}
-
-func (s *csStats) total() int { return int(s.creates + s.modifies + s.deletes) }
-
 // csMeta is what grouping needs of a changeset.
 type csMeta struct {
 	id         osm.ChangesetID
@@ -135,26 +126,37 @@ type csMeta struct {
 	stats      *csStats
 }
 
-// Detect finds the import episodes in a history. It reads the versions
-// of each type once, counting per changeset the versions that created,
-// modified and deleted objects and their feature classes (r.Class), then reads
-// the changesets, matches each with r's import rules and groups the matched
-// ones by account and source tag into episodes: a changeset opened less than
-// the rules' group gap after the previous one closed joins its episode.
-// Changesets without stored metadata are matched on what their versions tell
-// (account, counts). When opts names an import, the result is that one episode.
-// Episodes come ordered by First, then ID.
+// Detect finds the import episodes in a history. It counts per changeset
+// the versions that created, modified and deleted objects and their feature
+// classes (r.Class), then reads the changesets, matches each with r's import
+// rules and groups the matched ones by account and source tag into episodes:
+// a changeset opened less than the rules' group gap after the previous one
+// closed joins its episode. Changesets without stored metadata are matched on
+// what their versions tell (account, counts). When opts names an import, the
+// result is that one episode. Episodes come ordered by First, then ID.
 //
-// Memory holds counters per changeset, not versions. Cancelling ctx stops the
-// scans and returns ctx's error.
+// Memory: the version scan counts at most a fixed number of changesets at a
+// time (defaultSpill) and writes their partial counters into the store's
+// derived area (when src is Derived, as *ingest.Store is; otherwise into
+// memory); the counters are then read back in changeset id order beside the
+// changeset records, which ScanChangesets delivers in ascending id order, and
+// only matched changesets are kept. The stored counters are reused by later
+// runs with the same rules while the store's classification summary has the
+// fingerprint of the versions they were counted from, so a second run reads
+// no versions. Cancelling ctx stops the scans and returns ctx's error.
 func Detect(ctx context.Context, src Source, r *rules.RuleSet, opts Options) ([]Episode, error) {
-	stats, err := countVersions(ctx, src, r)
+	spill := opts.spill
+	if spill <= 0 {
+		spill = defaultSpill
+	}
+	stats, err := statsStream(ctx, src, r, spill)
 	if err != nil {
 		return nil, err
 	}
+	next, stop := iter.Pull2(stats)
+	defer stop()
 	ir := r.Imports()
 	var matched []*csMeta
-	seen := make(map[osm.ChangesetID]bool, len(stats))
 	wantIDs := make(map[osm.ChangesetID]bool, len(opts.Changesets))
 	for _, id := range opts.Changesets {
 		wantIDs[osm.ChangesetID(id)] = true
@@ -163,55 +165,63 @@ func Detect(ctx context.Context, src Source, r *rules.RuleSet, opts Options) ([]
 	named := func(id osm.ChangesetID, uid osm.UserID, user string) bool {
 		return wantIDs[id] || opts.Account != "" && (user == opts.Account || uidErr == nil && int64(uid) == wantUID)
 	}
-	err = src.ScanChangesets(ctx, func(c *osm.Changeset) error {
-		seen[c.ID] = true
-		st := stats[c.ID]
-		var m *csMeta
+	// match keeps a changeset, with its counters or none, when it matches.
+	match := func(c *osm.Changeset, st *csStats) {
 		if opts.manual() {
-			if !named(c.ID, c.UserID, c.User) {
-				return nil
+			if named(c.ID, c.UserID, c.User) {
+				m := newMeta(c, st)
+				m.matchers = []string{ManualMatcher}
+				matched = append(matched, m)
 			}
-			m = newMeta(c, st)
-			m.matchers = []string{ManualMatcher}
-		} else {
-			creates, total := 0, 0
-			if st != nil {
-				creates, total = int(st.creates), st.total()
-			} else if !opts.IncludeEmpty {
-				return nil
-			}
-			names := ir.MatchAll(c, creates, total)
-			if names == nil {
-				return nil
-			}
-			m = newMeta(c, st)
-			m.matchers = names
+			return
 		}
-		matched = append(matched, m)
+		creates, total := 0, 0
+		if st != nil {
+			creates, total = int(st.creates), st.total()
+		} else if !opts.IncludeEmpty {
+			return
+		}
+		if names := ir.MatchAll(c, creates, total); names != nil {
+			m := newMeta(c, st)
+			m.matchers = names
+			matched = append(matched, m)
+		}
+	}
+	// onlyVersions matches a changeset known only from its versions.
+	onlyVersions := func(st *csStats) {
+		match(&osm.Changeset{ID: st.id, UserID: st.uid, User: st.user, ChangesCount: st.total()}, st)
+	}
+	pending, perr, more := next()
+	prev := osm.ChangesetID(math.MinInt64)
+	first := true
+	err = src.ScanChangesets(ctx, func(c *osm.Changeset) error {
+		if !first && c.ID <= prev {
+			return fmt.Errorf("%w: changeset %d after %d", errOrder, c.ID, prev)
+		}
+		first, prev = false, c.ID
+		for more && perr == nil && pending.id < c.ID {
+			onlyVersions(pending)
+			pending, perr, more = next()
+		}
+		if perr != nil {
+			return perr
+		}
+		var st *csStats
+		if more && pending.id == c.ID {
+			st = pending
+			pending, perr, more = next()
+		}
+		match(c, st)
 		return nil
 	})
 	if err != nil {
 		return nil, fmt.Errorf("audit: detect imports: scan changesets: %w", err)
 	}
-	// Changesets known only from their versions.
-	for id, st := range stats {
-		if seen[id] {
-			continue
+	for ; more; pending, perr, more = next() {
+		if perr != nil {
+			return nil, perr
 		}
-		c := &osm.Changeset{ID: id, UserID: st.uid, User: st.user, ChangesCount: st.total()}
-		if opts.manual() {
-			if named(id, st.uid, st.user) {
-				m := newMeta(c, st)
-				m.matchers = []string{ManualMatcher}
-				matched = append(matched, m)
-			}
-			continue
-		}
-		if names := ir.MatchAll(c, int(st.creates), st.total()); names != nil {
-			m := newMeta(c, st)
-			m.matchers = names
-			matched = append(matched, m)
-		}
+		onlyVersions(pending)
 	}
 	if opts.manual() {
 		return manualEpisode(matched, opts)
@@ -219,92 +229,19 @@ func Detect(ctx context.Context, src Source, r *rules.RuleSet, opts Options) ([]
 	return groupEpisodes(matched, ir.GroupGap()), nil
 }
 
-// countVersions reads every version once per type and returns the counters
-// per changeset.
-func countVersions(ctx context.Context, src Source, r *rules.RuleSet) (map[osm.ChangesetID]*csStats, error) {
-	stats := make(map[osm.ChangesetID]*csStats)
-	for _, t := range []osm.Type{osm.TypeNode, osm.TypeWay, osm.TypeRelation} {
-		var prevID int64 = -1
-		prevClass := ""
-		err := src.ScanVersions(ctx, t, func(o osm.Object) error {
-			var (
-				id, version int64
-				cs          osm.ChangesetID
-				uid         osm.UserID
-				user        string
-				visible     bool
-				ts          time.Time
-				tags        osm.Tags
-			)
-			var node *osm.Node
-			switch v := o.(type) {
-			case *osm.Node:
-				id, version, cs, uid, user, visible, ts, tags = int64(v.ID), int64(v.Version), v.ChangesetID, v.UserID, v.User, v.Visible, v.Timestamp, v.Tags
-				node = v
-			case *osm.Way:
-				id, version, cs, uid, user, visible, ts, tags = int64(v.ID), int64(v.Version), v.ChangesetID, v.UserID, v.User, v.Visible, v.Timestamp, v.Tags
-			case *osm.Relation:
-				id, version, cs, uid, user, visible, ts, tags = int64(v.ID), int64(v.Version), v.ChangesetID, v.UserID, v.User, v.Visible, v.Timestamp, v.Tags
-			default:
-				return fmt.Errorf("unexpected object %T", o)
-			}
-			class := r.Class(tags)
-			counted := class
-			st := stats[cs]
-			if st == nil {
-				st = &csStats{uid: uid, user: unique.Make(user).Value(), first: ts.Unix(), last: ts.Unix()}
-				stats[cs] = st
-			}
-			switch {
-			case !visible:
-				st.deletes++
-				counted = ""
-				if prevID == id {
-					counted = prevClass
-				}
-			case version == 1:
-				st.creates++
-			default:
-				st.modifies++
-			}
-			if counted != "" {
-				if st.classes == nil {
-					st.classes = make(map[string]int32, 2)
-				}
-				st.classes[unique.Make(counted).Value()]++
-			}
-			if u := ts.Unix(); u < st.first {
-				st.first = u
-			} else if u > st.last {
-				st.last = u
-			}
-			if node != nil && visible {
-				p := orb.Point{node.Lon, node.Lat}
-				if !st.hasNodes {
-					st.nodes, st.hasNodes = p.Bound(), true
-				} else {
-					st.nodes = st.nodes.Extend(p)
-				}
-			}
-			prevID, prevClass = id, class
-			return nil
-		})
-		if err != nil {
-			return nil, fmt.Errorf("audit: detect imports: scan %s versions: %w", t, err)
-		}
-	}
-	return stats, nil
-}
+// errOrder is returned (wrapped) when a Source's changesets do not come in
+// ascending id order.
+var errOrder = errors.New("episode: changesets out of id order")
 
 func newMeta(c *osm.Changeset, st *csStats) *csMeta {
 	m := &csMeta{id: c.ID, uid: c.UserID, user: c.User, source: c.Tags.Find("source"), stats: st,
 		start: c.CreatedAt.UTC(), end: c.ClosedAt.UTC()}
 	if st != nil {
 		if m.start.IsZero() {
-			m.start = time.Unix(st.first, 0).UTC()
+			m.start = unixUTC(st.first)
 		}
 		if m.end.IsZero() {
-			m.end = time.Unix(st.last, 0).UTC()
+			m.end = unixUTC(st.last)
 		}
 	}
 	if m.end.Before(m.start) {
@@ -440,8 +377,8 @@ func buildEpisode(ms []*csMeta, prefix string) Episode {
 			e.Created += int(st.creates)
 			e.Modified += int(st.modifies)
 			e.Deleted += int(st.deletes)
-			for c, n := range st.classes {
-				classes[c] += int(n)
+			for _, c := range st.classes {
+				classes[c.class] += int(c.n)
 			}
 		}
 	}

@@ -65,6 +65,7 @@ the community's import guidelines and local review.`,
 		newReportCommand(g), newDemoCommand(g),
 		newVersionCommand(),
 		newUnitsCommand(g),
+		newExportCommand(g),
 	)
 	return root
 }
