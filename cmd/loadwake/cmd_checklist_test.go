@@ -104,6 +104,17 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 		}
 	})
 
+	t.Run("checklist to stdout", func(t *testing.T) {
+		t.Chdir(t.TempDir())
+		code, out, stderr := execMain(t, nil, "--store", store, "checklist", "--units", districts, "--changesets", csList, "--md", "-")
+		if code != exitOK || !strings.HasPrefix(out, "## Neglected tags") || !strings.Contains(stderr, "caution:") {
+			t.Errorf("--md -: exit %d; want the Markdown on stdout and the text on stderr\nstdout:\n%s\nstderr:\n%s", code, out, stderr)
+		}
+		if _, err := os.Stat("-"); err == nil {
+			t.Error("--md - wrote a file named -")
+		}
+	})
+
 	t.Run("assess", func(t *testing.T) {
 		// Three proposed benches: two at the corner of the invented region's
 		// grid, one far away.

@@ -1,6 +1,8 @@
 package main
 
 import (
+	"context"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -99,6 +101,8 @@ func printIngestReport(out, errw io.Writer, rep ingest.Report) {
 		switch {
 		case f.Skipped:
 			fmt.Fprintf(out, "%s: already ingested (sha256 %.12s), skipped\n", name, f.SHA256)
+		case errors.Is(f.Err, context.Canceled):
+			fmt.Fprintf(out, "%s: stopped by the interruption after %s new versions (kept)\n", name, humanize.Comma(f.Versions))
 		case f.Err != nil:
 			fmt.Fprintf(out, "%s: abandoned after %s new versions: %v\n", name, humanize.Comma(f.Versions), f.Err)
 		default:

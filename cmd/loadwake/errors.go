@@ -71,41 +71,45 @@ func errorMessage(cmd *cobra.Command, code int, err error) string {
 	return fmt.Sprintf("%s: %s\n  %s\n", name, msg, todo)
 }
 
-// hint says what to do about a data or run error, from the sentinel it wraps.
+// errorHint pairs sentinel errors with what to do about them, first match wins.
+type errorHint struct {
+	causes []error
+	todo   string
+}
+
+// errorHints returns the hints in the order they are tried: the file system
+// first (a missing file is the cause whatever package met it), then each
+// package's sentinels.
+func errorHints() []errorHint {
+	return []errorHint{
+		{[]error{errNoStore}, "run \"loadwake ingest FILE...\" to make one, or name it with --store DIR (or LOADWAKE_STORE)"},
+		{[]error{errIsDir, syscall.EISDIR}, "name the files inside the folder, not the folder (a shell pattern such as DIR/*.osc.gz works)"},
+		{[]error{fs.ErrNotExist}, "check the path: no such file or folder"},
+		{[]error{fs.ErrPermission}, "check the file's permissions"},
+		{[]error{ingest.ErrLocked}, "another loadwake process uses this store: wait until it ends, or pass another --store"},
+		{[]error{ingest.ErrSchemaNewer}, "use the loadwake version that wrote the store (loadwake version), or ingest into a new --store"},
+		{[]error{ingest.ErrFormat, ingest.ErrOrder}, "fix or replace the file at the position named above; what was stored before it is kept, and a rerun adds no duplicates"},
+		{[]error{ingest.ErrUnknown}, "give an OSM PBF, OSM XML, OsmChange or changeset file (plain, gzip or bzip2)"},
+		{[]error{rules.ErrInvalid}, "fix the rule file; \"loadwake rules check FILE\" lists every problem as file:line:column"},
+		{[]error{match.ErrMatch, match.ErrModel}, "too few untouched units to match: lower --k, drop --caliper, or choose smaller units (a higher tiles:Z or finer polygons)"},
+		{[]error{spatial.ErrUnits}, "check --units: tiles:Z (a lower Z gives fewer, larger tiles), or a GeoJSON file of polygons in longitude/latitude with an id property (--unit-id)"},
+		{[]error{panel.ErrInvalid}, "fix the panel file at the row named above, or name its columns with --unit, --time, --first-treated and --outcome"},
+		{[]error{proposal.ErrInvalid}, "fix the proposal file at the position named above (OSM XML, OsmChange or GeoJSON with tags as properties)"},
+		{[]error{study.ErrStudy}, "the study cannot be built as asked: widen --before/--after, lower --min-intensity, or choose other units"},
+		{[]error{episode.ErrNoImport}, "list the store's imports with \"loadwake imports\", then pass --import ID, --account NAME or --changesets FILE"},
+		{[]error{sim.ErrOutputExists}, "pass --force to replace the files, or choose another --out"},
+	}
+}
+
+// hint says what to do about a data or run error, from the sentinel it
+// wraps; "" when none is known.
 func hint(err error) string {
-	switch {
-	case errors.Is(err, errNoStore):
-		return "run \"loadwake ingest FILE...\" to make one, or name it with --store DIR (or LOADWAKE_STORE)"
-	case errors.Is(err, errIsDir), errors.Is(err, syscall.EISDIR):
-		return "name the files inside the folder, not the folder (a shell pattern such as DIR/*.osc.gz works)"
-	case errors.Is(err, fs.ErrNotExist):
-		return "check the path: no such file or folder"
-	case errors.Is(err, fs.ErrPermission):
-		return "check the file's permissions"
-	case errors.Is(err, ingest.ErrLocked):
-		return "another loadwake process uses this store: wait until it ends, or pass another --store"
-	case errors.Is(err, ingest.ErrSchemaNewer):
-		return "use the loadwake version that wrote the store (loadwake version), or ingest into a new --store"
-	case errors.Is(err, ingest.ErrFormat), errors.Is(err, ingest.ErrOrder):
-		return "fix or replace the file at the position named above; what was stored before it is kept, and a rerun adds no duplicates"
-	case errors.Is(err, ingest.ErrUnknown):
-		return "give an OSM PBF, OSM XML, OsmChange or changeset file (plain, gzip or bzip2)"
-	case errors.Is(err, rules.ErrInvalid):
-		return "fix the rule file; \"loadwake rules check FILE\" lists every problem as file:line:column"
-	case errors.Is(err, match.ErrMatch), errors.Is(err, match.ErrModel):
-		return "too few untouched units to match: lower --k, drop --caliper, or choose smaller units (a higher tiles:Z or finer polygons)"
-	case errors.Is(err, spatial.ErrUnits):
-		return "check --units: tiles:Z (a lower Z gives fewer, larger tiles), or a GeoJSON file of polygons in longitude/latitude with an id property (--unit-id)"
-	case errors.Is(err, panel.ErrInvalid):
-		return "fix the panel file at the row named above, or name its columns with --unit, --time, --first-treated and --outcome"
-	case errors.Is(err, proposal.ErrInvalid):
-		return "fix the proposal file at the position named above (OSM XML, OsmChange or GeoJSON with tags as properties)"
-	case errors.Is(err, study.ErrStudy):
-		return "the study cannot be built as asked: widen --before/--after, lower --min-intensity, or choose other units"
-	case errors.Is(err, episode.ErrNoImport):
-		return "list the store's imports with \"loadwake imports\", then pass --import ID, --account NAME or --changesets FILE"
-	case errors.Is(err, sim.ErrOutputExists):
-		return "pass --force to replace the files, or choose another --out"
+	for _, h := range errorHints() {
+		for _, c := range h.causes {
+			if errors.Is(err, c) {
+				return h.todo
+			}
+		}
 	}
 	return ""
 }

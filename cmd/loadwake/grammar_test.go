@@ -75,21 +75,36 @@ func TestExitCodes(t *testing.T) {
 	}
 }
 
-// TestInterrupted checks the exit code and message after Ctrl-C: what the
-// interruption left behind, not advice about a broken file.
+// TestInterrupted checks the exit code and message after Ctrl-C (a context
+// cancelled before the command starts): what the interruption left behind,
+// not advice about a broken file.
 func TestInterrupted(t *testing.T) {
+	store := ingestFixture(t, "way_6394949.osm")
+	file := filepath.Join("..", "..", "ingest", "testdata", "way_6394949.osm")
+	cases := []struct {
+		name string
+		args []string
+		want string
+	}{
+		{"ingest", []string{"--store", filepath.Join(t.TempDir(), "db"), "ingest", file}, "rerun the same command to continue"},
+		{"classify", []string{"--store", store, "classify", "--force"}, "rerun classify"},
+		{"audit", []string{"--store", store, "audit", "--units", "tiles:16", "--account", "7168"}, "the store was only read and is unchanged"},
+		{"stats", []string{"--store", store, "stats"}, "nothing was changed"},
+	}
 	ctx, cancel := context.WithCancel(context.Background())
 	cancel()
-	store := filepath.Join(t.TempDir(), "db")
-	file := filepath.Join("..", "..", "ingest", "testdata", "way_6394949.osm")
-	var out, errb bytes.Buffer
-	code := run(ctx, []string{"--store", store, "ingest", file}, noEnv, &out, &errb)
-	if code != exitInterrupted {
-		t.Fatalf("exit %d, want %d; stderr %s", code, exitInterrupted, errb.String())
-	}
-	msg := errb.String()
-	if !strings.HasPrefix(msg, "loadwake ingest: interrupted\n") || !strings.Contains(msg, "rerun the same command to continue") || strings.Contains(msg, "fix the file") {
-		t.Errorf("stderr after an interruption:\n%s", msg)
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			var out, errb bytes.Buffer
+			code := run(ctx, c.args, noEnv, &out, &errb)
+			if code != exitInterrupted {
+				t.Fatalf("exit %d, want %d; stderr %s", code, exitInterrupted, errb.String())
+			}
+			msg := errb.String()
+			if !strings.HasPrefix(msg, "loadwake "+c.name+": interrupted\n") || !strings.Contains(msg, c.want) || strings.Contains(out.String()+msg, "fix the file") {
+				t.Errorf("after an interruption, stdout:\n%s\nstderr:\n%s", out.String(), msg)
+			}
+		})
 	}
 }
 

@@ -47,7 +47,7 @@ the community's import guidelines and local review.`,
 		SilenceErrors: true,
 	}
 	root.SetVersionTemplate("loadwake {{.Version}}\n")
-	root.PersistentFlags().StringVar(&g.store, "store", g.store, "directory of the history store (default from $"+envStore+")")
+	root.PersistentFlags().StringVar(&g.store, "store", g.store, "`DIR` of the history store ($"+envStore+" when set)")
 	root.PersistentFlags().BoolVarP(&g.quiet, "quiet", "q", false, "no progress output on stderr")
 	root.SetFlagErrorFunc(func(_ *cobra.Command, err error) error { return usageError{msg: err.Error()} })
 

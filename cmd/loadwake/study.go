@@ -58,8 +58,8 @@ type studyFlags struct {
 func (s *studyFlags) addFlags(cmd *cobra.Command, g *globalOptions) {
 	f := cmd.Flags()
 	addImportFlags(cmd, g, &s.importID, &s.changesets, &s.account, &s.rules)
-	f.StringVar(&s.units, "units", "", `spatial units: "tiles:Z" (slippy-map tiles of zoom Z) or a GeoJSON file of polygons (required)`)
-	f.StringVar(&s.unitID, "unit-id", "id", "GeoJSON property holding each unit's id")
+	f.StringVar(&s.units, "units", "", "spatial units `SPEC`: tiles:Z (slippy-map tiles of zoom Z) or a GeoJSON file of polygons (required)")
+	f.StringVar(&s.unitID, "unit-id", "id", "GeoJSON property `PROP` holding each unit's id")
 	f.IntVar(&s.before, "before", 24, "months of the panel before the import's first month")
 	f.IntVar(&s.after, "after", 24, "months of the panel after its last month")
 	f.Float64Var(&s.minIntensity, "min-intensity", 0.05, "smallest share of imported features among a unit's features that makes it treated")
@@ -74,7 +74,7 @@ func (s *studyFlags) addFlags(cmd *cobra.Command, g *globalOptions) {
 func addImportFlags(cmd *cobra.Command, g *globalOptions, importID, changesets, account, rulesFile *string) {
 	f := cmd.Flags()
 	if importID != nil {
-		f.StringVar(importID, "import", "", "episode id from loadwake imports (may be left out when the store holds one)")
+		f.StringVar(importID, "import", "", "episode `ID` from loadwake imports (may be left out when the store holds one; the shell completes it)")
 		cmd.RegisterFlagCompletionFunc("import", func(cmd *cobra.Command, _ []string, _ string) ([]string, cobra.ShellCompDirective) {
 			return completeImports(cmd, g, *rulesFile)
 		})
