@@ -137,7 +137,8 @@ func (r Report) Sum() FileRecord {
 // cancelled ctx stops between batches (on the bulk path, before anything is
 // written, or leaving an interrupted store that the next Ingest starts over)
 // and returns ctx's error. In every case the store stays consistent, and a
-// rerun after a fix completes without duplicates.
+// rerun after a fix completes without duplicates. Other goroutines must not
+// read the store during a bulk ingest, which empties it before it writes.
 func Ingest(ctx context.Context, s *Store, paths []string, opts IngestOptions) (Report, error) {
 	opts = opts.withDefaults()
 	s.writeMu.Lock()
