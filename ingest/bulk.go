@@ -579,14 +579,13 @@ func (b *bulkIngest) trimConflicts() {
 // store writes the record chosen for a key and counts it.
 func (b *bulkIngest) store(r *record, firstSeq uint64, firstFile int, lastObj *[objectPrefixLen]byte, out *streamOut) error {
 	fr := &b.files[firstFile].FileRecord
-	t := &b.totals
 	if r.key[0] == prefixChangeset {
 		uid, user, err := summarizeChangeset(r.val)
 		if err != nil {
 			return fmt.Errorf("%s: changeset/%d: %w", b.s.name(), getID(r.key[1:]), err)
 		}
 		fr.Changesets++
-		t.Changesets++
+		b.totals.Changesets++
 		b.user(uid, user, firstSeq)
 		return out.put(streamChangesets, r.key, r.val)
 	}
@@ -599,43 +598,11 @@ func (b *bulkIngest) store(r *record, firstSeq uint64, firstFile int, lastObj *[
 	newObject := !bytes.Equal(lastObj[:], r.key[:objectPrefixLen])
 	copy(lastObj[:], r.key)
 	fr.Versions++
-	switch tb {
-	case typeNode:
-		t.NodeVersions++
-		if newObject {
-			t.Nodes++
-		}
-		if sum.visible {
-			p := orb.Point{sum.lon, sum.lat}
-			if t.HasBBox {
-				t.BBox = t.BBox.Extend(p)
-			} else {
-				t.BBox, t.HasBBox = orb.Bound{Min: p, Max: p}, true
-			}
-		}
-	case typeWay:
-		t.WayVersions++
-		if newObject {
-			t.Ways++
-		}
-	default:
-		t.RelationVersions++
-		if newObject {
-			t.Relations++
-		}
-	}
-	if !sum.visible {
-		t.DeletedVersions++
-	}
+	var ts time.Time
 	if sum.ts != 0 {
-		ts := time.Unix(sum.ts, 0).UTC()
-		if t.FirstEdit.IsZero() || ts.Before(t.FirstEdit) {
-			t.FirstEdit = ts
-		}
-		if ts.After(t.LastEdit) {
-			t.LastEdit = ts
-		}
+		ts = time.Unix(sum.ts, 0)
 	}
+	b.totals.addVersion(tb, newObject, sum.visible, orb.Point{sum.lon, sum.lat}, ts)
 	b.user(sum.uid, sum.user, firstSeq)
 	return out.put(streamVersions, r.key, r.val)
 }

@@ -145,10 +145,25 @@ func TestBulkMatchesTransactional(t *testing.T) {
 			if entries, _ := filepath.Glob(filepath.Join(dir, runDirPrefix+"*")); len(entries) != 0 {
 				t.Errorf("temporary runs left behind: %v", entries)
 			}
-			// a rerun adds nothing
-			again := ingestInto(t, dir, paths, IngestOptions{})
-			if again.Bulk || again.Sum().Versions != 0 || again.Sum().Changesets != 0 {
-				t.Errorf("rerun: bulk %v, %+v", again.Bulk, again.Sum())
+			if tc.sortBuffer != 0 {
+				return
+			}
+			// a rerun (of files whose records the store has, under other names) adds nothing
+			var copies []string
+			for _, p := range paths {
+				c := filepath.Join(t.TempDir(), filepath.Base(p))
+				data := readFile(t, p)
+				if !strings.HasSuffix(p, ".pbf") {
+					data = append(data, '\n') // another SHA-256, so the file is read again
+				}
+				if err := os.WriteFile(c, data, 0o644); err != nil {
+					t.Fatal(err)
+				}
+				copies = append(copies, c)
+			}
+			again := ingestInto(t, dir, copies, IngestOptions{})
+			if sum := again.Sum(); again.Bulk || sum.Versions != 0 || sum.Changesets != 0 || sum.Conflicts != txRep.Sum().Conflicts {
+				t.Errorf("rerun: bulk %v, %+v", again.Bulk, sum)
 			}
 		})
 	}

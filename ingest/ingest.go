@@ -137,7 +137,8 @@ func (r Report) Sum() FileRecord {
 // cancelled ctx stops between batches (on the bulk path, before anything is
 // written, or leaving an interrupted store that the next Ingest starts over)
 // and returns ctx's error. In every case the store stays consistent, and a
-// rerun after a fix completes without duplicates.
+// rerun after a fix completes without duplicates. Other goroutines must not
+// read the store during a bulk ingest, which empties it before it writes.
 func Ingest(ctx context.Context, s *Store, paths []string, opts IngestOptions) (Report, error) {
 	opts = opts.withDefaults()
 	s.writeMu.Lock()
@@ -557,7 +558,17 @@ func (w *writer) version(it Item, fr *FileRecord) error {
 		w.pendObj[[objectPrefixLen]byte(key)] = struct{}{}
 	}
 	fr.Versions++
-	t := &w.totals
+	var p orb.Point
+	if n, ok := it.Object.(*osm.Node); ok {
+		p = orb.Point{n.Lon, n.Lat}
+	}
+	w.totals.addVersion(tb, newObject, visible, p, ts)
+	return w.user(uid, user)
+}
+
+// addVersion counts one newly stored version of type tb in the totals: p is
+// a node's position (used when visible), ts its time (zero for none).
+func (t *Stats) addVersion(tb byte, newObject, visible bool, p orb.Point, ts time.Time) {
 	switch tb {
 	case typeNode:
 		t.NodeVersions++
@@ -565,8 +576,6 @@ func (w *writer) version(it Item, fr *FileRecord) error {
 			t.Nodes++
 		}
 		if visible {
-			n := it.Object.(*osm.Node)
-			p := orb.Point{n.Lon, n.Lat}
 			if t.HasBBox {
 				t.BBox = t.BBox.Extend(p)
 			} else {
@@ -596,7 +605,6 @@ func (w *writer) version(it Item, fr *FileRecord) error {
 			t.LastEdit = ts
 		}
 	}
-	return w.user(uid, user)
 }
 
 // user records a uid the first time it is seen.

@@ -387,14 +387,38 @@ func TestNodeAt(t *testing.T) {
 	}
 }
 
-func TestIngestParseErrorAbortsFile(t *testing.T) {
-	ctx := context.Background()
-	ff := newFakeFiles(t)
-	items := history()
-	broken := ff.add(t, "broken.osh", "broken", items[:5]...)
+// brokenFiles serves a file whose reader fails after the first five items of
+// history() at line 41, column 7, and another good file of one node.
+func brokenFiles(tb testing.TB) (ff *fakeFiles, items []ingest.Item, broken, other string) {
+	tb.Helper()
+	ff = newFakeFiles(tb)
+	items = history()
+	broken = ff.add(tb, "broken.osh", "broken", items[:5]...)
 	ff.fail[broken] = &ingest.ParseError{File: broken, Pos: ingest.Position{Line: 41, Column: 7, Element: 6},
 		Err: fmt.Errorf("%w: bad lat", ingest.ErrFormat)}
-	other := ff.add(t, "other.osc", "other", node(50, 1, 0, 1, 1))
+	other = ff.add(tb, "other.osc", "other", node(50, 1, 0, 1, 1))
+	return ff, items, broken, other
+}
+
+// checkRecorded fails unless exactly the given files are recorded as completely ingested, in that order.
+func checkRecorded(tb testing.TB, s *ingest.Store, paths ...string) {
+	tb.Helper()
+	m, err := s.Meta(context.Background())
+	if err != nil {
+		tb.Fatal(err)
+	}
+	var got []string
+	for _, f := range m.Files {
+		got = append(got, f.Path)
+	}
+	if fmt.Sprint(got) != fmt.Sprint(paths) {
+		tb.Errorf("files recorded %v, want only the completed %v", got, paths)
+	}
+}
+
+func TestIngestParseErrorAbortsFile(t *testing.T) {
+	ctx := context.Background()
+	ff, items, broken, other := brokenFiles(t)
 	s := openMem(t)
 	rep, err := ingest.Ingest(ctx, s, []string{broken, other}, ff.options())
 	var pe *ingest.ParseError
@@ -412,13 +436,7 @@ func TestIngestParseErrorAbortsFile(t *testing.T) {
 	if st := checkTotals(t, s); committed == 0 || committed >= 5 || st.NodeVersions != committed+1 {
 		t.Errorf("broken file: %d versions committed, store has %d node versions", committed, st.NodeVersions)
 	}
-	m, err := s.Meta(ctx)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if len(m.Files) != 1 || m.Files[0].Path != other {
-		t.Errorf("only the completed file may be recorded: %+v", m.Files)
-	}
+	checkRecorded(t, s, other)
 
 	fixed := ff.add(t, "fixed.osh", "fixed", items...)
 	rep, err = ingest.Ingest(ctx, s, []string{fixed}, ff.options())
@@ -741,12 +759,7 @@ func contents(tb testing.TB, s *ingest.Store) string {
 // the rerun of the fixed file (now on the transactional path) completes it.
 func TestBulkParseErrorKeepsItemsRead(t *testing.T) {
 	ctx := context.Background()
-	ff := newFakeFiles(t)
-	items := history()
-	broken := ff.add(t, "broken.osh", "broken", items[:5]...)
-	ff.fail[broken] = &ingest.ParseError{File: broken, Pos: ingest.Position{Line: 41, Column: 7, Element: 6},
-		Err: fmt.Errorf("%w: bad lat", ingest.ErrFormat)}
-	other := ff.add(t, "other.osc", "other", node(50, 1, 0, 1, 1))
+	ff, items, broken, other := brokenFiles(t)
 	s := openMem(t)
 	opts := ff.options()
 	opts.Path = ingest.WriteBulk
@@ -758,13 +771,7 @@ func TestBulkParseErrorKeepsItemsRead(t *testing.T) {
 	if !rep.Bulk || rep.Files[0].Err == nil || rep.Files[0].Versions != 5 || rep.Files[1].Err != nil || rep.Files[1].Versions != 1 {
 		t.Errorf("reports: %+v", rep.Files)
 	}
-	m, err := s.Meta(ctx)
-	if err != nil {
-		t.Fatal(err)
-	}
-	if len(m.Files) != 1 || m.Files[0].Path != other {
-		t.Errorf("only the completed file may be recorded: %+v", m.Files)
-	}
+	checkRecorded(t, s, other)
 	fixed := ff.add(t, "fixed.osh", "fixed", items...)
 	opts.Path = ingest.WriteAuto
 	rep, err = ingest.Ingest(ctx, s, []string{fixed}, opts)

@@ -57,9 +57,9 @@ func TestIngestKilled(t *testing.T) {
 	if os.Getenv(killChildDir) != "" {
 		t.Skip("in the child")
 	}
-	kills := 4
+	kills := 3
 	if testing.Short() {
-		kills = 2
+		kills = 1
 	}
 	for i, path := range []string{"bulk", "transactional"} {
 		t.Run(path, func(t *testing.T) {
