@@ -258,12 +258,9 @@ func ReadCSV(r io.Reader, name string, cols Columns) (*Panel, error) {
 		return nil, fail(0, "", "no data rows")
 	}
 	months := maxM - minM + 1
-	p := &Panel{Start: time.Date(minM/12, time.Month(minM%12+1), 1, 0, 0, 0, 0, time.UTC), Months: months,
-		Outcomes: slices.Clone(cols.Outcomes), Y: make([][]float64, len(cols.Outcomes))}
-	for o := range p.Y {
-		p.Y[o] = make([]float64, len(order)*months)
-	}
-	for u, id := range order {
+	// Completeness first, so that a few rows far apart in time cannot make
+	// the grid below allocate units × months cells for nothing.
+	for _, id := range order {
 		ui := units[id]
 		if len(ui.vals) != months {
 			for m := minM; m <= maxM; m++ {
@@ -273,6 +270,14 @@ func ReadCSV(r io.Reader, name string, cols Columns) (*Panel, error) {
 				}
 			}
 		}
+	}
+	p := &Panel{Start: time.Date(minM/12, time.Month(minM%12+1), 1, 0, 0, 0, 0, time.UTC), Months: months,
+		Outcomes: slices.Clone(cols.Outcomes), Y: make([][]float64, len(cols.Outcomes))}
+	for o := range p.Y {
+		p.Y[o] = make([]float64, len(order)*months)
+	}
+	for u, id := range order {
+		ui := units[id]
 		ft := -1
 		if ui.ftMonth >= 0 {
 			ft = ui.ftMonth - minM

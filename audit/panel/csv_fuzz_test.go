@@ -3,6 +3,8 @@ package panel_test
 import (
 	"bytes"
 	"errors"
+	"fmt"
+	"runtime"
 	"strings"
 	"testing"
 
@@ -80,4 +82,25 @@ func FuzzReadCSV(f *testing.F) {
 			}
 		}
 	})
+}
+
+// TestReadCSVSparseMonthsFailFast: two rows per unit 9,998 years apart
+// are refused as incomplete before a units × months grid is allocated
+// (400 units × 119,977 months would be 384 MB of float64s).
+func TestReadCSVSparseMonthsFailFast(t *testing.T) {
+	var b strings.Builder
+	b.WriteString("unit,month,first_treated,weight,cluster,geometry\n")
+	for u := range 400 {
+		fmt.Fprintf(&b, "u%d,0001-01,,1,u%d,1\nu%d,9999-12,,1,u%d,1\n", u, u, u, u)
+	}
+	var before, after runtime.MemStats
+	runtime.ReadMemStats(&before)
+	_, err := panel.ReadCSV(strings.NewReader(b.String()), "fuzz.csv", fuzzColumns())
+	runtime.ReadMemStats(&after)
+	if err == nil || !strings.Contains(err.Error(), "has no row for month 0001-02") {
+		t.Fatalf("got %v", err)
+	}
+	if after.TotalAlloc-before.TotalAlloc > 200<<20 {
+		t.Errorf("allocated %d MB for a %d-byte file", (after.TotalAlloc-before.TotalAlloc)>>20, b.Len())
+	}
 }

@@ -256,45 +256,11 @@ func visible(o osm.Object) bool {
 // assemble builds relation r's polygons from its member ways and their
 // nodes as of at. reason is non-empty when it cannot.
 func assemble(ctx context.Context, st VersionReader, r *osm.Relation, at time.Time) (orb.MultiPolygon, string, []string, error) {
-	var warns []string
-	doc := &osm.OSM{}
-	var missingWays, missingNodes []string
-	seenNode := map[osm.NodeID]bool{}
-	for _, m := range r.Members {
-		if m.Type != osm.TypeWay || (m.Role != "outer" && m.Role != "inner") {
-			continue
-		}
-		vs, err := st.ObjectVersions(ctx, osm.TypeWay, m.Ref)
-		if err != nil {
-			return nil, "", nil, fmt.Errorf("admin units: relation %d: read way %d: %w", r.ID, m.Ref, err)
-		}
-		o, early := versionAt(vs, at)
-		if o == nil || !visible(o) {
-			missingWays = append(missingWays, strconv.FormatInt(m.Ref, 10))
-			continue
-		}
-		if early {
-			warns = append(warns, fmt.Sprintf("relation %d: way %d has no version as of %s; its earliest is used", r.ID, m.Ref, at.Format(time.DateOnly)))
-		}
-		w := o.(*osm.Way)
-		doc.Ways = append(doc.Ways, w)
-		for _, wn := range w.Nodes {
-			if seenNode[wn.ID] {
-				continue
-			}
-			seenNode[wn.ID] = true
-			nvs, err := st.ObjectVersions(ctx, osm.TypeNode, int64(wn.ID))
-			if err != nil {
-				return nil, "", nil, fmt.Errorf("admin units: relation %d: read node %d: %w", r.ID, wn.ID, err)
-			}
-			no, _ := versionAt(nvs, at)
-			if no == nil || !visible(no) {
-				missingNodes = append(missingNodes, strconv.FormatInt(int64(wn.ID), 10))
-				continue
-			}
-			doc.Nodes = append(doc.Nodes, no.(*osm.Node))
-		}
+	m, err := readMembers(ctx, st, r, at)
+	if err != nil {
+		return nil, "", nil, err
 	}
+	doc, missingWays, missingNodes, warns := m.doc, m.missingWays, m.missingNodes, m.warns
 	switch {
 	case len(missingWays) > 0:
 		return nil, fmt.Sprintf("member way(s) %s missing from the store or deleted at that time", short(missingWays)), warns, nil
@@ -332,6 +298,56 @@ func assemble(ctx context.Context, st VersionReader, r *osm.Relation, at time.Ti
 		return nil, err.Error(), warns, nil
 	}
 	return mp, "", warns, nil
+}
+
+// members holds the member ways of a relation and their nodes as of a
+// time, and what the store lacks.
+type members struct {
+	doc                       *osm.OSM
+	missingWays, missingNodes []string
+	warns                     []string
+}
+
+// readMembers reads the outer and inner member ways of r and their nodes,
+// each in its version as of at.
+func readMembers(ctx context.Context, st VersionReader, r *osm.Relation, at time.Time) (members, error) {
+	m := members{doc: &osm.OSM{}}
+	seenNode := map[osm.NodeID]bool{}
+	for _, mb := range r.Members {
+		if mb.Type != osm.TypeWay || (mb.Role != "outer" && mb.Role != "inner") {
+			continue
+		}
+		vs, err := st.ObjectVersions(ctx, osm.TypeWay, mb.Ref)
+		if err != nil {
+			return m, fmt.Errorf("admin units: relation %d: read way %d: %w", r.ID, mb.Ref, err)
+		}
+		o, early := versionAt(vs, at)
+		if o == nil || !visible(o) {
+			m.missingWays = append(m.missingWays, strconv.FormatInt(mb.Ref, 10))
+			continue
+		}
+		if early {
+			m.warns = append(m.warns, fmt.Sprintf("relation %d: way %d has no version as of %s; its earliest is used", r.ID, mb.Ref, at.Format(time.DateOnly)))
+		}
+		w := o.(*osm.Way)
+		m.doc.Ways = append(m.doc.Ways, w)
+		for _, wn := range w.Nodes {
+			if seenNode[wn.ID] {
+				continue
+			}
+			seenNode[wn.ID] = true
+			nvs, err := st.ObjectVersions(ctx, osm.TypeNode, int64(wn.ID))
+			if err != nil {
+				return m, fmt.Errorf("admin units: relation %d: read node %d: %w", r.ID, wn.ID, err)
+			}
+			if no, _ := versionAt(nvs, at); no != nil && visible(no) {
+				m.doc.Nodes = append(m.doc.Nodes, no.(*osm.Node))
+			} else {
+				m.missingNodes = append(m.missingNodes, strconv.FormatInt(int64(wn.ID), 10))
+			}
+		}
+	}
+	return m, nil
 }
 
 // openEnds names the way ends that meet no other member way end, the usual

@@ -292,3 +292,23 @@ func TestParseAdminSpec(t *testing.T) {
 		t.Fatalf("admin:8 without a store: %v", err)
 	}
 }
+
+// BenchmarkAdminUnits assembles the eight towns of the Delaware fixture
+// (real data, testdata/README.md) from a slice-backed store.
+func BenchmarkAdminUnits(b *testing.B) {
+	st := delawareStore(b)
+	ctx := context.Background()
+	positions := 0
+	b.ReportAllocs()
+	for b.Loop() {
+		u, err := AdminUnits(ctx, st, AdminSpec{Level: "8"}, time.Time{})
+		if err != nil {
+			b.Fatal(err)
+		}
+		positions = 0
+		for i := range u.Len() {
+			positions += shapeOf(u.Geometry(i).(orb.MultiPolygon)).positions
+		}
+	}
+	b.ReportMetric(float64(positions)*float64(b.N)/b.Elapsed().Seconds(), "positions/s")
+}
