@@ -7,6 +7,8 @@ import (
 	"syscall"
 	"testing"
 	"time"
+
+	"github.com/loadwake/loadwake/ingest/osmfile"
 )
 
 // cpuTime returns the user plus system CPU time of the process so far (all
@@ -24,7 +26,7 @@ func cpuTime(tb testing.TB) time.Duration {
 // decodeAll reads every item of the file at path and returns how many.
 func decodeAll(tb testing.TB, path string) int64 {
 	tb.Helper()
-	r, err := OpenFile(context.Background(), path, ReadOptions{})
+	r, err := osmfile.OpenFile(context.Background(), path, osmfile.ReadOptions{})
 	if err != nil {
 		tb.Fatal(err)
 	}

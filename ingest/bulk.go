@@ -15,6 +15,7 @@ import (
 	"github.com/dgraph-io/badger/v4"
 	"github.com/dgraph-io/badger/v4/pb"
 	"github.com/dgraph-io/ristretto/v2/z"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
 )
@@ -176,7 +177,7 @@ func (b *bulkIngest) readAll(ctx context.Context, paths []string) error {
 			continue
 		}
 		fr.Err = err
-		if errors.As(err, new(*ParseError)) {
+		if errors.As(err, new(*osmfile.ParseError)) {
 			fileErrs = append(fileErrs, err)
 			continue
 		}

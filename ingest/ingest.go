@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/dgraph-io/badger/v4"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
 )
@@ -27,10 +28,10 @@ const (
 
 // IngestOptions tune Ingest. The zero value is ready to use.
 type IngestOptions struct {
-	// Open returns a Reader for one path; nil means OpenFile with ReadOptions.
-	Open func(ctx context.Context, path string) (Reader, error)
-	// ReadOptions are passed to OpenFile when Open is nil.
-	ReadOptions ReadOptions
+	// Open returns an osmfile.Reader for one path; nil means osmfile.OpenFile with osmfile.ReadOptions.
+	Open func(ctx context.Context, path string) (osmfile.Reader, error)
+	// osmfile.ReadOptions are passed to osmfile.OpenFile when Open is nil.
+	ReadOptions osmfile.ReadOptions
 	// BatchEntries and BatchBytes bound one write transaction (and with it the
 	// memory an ingest holds): a batch is committed when either is reached.
 	BatchEntries int
@@ -55,7 +56,7 @@ type IngestOptions struct {
 func (o IngestOptions) withDefaults() IngestOptions {
 	if o.Open == nil {
 		ro := o.ReadOptions
-		o.Open = func(ctx context.Context, path string) (Reader, error) { return OpenFile(ctx, path, ro) }
+		o.Open = func(ctx context.Context, path string) (osmfile.Reader, error) { return osmfile.OpenFile(ctx, path, ro) }
 	}
 	if o.BatchEntries <= 0 {
 		o.BatchEntries = DefaultBatchEntries
@@ -79,7 +80,7 @@ func (o IngestOptions) withDefaults() IngestOptions {
 // different content. The stored one is kept.
 type Conflict struct {
 	File   string
-	Pos    Position
+	Pos    osmfile.Position
 	Object string // "way/42 v3" or "changeset/17"
 }
 
@@ -132,7 +133,7 @@ func (r Report) Sum() FileRecord {
 // chooses). Otherwise writes go out in batches; each batch commits atomically
 // with the store's totals, and a file's record is written only with its last
 // batch. A file the reader cannot parse is abandoned at the error (its
-// FileReport.Err, a *ParseError naming file and position) and the other files
+// FileReport.Err, a *osmfile.ParseError naming file and position) and the other files
 // are still read; the returned error joins those of all abandoned files. A
 // cancelled ctx stops between batches (on the bulk path, before anything is
 // written, or leaving an interrupted store that the next Ingest starts over)
@@ -166,7 +167,7 @@ func Ingest(ctx context.Context, s *Store, paths []string, opts IngestOptions) (
 		fr, err := w.file(ctx, path)
 		rep.Files = append(rep.Files, fr)
 		if err != nil {
-			var pe *ParseError
+			var pe *osmfile.ParseError
 			if errors.As(err, &pe) {
 				fileErrs = append(fileErrs, err)
 				continue
@@ -445,7 +446,7 @@ func (w *writer) file(ctx context.Context, path string) (FileReport, error) {
 		if lerr := w.load(); lerr != nil {
 			return fr, lerr
 		}
-		if !errors.As(err, new(*ParseError)) && !errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
+		if !errors.As(err, new(*osmfile.ParseError)) && !errors.Is(err, context.Canceled) && !errors.Is(err, context.DeadlineExceeded) {
 			err = fmt.Errorf("ingest %s: %w", path, err)
 		}
 		fr.Err = err
@@ -463,7 +464,7 @@ func (w *writer) file(ctx context.Context, path string) (FileReport, error) {
 }
 
 // read stores the items of r, committing full batches.
-func (w *writer) read(ctx context.Context, r Reader, fr *FileRecord) error {
+func (w *writer) read(ctx context.Context, r osmfile.Reader, fr *FileRecord) error {
 	for r.Scan() {
 		it := r.Item()
 		fr.Items++
@@ -492,7 +493,7 @@ func (w *writer) read(ctx context.Context, r Reader, fr *FileRecord) error {
 }
 
 // version stores one object version.
-func (w *writer) version(it Item, fr *FileRecord) error {
+func (w *writer) version(it osmfile.Item, fr *FileRecord) error {
 	var (
 		tb      byte
 		id      int64
@@ -635,7 +636,7 @@ func (w *writer) user(uid osm.UserID, name string) error {
 // changeset stores one changeset record. A stored open record is replaced
 // by a closed one (a later dump completes it); other differences are
 // conflicts.
-func (w *writer) changeset(it Item, fr *FileRecord) error {
+func (w *writer) changeset(it osmfile.Item, fr *FileRecord) error {
 	c := it.Changeset
 	key := changesetKey(int64(c.ID))
 	val := appendChangesetValue(nil, c)
@@ -669,7 +670,7 @@ func (w *writer) changeset(it Item, fr *FileRecord) error {
 	return w.user(c.UserID, c.User)
 }
 
-func (w *writer) conflict(fr *FileRecord, pos Position, object string) {
+func (w *writer) conflict(fr *FileRecord, pos osmfile.Position, object string) {
 	fr.Conflicts++
 	if len(w.conflicts) < w.opts.MaxConflictExamples {
 		w.conflicts = append(w.conflicts, Conflict{File: fr.Path, Pos: pos, Object: object})

@@ -12,6 +12,7 @@ import (
 
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/ingest/ingesttest"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
 )
@@ -20,18 +21,18 @@ import (
 // file bytes only matter for their SHA-256.
 type fakeFiles struct {
 	dir    string
-	items  map[string][]ingest.Item
+	items  map[string][]osmfile.Item
 	fail   map[string]error
 	opened map[string]int
 }
 
 func newFakeFiles(tb testing.TB) *fakeFiles {
 	tb.Helper()
-	return &fakeFiles{dir: tb.TempDir(), items: map[string][]ingest.Item{}, fail: map[string]error{}, opened: map[string]int{}}
+	return &fakeFiles{dir: tb.TempDir(), items: map[string][]osmfile.Item{}, fail: map[string]error{}, opened: map[string]int{}}
 }
 
 // add writes a file named name with the given content and serves items for it.
-func (f *fakeFiles) add(tb testing.TB, name, content string, items ...ingest.Item) string {
+func (f *fakeFiles) add(tb testing.TB, name, content string, items ...osmfile.Item) string {
 	tb.Helper()
 	p := filepath.Join(f.dir, name)
 	if err := os.WriteFile(p, []byte(content), 0o644); err != nil {
@@ -41,13 +42,13 @@ func (f *fakeFiles) add(tb testing.TB, name, content string, items ...ingest.Ite
 	return p
 }
 
-func (f *fakeFiles) open(_ context.Context, path string) (ingest.Reader, error) {
+func (f *fakeFiles) open(_ context.Context, path string) (osmfile.Reader, error) {
 	items, ok := f.items[path]
 	if !ok {
 		return nil, fmt.Errorf("no fake reader for %s", path)
 	}
 	f.opened[path]++
-	r := ingesttest.New(ingest.FormatXML, items...)
+	r := ingesttest.New(osmfile.FormatXML, items...)
 	r.Fail = f.fail[path]
 	r.Size = int64(len(items)) * 100
 	return r, nil
@@ -59,23 +60,23 @@ func (f *fakeFiles) options() ingest.IngestOptions {
 
 var t0 = time.Date(2015, 6, 1, 12, 0, 0, 0, time.UTC)
 
-func node(id int64, v int, at time.Duration, lat, lon float64, tags ...string) ingest.Item {
-	return ingest.Item{Object: &osm.Node{ID: osm.NodeID(id), Version: v, Visible: true, Timestamp: t0.Add(at),
+func node(id int64, v int, at time.Duration, lat, lon float64, tags ...string) osmfile.Item {
+	return osmfile.Item{Object: &osm.Node{ID: osm.NodeID(id), Version: v, Visible: true, Timestamp: t0.Add(at),
 		ChangesetID: osm.ChangesetID(100 + v), UserID: osm.UserID(id%3 + 1), User: fmt.Sprintf("user%d", id%3+1),
-		Lat: lat, Lon: lon, Tags: tagList(tags)}, Pos: ingest.Position{Element: id}}
+		Lat: lat, Lon: lon, Tags: tagList(tags)}, Pos: osmfile.Position{Element: id}}
 }
 
-func deletedNode(id int64, v int, at time.Duration) ingest.Item {
-	return ingest.Item{Object: &osm.Node{ID: osm.NodeID(id), Version: v, Visible: false, Timestamp: t0.Add(at), UserID: 9, User: "user9"},
-		Action: ingest.ActionDelete}
+func deletedNode(id int64, v int, at time.Duration) osmfile.Item {
+	return osmfile.Item{Object: &osm.Node{ID: osm.NodeID(id), Version: v, Visible: false, Timestamp: t0.Add(at), UserID: 9, User: "user9"},
+		Action: osmfile.ActionDelete}
 }
 
-func way(id int64, v int, at time.Duration, visible bool, nodes []int64, tags ...string) ingest.Item {
+func way(id int64, v int, at time.Duration, visible bool, nodes []int64, tags ...string) osmfile.Item {
 	w := &osm.Way{ID: osm.WayID(id), Version: v, Visible: visible, Timestamp: t0.Add(at), UserID: 1, User: "user1", Tags: tagList(tags)}
 	for _, n := range nodes {
 		w.Nodes = append(w.Nodes, osm.WayNode{ID: osm.NodeID(n)})
 	}
-	return ingest.Item{Object: w}
+	return osmfile.Item{Object: w}
 }
 
 func tagList(kv []string) osm.Tags {
@@ -193,8 +194,8 @@ func checkTotals(tb testing.TB, s *ingest.Store) ingest.Stats {
 	return kept
 }
 
-func history() []ingest.Item {
-	return []ingest.Item{
+func history() []osmfile.Item {
+	return []osmfile.Item{
 		node(1, 1, 0, 38.5, -75.5, "amenity", "bench"),
 		node(1, 2, time.Hour, 38.6, -75.4, "amenity", "bench"),
 		node(2, 1, 0, 38.7, -75.3),
@@ -280,7 +281,7 @@ func TestIngestConflict(t *testing.T) {
 
 func TestIngestMergesHistoryAndDiff(t *testing.T) {
 	ctx := context.Background()
-	diff := []ingest.Item{
+	diff := []osmfile.Item{
 		node(1, 3, 5*time.Hour, 38.65, -75.45, "amenity", "bench", "backrest", "yes"),
 		node(4, 1, 5*time.Hour, 39.0, -75.0),
 		way(10, 3, 6*time.Hour, false, nil),
@@ -389,13 +390,13 @@ func TestNodeAt(t *testing.T) {
 
 // brokenFiles serves a file whose reader fails after the first five items of
 // history() at line 41, column 7, and another good file of one node.
-func brokenFiles(tb testing.TB) (ff *fakeFiles, items []ingest.Item, broken, other string) {
+func brokenFiles(tb testing.TB) (ff *fakeFiles, items []osmfile.Item, broken, other string) {
 	tb.Helper()
 	ff = newFakeFiles(tb)
 	items = history()
 	broken = ff.add(tb, "broken.osh", "broken", items[:5]...)
-	ff.fail[broken] = &ingest.ParseError{File: broken, Pos: ingest.Position{Line: 41, Column: 7, Element: 6},
-		Err: fmt.Errorf("%w: bad lat", ingest.ErrFormat)}
+	ff.fail[broken] = &osmfile.ParseError{File: broken, Pos: osmfile.Position{Line: 41, Column: 7, Element: 6},
+		Err: fmt.Errorf("%w: bad lat", osmfile.ErrFormat)}
 	other = ff.add(tb, "other.osc", "other", node(50, 1, 0, 1, 1))
 	return ff, items, broken, other
 }
@@ -421,9 +422,9 @@ func TestIngestParseErrorAbortsFile(t *testing.T) {
 	ff, items, broken, other := brokenFiles(t)
 	s := openMem(t)
 	rep, err := ingest.Ingest(ctx, s, []string{broken, other}, ff.options())
-	var pe *ingest.ParseError
-	if !errors.As(err, &pe) || !errors.Is(err, ingest.ErrFormat) {
-		t.Fatalf("error %v, want a ParseError", err)
+	var pe *osmfile.ParseError
+	if !errors.As(err, &pe) || !errors.Is(err, osmfile.ErrFormat) {
+		t.Fatalf("error %v, want an osmfile.ParseError", err)
 	}
 	if msg := err.Error(); !strings.Contains(msg, "broken.osh") || !strings.Contains(msg, "line 41, column 7") {
 		t.Errorf("message %q does not name file and position", msg)
@@ -466,7 +467,7 @@ func (c *cancelAfter) Update(int64, int64) {
 
 func TestIngestCancelLeavesConsistentStore(t *testing.T) {
 	ff := newFakeFiles(t)
-	var items []ingest.Item
+	var items []osmfile.Item
 	for id := int64(1); id <= 200; id++ {
 		items = append(items, node(id, 1, time.Duration(id)*time.Minute, float64(id)/10, 1), node(id, 2, time.Duration(id)*time.Hour, 2, float64(id)/10))
 	}
@@ -514,9 +515,9 @@ func TestChangesets(t *testing.T) {
 		MinLat: 1, MaxLat: 2, MinLon: 3, MaxLon: 4, Tags: osm.Tags{{Key: "comment", Value: "survey"}}}
 	other := &osm.Changeset{ID: 17, UserID: 6, User: "someone", CreatedAt: t0, ClosedAt: t0}
 	ff := newFakeFiles(t)
-	a := ff.add(t, "a", "a", ingest.Item{Changeset: open}, ingest.Item{Changeset: &osm.Changeset{ID: 3, CreatedAt: t0, ClosedAt: t0}})
-	b := ff.add(t, "b", "b", ingest.Item{Changeset: closed})
-	c := ff.add(t, "c", "c", ingest.Item{Changeset: other})
+	a := ff.add(t, "a", "a", osmfile.Item{Changeset: open}, osmfile.Item{Changeset: &osm.Changeset{ID: 3, CreatedAt: t0, ClosedAt: t0}})
+	b := ff.add(t, "b", "b", osmfile.Item{Changeset: closed})
+	c := ff.add(t, "c", "c", osmfile.Item{Changeset: other})
 	s := openMem(t)
 	rep, err := ingest.Ingest(ctx, s, []string{a, b, c}, ff.options())
 	if err != nil {
@@ -634,7 +635,7 @@ func TestReopenKeepsData(t *testing.T) {
 // match those of an ordinary ingest.
 func TestIngestTxnTooBig(t *testing.T) {
 	ctx := context.Background()
-	var items []ingest.Item
+	var items []osmfile.Item
 	for id := int64(1); id <= 40000; id++ {
 		items = append(items, node(id, 1, time.Duration(id)*time.Second, float64(id%90), float64(id%180), "k", "v"))
 	}
@@ -668,26 +669,26 @@ func TestWritePathsAgree(t *testing.T) {
 	open := &osm.Changeset{ID: 17, UserID: 5, User: "cs-user", CreatedAt: t0, Open: true}
 	closed := &osm.Changeset{ID: 17, UserID: 5, User: "cs-user", CreatedAt: t0, ClosedAt: t0.Add(time.Hour), ChangesCount: 3}
 	other := &osm.Changeset{ID: 17, UserID: 6, User: "someone", CreatedAt: t0, ClosedAt: t0}
-	diff := []ingest.Item{
+	diff := []osmfile.Item{
 		node(1, 3, 5*time.Hour, 38.65, -75.45, "amenity", "bench", "backrest", "yes"),
 		node(4, 1, 5*time.Hour, 39.0, -75.0),
 		way(10, 3, 6*time.Hour, false, nil),
 	}
 	cases := []struct {
 		name  string
-		files [][]ingest.Item
+		files [][]osmfile.Item
 	}{
-		{"history then diff", [][]ingest.Item{history(), diff}},
-		{"diff then history", [][]ingest.Item{diff, history()}},
-		{"conflicting way", [][]ingest.Item{
+		{"history then diff", [][]osmfile.Item{history(), diff}},
+		{"diff then history", [][]osmfile.Item{diff, history()}},
+		{"conflicting way", [][]osmfile.Item{
 			{way(5, 1, 0, true, []int64{1, 2}, "building", "yes")},
 			{way(5, 1, 0, true, []int64{1, 2}, "building", "house"), way(5, 2, time.Hour, true, []int64{1, 2, 3})},
 		}},
-		{"versions out of order", [][]ingest.Item{
+		{"versions out of order", [][]osmfile.Item{
 			{node(7, 10, 10*time.Hour, 1, 1), node(7, 2, 2*time.Hour, 1, 2)},
 			{node(7, 1, time.Hour, 1, 3), node(6, 1, 0, 0, 0), node(8, 1, 0, 0, 0)},
 		}},
-		{"changesets", [][]ingest.Item{
+		{"changesets", [][]osmfile.Item{
 			{{Changeset: open}, {Changeset: &osm.Changeset{ID: 3, CreatedAt: t0, ClosedAt: t0}}},
 			{{Changeset: closed}},
 			{{Changeset: other}, node(9, 1, 0, 1, 1)},
@@ -764,9 +765,9 @@ func TestBulkParseErrorKeepsItemsRead(t *testing.T) {
 	opts := ff.options()
 	opts.Path = ingest.WriteBulk
 	rep, err := ingest.Ingest(ctx, s, []string{broken, other}, opts)
-	var pe *ingest.ParseError
+	var pe *osmfile.ParseError
 	if !errors.As(err, &pe) || !strings.Contains(err.Error(), "line 41, column 7") {
-		t.Fatalf("error %v, want the ParseError", err)
+		t.Fatalf("error %v, want the osmfile.ParseError", err)
 	}
 	if !rep.Bulk || rep.Files[0].Err == nil || rep.Files[0].Versions != 5 || rep.Files[1].Err != nil || rep.Files[1].Versions != 1 {
 		t.Errorf("reports: %+v", rep.Files)
@@ -790,7 +791,7 @@ func TestBulkParseErrorKeepsItemsRead(t *testing.T) {
 // the store empty, and the rerun takes the bulk path again.
 func TestBulkCancelStoresNothing(t *testing.T) {
 	ff := newFakeFiles(t)
-	var items []ingest.Item
+	var items []osmfile.Item
 	for id := int64(1); id <= 200; id++ {
 		items = append(items, node(id, 1, time.Duration(id)*time.Minute, float64(id)/10, 1))
 	}

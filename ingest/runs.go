@@ -12,6 +12,8 @@ import (
 	"os"
 	"path/filepath"
 	"slices"
+
+	"github.com/loadwake/loadwake/ingest/osmfile"
 )
 
 // A record is one key and value on its way to a bulk write, with where it came
@@ -26,7 +28,7 @@ type record struct {
 	key, val []byte
 	seq      uint64
 	file     int
-	pos      Position
+	pos      osmfile.Position
 }
 
 func appendRecord(dst []byte, r *record) []byte {
@@ -70,7 +72,7 @@ func parseRecord(b []byte, r *record) (int, error) {
 		f[i], n = v, n+k
 	}
 	r.seq, r.file = f[0], int(f[1])
-	r.pos = Position{Offset: int64(f[2]), Line: int(f[3]), Column: int(f[4]), Element: int64(f[5])}
+	r.pos = osmfile.Position{Offset: int64(f[2]), Line: int(f[3]), Column: int(f[4]), Element: int64(f[5])}
 	return n, nil
 }
 

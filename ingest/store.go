@@ -18,8 +18,15 @@ import (
 
 	"github.com/dgraph-io/badger/v4"
 	"github.com/dgraph-io/badger/v4/options"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
+)
+
+// Sentinel errors of the store; test with errors.Is.
+var (
+	ErrLocked      = errors.New("ingest: store is in use by another process")
+	ErrSchemaNewer = errors.New("ingest: store was written by a newer loadwake")
 )
 
 // SchemaVersion is the layout version this loadwake writes and reads. A store
@@ -216,7 +223,7 @@ var ErrNotStore = errors.New("ingest: folder is not a loadwake store")
 var ErrInterrupted = errors.New("ingest: store holds an interrupted bulk ingest")
 
 // Open opens or creates the store in directory dir (the store constructor of
-// the read API contract in DEVELOPERS.md; stream readers come from OpenFile). A store that another
+// the read API contract in DEVELOPERS.md; stream readers come from osmfile.OpenFile). A store that another
 // process holds gives an error wrapping ErrLocked; one written by a newer
 // loadwake gives ErrSchemaNewer. A folder that exists, is not empty and holds
 // no loadwake store gives ErrNotStore, and nothing is written into it.
@@ -325,7 +332,7 @@ func (s *Store) checkSchema() error {
 			it.Close()
 			if !empty && !s.interrupted.Load() {
 				return fmt.Errorf("%s: %w: %w: not a loadwake store (no schema record); give --store a new or empty folder",
-					s.name(), ErrNotStore, ErrFormat)
+					s.name(), ErrNotStore, osmfile.ErrFormat)
 			}
 			return txn.Set(metaKey(metaSchema), []byte(strconv.Itoa(SchemaVersion)))
 		}
@@ -338,7 +345,7 @@ func (s *Store) checkSchema() error {
 		}
 		n, err := strconv.Atoi(string(v))
 		if err != nil {
-			return fmt.Errorf("%s: %w: bad schema record %q", s.name(), ErrFormat, v)
+			return fmt.Errorf("%s: %w: bad schema record %q", s.name(), osmfile.ErrFormat, v)
 		}
 		if n > SchemaVersion {
 			return fmt.Errorf("%s has schema %d but this loadwake reads up to %d; use a newer loadwake: %w",

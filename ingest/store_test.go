@@ -12,6 +12,7 @@ import (
 	"testing"
 
 	"github.com/dgraph-io/badger/v4"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
 	"github.com/paulmach/osm/osmpbf"
@@ -54,7 +55,7 @@ func TestOpenRefusesForeignDatabase(t *testing.T) {
 		t.Fatal(err)
 	}
 	db.Close()
-	if _, err := Open(dir, DefaultOptions()); !errors.Is(err, ErrFormat) || !errors.Is(err, ErrNotStore) || !strings.Contains(err.Error(), "not a loadwake store") {
+	if _, err := Open(dir, DefaultOptions()); !errors.Is(err, osmfile.ErrFormat) || !errors.Is(err, ErrNotStore) || !strings.Contains(err.Error(), "not a loadwake store") {
 		t.Errorf("open: %v", err)
 	}
 }

@@ -9,6 +9,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/osm"
 )
 
@@ -42,14 +43,14 @@ func osmModuleTestdata(tb testing.TB, name string) string {
 }
 
 // readAll reads every item of the file at path.
-func readAll(tb testing.TB, path string) (Format, []Item, error) {
+func readAll(tb testing.TB, path string) (osmfile.Format, []osmfile.Item, error) {
 	tb.Helper()
-	r, err := OpenFile(context.Background(), path, ReadOptions{})
+	r, err := osmfile.OpenFile(context.Background(), path, osmfile.ReadOptions{})
 	if err != nil {
-		return FormatUnknown, nil, err
+		return osmfile.FormatUnknown, nil, err
 	}
 	defer r.Close()
-	var items []Item
+	var items []osmfile.Item
 	for r.Scan() {
 		items = append(items, r.Item())
 	}
@@ -57,7 +58,7 @@ func readAll(tb testing.TB, path string) (Format, []Item, error) {
 }
 
 // mustReadAll is readAll failing the test on an error.
-func mustReadAll(tb testing.TB, path string) (Format, []Item) {
+func mustReadAll(tb testing.TB, path string) (osmfile.Format, []osmfile.Item) {
 	tb.Helper()
 	f, items, err := readAll(tb, path)
 	if err != nil {
@@ -72,15 +73,15 @@ type counts struct {
 	Create, Modify, Delete                        int
 }
 
-func countItems(items []Item) counts {
+func countItems(items []osmfile.Item) counts {
 	var c counts
 	for _, it := range items {
 		switch it.Action {
-		case ActionCreate:
+		case osmfile.ActionCreate:
 			c.Create++
-		case ActionModify:
+		case osmfile.ActionModify:
 			c.Modify++
-		case ActionDelete:
+		case osmfile.ActionDelete:
 			c.Delete++
 		}
 		if it.Changeset != nil {

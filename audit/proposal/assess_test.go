@@ -25,12 +25,13 @@ import (
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/audit/spatial"
 	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
 )
 
 // asObjects turns an ingest reader into the object sequence ReadOSM takes.
-func asObjects(rd ingest.Reader) iter.Seq2[osm.Object, error] {
+func asObjects(rd osmfile.Reader) iter.Seq2[osm.Object, error] {
 	return func(yield func(osm.Object, error) bool) {
 		for rd.Scan() {
 			if it := rd.Item(); it.Object != nil && !yield(it.Object, nil) {
@@ -52,7 +53,7 @@ func asObjects(rd ingest.Reader) iter.Seq2[osm.Object, error] {
 func TestReadOSMProposalOsmChange(t *testing.T) {
 	ctx := context.Background()
 	path := worldtest.OSMFixture(t, "changeset_38162210.osc")
-	rd, err := ingest.OpenFile(ctx, path, ingest.ReadOptions{})
+	rd, err := osmfile.OpenFile(ctx, path, osmfile.ReadOptions{})
 	if err != nil {
 		t.Skipf("osm module testdata: %v", err)
 	}
@@ -469,7 +470,7 @@ func asProposalFromStore(tb testing.TB, st *ingest.Store, r *rules.RuleSet, shif
 type asBenchReader struct {
 	n, i int
 	rng  *rand.Rand
-	item ingest.Item
+	item osmfile.Item
 }
 
 var asBenchClasses = [...][2]string{{"amenity", "bench"}, {"amenity", "cafe"}, {"shop", "bakery"}, {"tourism", "information"}, {"amenity", "post_box"}}
@@ -486,14 +487,14 @@ func (b *asBenchReader) Scan() bool {
 	if b.i%3 == 0 {
 		n.Tags = append(n.Tags, osm.Tag{Key: "name", Value: "x"})
 	}
-	b.item = ingest.Item{Object: n, Pos: ingest.Position{Element: int64(b.i)}}
+	b.item = osmfile.Item{Object: n, Pos: osmfile.Position{Element: int64(b.i)}}
 	return true
 }
-func (b *asBenchReader) Item() ingest.Item     { return b.item }
-func (b *asBenchReader) Err() error            { return nil }
-func (b *asBenchReader) Close() error          { return nil }
-func (b *asBenchReader) Format() ingest.Format { return ingest.FormatXML }
-func (b *asBenchReader) BytesRead() int64      { return int64(b.i) }
+func (b *asBenchReader) Item() osmfile.Item     { return b.item }
+func (b *asBenchReader) Err() error             { return nil }
+func (b *asBenchReader) Close() error           { return nil }
+func (b *asBenchReader) Format() osmfile.Format { return osmfile.FormatXML }
+func (b *asBenchReader) BytesRead() int64       { return int64(b.i) }
 
 // BenchmarkAssess assesses a 100,000-point GeoJSON proposal (read included)
 // against a store of 1,000,000 classified point features over the same
@@ -507,7 +508,7 @@ func BenchmarkAssess(b *testing.B) {
 		b.Fatal(err)
 	}
 	defer st.Close()
-	opts := ingest.IngestOptions{Open: func(context.Context, string) (ingest.Reader, error) {
+	opts := ingest.IngestOptions{Open: func(context.Context, string) (osmfile.Reader, error) {
 		return &asBenchReader{n: storeN, rng: rand.New(rand.NewPCG(1, 2))}, nil
 	}}
 	// Ingest hashes the named file to record it; the objects come from Open.

@@ -14,7 +14,7 @@ import (
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/report"
-	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/loadwake/loadwake/rules"
 )
 
@@ -156,22 +156,22 @@ func printPartialProfile(w io.Writer, p *proposal.Proposal) {
 // through ingest's reader, or GeoJSON; plain, gzip or bzip2, detected from the
 // content by ingest.
 func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*proposal.Proposal, error) {
-	c, err := ingest.OpenContent(path)
+	c, err := osmfile.OpenContent(path)
 	if err != nil {
 		return nil, err
 	}
 	defer c.Close()
 	switch c.Format {
-	case ingest.FormatChangesets:
+	case osmfile.FormatChangesets:
 		return nil, fmt.Errorf("%s: changeset metadata, not a proposal of map data", path)
-	case ingest.FormatPBF:
-		rd, err := ingest.OpenFile(ctx, path, ingest.ReadOptions{})
+	case osmfile.FormatPBF:
+		rd, err := osmfile.OpenFile(ctx, path, osmfile.ReadOptions{})
 		if err != nil {
 			return nil, err
 		}
 		defer rd.Close()
 		return proposal.ReadOSM(ctx, path, objects(rd), r, proposal.Options{})
-	case ingest.FormatXML, ingest.FormatOsmChange:
+	case osmfile.FormatXML, osmfile.FormatOsmChange:
 		// Editors' files have no versions: read them with the proposal reader.
 		return proposal.ReadOSM(ctx, path, proposal.XMLObjects(ctx, path, c), r, proposal.Options{})
 	}
@@ -179,8 +179,8 @@ func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*proposal
 }
 
 // objects turns an ingest reader into the object sequence audit reads; the
-// reader's error (a *ingest.ParseError naming file and position) ends it.
-func objects(rd ingest.Reader) iter.Seq2[osm.Object, error] {
+// reader's error (a *osmfile.ParseError naming file and position) ends it.
+func objects(rd osmfile.Reader) iter.Seq2[osm.Object, error] {
 	return func(yield func(osm.Object, error) bool) {
 		for rd.Scan() {
 			if it := rd.Item(); it.Object != nil && !yield(it.Object, nil) {

@@ -17,6 +17,7 @@ import (
 	"github.com/loadwake/loadwake/audit/spatial"
 	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/loadwake/loadwake/rules"
 )
 
@@ -88,8 +89,8 @@ func errorHints() []errorHint {
 		{[]error{fs.ErrPermission}, "check the file's permissions"},
 		{[]error{ingest.ErrLocked}, "another loadwake process uses this store: wait until it ends, or pass another --store"},
 		{[]error{ingest.ErrSchemaNewer}, "use the loadwake version that wrote the store (loadwake version), or ingest into a new --store"},
-		{[]error{ingest.ErrFormat, ingest.ErrOrder}, "fix or replace the file at the position named above; what was stored before it is kept, and a rerun adds no duplicates"},
-		{[]error{ingest.ErrUnknown}, "give an OSM PBF, OSM XML, OsmChange or changeset file (plain, gzip or bzip2)"},
+		{[]error{osmfile.ErrFormat, osmfile.ErrOrder}, "fix or replace the file at the position named above; what was stored before it is kept, and a rerun adds no duplicates"},
+		{[]error{osmfile.ErrUnknown}, "give an OSM PBF, OSM XML, OsmChange or changeset file (plain, gzip or bzip2)"},
 		{[]error{rules.ErrInvalid}, "fix the rule file; \"loadwake rules check FILE\" lists every problem as file:line:column"},
 		{[]error{match.ErrMatch, match.ErrModel}, "too few untouched units to match: lower --k, drop --caliper, or choose smaller units (a higher tiles:Z or finer polygons)"},
 		{[]error{spatial.ErrUnits}, "check --units: tiles:Z (a lower Z gives fewer, larger tiles), or a GeoJSON file of polygons in longitude/latitude with an id property (--unit-id)"},

@@ -1,32 +1,32 @@
-// Package ingesttest provides a slice-backed ingest.Reader for tests.
+// Package ingesttest provides a slice-backed osmfile.Reader for tests.
 package ingesttest
 
 import (
-	"github.com/loadwake/loadwake/ingest"
+	"github.com/loadwake/loadwake/ingest/osmfile"
 )
 
-// Reader yields a fixed slice of items, then Err, as an ingest.Reader over a
+// Reader yields a fixed slice of items, then Err, as an osmfile.Reader over a
 // file would. The zero value is an empty reader.
 type Reader struct {
-	Items []ingest.Item
+	Items []osmfile.Item
 	// Fail, when non-nil, is returned by Err after the items are exhausted, as a
 	// reader that hit malformed input would.
 	Fail error
 	// Kind is what Format reports.
-	Kind ingest.Format
+	Kind osmfile.Format
 	// Size is the total BytesRead reports once every item is read; BytesRead
 	// grows in proportion to the items read.
 	Size int64
 
 	next   int
-	cur    ingest.Item
+	cur    osmfile.Item
 	closed bool
 }
 
-var _ ingest.Reader = (*Reader)(nil)
+var _ osmfile.Reader = (*Reader)(nil)
 
 // New returns a Reader over items.
-func New(format ingest.Format, items ...ingest.Item) *Reader {
+func New(format osmfile.Format, items ...osmfile.Item) *Reader {
 	return &Reader{Items: items, Kind: format}
 }
 
@@ -41,7 +41,7 @@ func (r *Reader) Scan() bool {
 }
 
 // Item returns the current item.
-func (r *Reader) Item() ingest.Item { return r.cur }
+func (r *Reader) Item() osmfile.Item { return r.cur }
 
 // Err returns Fail once the items are exhausted.
 func (r *Reader) Err() error {
@@ -58,7 +58,7 @@ func (r *Reader) Close() error { r.closed = true; return nil }
 func (r *Reader) Closed() bool { return r.closed }
 
 // Format returns Kind.
-func (r *Reader) Format() ingest.Format { return r.Kind }
+func (r *Reader) Format() osmfile.Format { return r.Kind }
 
 // BytesRead returns the share of Size matching the items read.
 func (r *Reader) BytesRead() int64 {

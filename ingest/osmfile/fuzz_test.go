@@ -1,4 +1,4 @@
-package ingest
+package osmfile
 
 import (
 	"bytes"
@@ -96,9 +96,9 @@ func checkFuzzError(t *testing.T, data []byte, format Format, items int64, err e
 // of a larger one (real OSM data, see testdata/README.md) and hand-made files
 // with an element left open or a node out of range.
 func FuzzXMLReader(f *testing.F) {
-	f.Add(readFile(f, "testdata/way_230391153.osm"))
-	f.Add(readFile(f, "testdata/way_6394949.osm.gz"))
-	f.Add(readFile(f, "testdata/way_6394949.osm")[:1500])
+	f.Add(readFile(f, "../testdata/way_230391153.osm"))
+	f.Add(readFile(f, "../testdata/way_6394949.osm.gz"))
+	f.Add(readFile(f, "../testdata/way_6394949.osm")[:1500])
 	f.Add(xmlLines(osmLines()...))
 	f.Add(xmlLines(without(osmLines(), 9)...))
 	f.Add(xmlLines(replaced(osmLines(), 13, ` <node id="2" `+xmlMeta+` lat="95" lon="2.6"/>`)...))
@@ -111,11 +111,11 @@ func FuzzXMLReader(f *testing.F) {
 // delete blocks of minute_871.osc (its lines 1-11 and the closing tag),
 // prefixes of the fixtures and a hand-made file.
 func FuzzOsmChangeReader(f *testing.F) {
-	osc := readFile(f, "testdata/minute_871.osc")
+	osc := readFile(f, "../testdata/minute_871.osc")
 	lines := bytes.SplitAfter(osc, []byte("\n"))
 	f.Add(append(bytes.Join(lines[:11], nil), "</osmChange>\n"...))
 	f.Add(osc[:2000])
-	f.Add(readFile(f, "testdata/changeset_38162206.osc")[:2000])
+	f.Add(readFile(f, "../testdata/changeset_38162206.osc")[:2000])
 	f.Add(xmlLines(oscLines()...))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		fuzzRead(t, data)
@@ -125,8 +125,8 @@ func FuzzOsmChangeReader(f *testing.F) {
 // FuzzChangesetReader feeds changeset metadata, seeded with the fixture
 // (plain and bzip2) and a hand-made file.
 func FuzzChangesetReader(f *testing.F) {
-	f.Add(readFile(f, "testdata/changesets_36947117.osm"))
-	f.Add(readFile(f, "testdata/changesets_36947117.osm.bz2"))
+	f.Add(readFile(f, "../testdata/changesets_36947117.osm"))
+	f.Add(readFile(f, "../testdata/changesets_36947117.osm.bz2"))
 	f.Add(xmlLines(changesetLines()...))
 	f.Fuzz(func(t *testing.T, data []byte) {
 		fuzzRead(t, data)

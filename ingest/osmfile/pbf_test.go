@@ -1,4 +1,4 @@
-package ingest
+package osmfile
 
 import (
 	"context"
@@ -147,11 +147,11 @@ func TestPBFHistoryMatchesXML(t *testing.T) {
 		want     counts
 	}{
 		// osmium: nodes 2063, ways 430, relations 17; dD 64 (all nodes)
-		{"relation_4017808.osh.pbf", "testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
-		{"relation_4017808.osh.pbf.gz", "testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
-		{"relation_4017808.osh.pbf.bz2", "testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
+		{"relation_4017808.osh.pbf", "../testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
+		{"relation_4017808.osh.pbf.gz", "../testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
+		{"relation_4017808.osh.pbf.bz2", "../testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
 		// uncompressed blobs: `osmium cat relation_4017808.osh.pbf -f osh.pbf,pbf_compression=none`
-		{"relation_4017808.raw.osh.pbf", "testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
+		{"relation_4017808.raw.osh.pbf", "../testdata/relation_4017808.osm", counts{Nodes: 2063, Ways: 430, Relations: 17, Invisible: 64}},
 		// osmium: nodes 2534, ways 370, relations 30; dD 68 (67 nodes, 1 way)
 		{"relation_2714790.osh.pbf", "annotate/testdata/relation_2714790.osm", counts{Nodes: 2534, Ways: 370, Relations: 30, Invisible: 68}},
 	}
@@ -162,7 +162,7 @@ func TestPBFHistoryMatchesXML(t *testing.T) {
 				xmlPath = osmModuleTestdata(t, tt.xml)
 			}
 			_, fromXML := mustReadAll(t, xmlPath)
-			format, fromPBF := mustReadAll(t, "testdata/"+tt.pbf)
+			format, fromPBF := mustReadAll(t, "../testdata/"+tt.pbf)
 			if format != FormatPBF {
 				t.Fatalf("format %v", format)
 			}
@@ -215,7 +215,7 @@ func sameNodeApprox(g, w *osm.Node) error {
 // checks that reading never panics and that every failure is a *ParseError
 // naming the file and a byte offset and unwrapping to ErrFormat.
 func TestPBFCorrupt(t *testing.T) {
-	src := readFile(t, "testdata/relation_4017808.osh.pbf")
+	src := readFile(t, "../testdata/relation_4017808.osh.pbf")
 	check := func(t *testing.T, name string, data []byte) (failed bool) {
 		t.Helper()
 		r, err := OpenReader(context.Background(), name, &sliceReader{b: data}, ReadOptions{Procs: 2})
@@ -258,7 +258,7 @@ func TestPBFCorrupt(t *testing.T) {
 // that the error names the byte offset where that block starts: the first
 // block (OSMHeader) is 4 + BlobHeader + Blob bytes long, read from the file.
 func TestPBFErrorOffset(t *testing.T) {
-	src := readFile(t, "testdata/relation_4017808.osh.pbf")
+	src := readFile(t, "../testdata/relation_4017808.osh.pbf")
 	r := &sliceReader{b: src}
 	_, _, first, err := readFileBlock(r)
 	if err != nil {
@@ -362,7 +362,7 @@ func BenchmarkDecodeDelawareOsmpbf(b *testing.B) {
 // `osmium cat relation_4017808.osh.pbf -f osh.pbf,pbf_compression=lz4`) are
 // refused with ErrFormat naming the block's byte offset.
 func TestPBFBlobCompression(t *testing.T) {
-	raw := readFile(t, "testdata/relation_4017808.raw.osh.pbf")
+	raw := readFile(t, "../testdata/relation_4017808.raw.osh.pbf")
 	enc, err := zstd.NewWriter(nil)
 	if err != nil {
 		t.Fatal(err)
@@ -404,7 +404,7 @@ func TestPBFBlobCompression(t *testing.T) {
 		out = binary.BigEndian.AppendUint32(out, uint32(len(hdr)))
 		out = append(append(out, hdr...), nb...)
 	}
-	_, want := mustReadAll(t, "testdata/relation_4017808.raw.osh.pbf")
+	_, want := mustReadAll(t, "../testdata/relation_4017808.raw.osh.pbf")
 	_, got := mustReadAll(t, writeTemp(t, "zstd.osh.pbf", out))
 	if len(got) != len(want) {
 		t.Fatalf("zstd: %d objects, raw: %d", len(got), len(want))
@@ -415,7 +415,7 @@ func TestPBFBlobCompression(t *testing.T) {
 		}
 	}
 
-	_, _, err = readAll(t, "testdata/relation_4017808.lz4.osh.pbf")
+	_, _, err = readAll(t, "../testdata/relation_4017808.lz4.osh.pbf")
 	var pe *ParseError
 	// osmium compresses the header block too, so the error is at byte 0.
 	if !errors.As(err, &pe) || !errors.Is(err, ErrFormat) || !strings.Contains(err.Error(), "lz4) is not supported") {

@@ -1,4 +1,4 @@
-package ingest
+package osmfile
 
 import (
 	"bytes"
@@ -42,7 +42,7 @@ func TestXMLCounts(t *testing.T) {
 	}
 	for _, tt := range tests {
 		t.Run(tt.file, func(t *testing.T) {
-			format, items := mustReadAll(t, filepath.Join("testdata", tt.file))
+			format, items := mustReadAll(t, filepath.Join("..", "testdata", tt.file))
 			if format != tt.format {
 				t.Errorf("format %v, want %v", format, tt.format)
 			}
@@ -69,7 +69,7 @@ func TestXMLCounts(t *testing.T) {
 //
 // on line 2 after one space, at 0-based byte 40 (`head -1 way_6394949.osm | wc -c` = 39).
 func TestXMLFirstObject(t *testing.T) {
-	_, items := mustReadAll(t, "testdata/way_6394949.osm")
+	_, items := mustReadAll(t, "../testdata/way_6394949.osm")
 	it := items[0]
 	n, ok := it.Object.(*osm.Node)
 	if !ok {
@@ -91,12 +91,12 @@ func TestXMLFirstObject(t *testing.T) {
 // fixture with every visible="true" removed must read the same as the
 // original, and the 64 visible="false" versions stay deleted.
 func TestXMLVisibleDefault(t *testing.T) {
-	src := readFile(t, "testdata/relation_4017808.osm")
+	src := readFile(t, "../testdata/relation_4017808.osm")
 	stripped := bytes.ReplaceAll(src, []byte(` visible="true"`), nil)
 	if bytes.Equal(src, stripped) {
 		t.Fatal("fixture has no visible=\"true\" to strip")
 	}
-	_, want := mustReadAll(t, "testdata/relation_4017808.osm")
+	_, want := mustReadAll(t, "../testdata/relation_4017808.osm")
 	_, got := mustReadAll(t, writeTemp(t, "stripped.osm", stripped))
 	if len(got) != len(want) {
 		t.Fatalf("%d items, want %d", len(got), len(want))
@@ -129,7 +129,7 @@ func visibleOf(o osm.Object) bool {
 //	<delete>
 //	  <node id="665036299" version="2" timestamp="2016-07-19T05:46:35Z" ... changeset="40848253" .../>
 func TestOsmChangeDelete(t *testing.T) {
-	_, items := mustReadAll(t, "testdata/minute_871.osc")
+	_, items := mustReadAll(t, "../testdata/minute_871.osc")
 	var deleted []Item
 	for _, it := range items {
 		if it.Action == ActionDelete {
@@ -158,7 +158,7 @@ func TestOsmChangeDelete(t *testing.T) {
 func TestChangesetMetadata(t *testing.T) {
 	for _, name := range []string{"changesets_36947117.osm", "changesets_36947117.osm.gz", "changesets_36947117.osm.bz2"} {
 		t.Run(name, func(t *testing.T) {
-			_, items := mustReadAll(t, filepath.Join("testdata", name))
+			_, items := mustReadAll(t, filepath.Join("..", "testdata", name))
 			if len(items) != 2 {
 				t.Fatalf("%d items, want 2", len(items))
 			}
@@ -203,7 +203,7 @@ func TestChangesetMetadata(t *testing.T) {
 // BenchmarkDecodeXML reads the largest history XML fixture (relation_4017808.osm,
 // 2,510 versions) and reports decompressed MB/s and objects/s.
 func BenchmarkDecodeXML(b *testing.B) {
-	path := "testdata/relation_4017808.osm"
+	path := "../testdata/relation_4017808.osm"
 	size := int64(len(readFile(b, path)))
 	b.ReportAllocs()
 	b.SetBytes(size)

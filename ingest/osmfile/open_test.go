@@ -1,4 +1,4 @@
-package ingest
+package osmfile
 
 import (
 	"bytes"
@@ -38,8 +38,8 @@ func TestDetect(t *testing.T) {
 	for _, tt := range tests {
 		t.Run(tt.file, func(t *testing.T) {
 			plain := strings.TrimSuffix(strings.TrimSuffix(tt.file, ".gz"), ".bz2")
-			_, want := mustReadAll(t, filepath.Join("testdata", plain))
-			data := readFile(t, filepath.Join("testdata", tt.file))
+			_, want := mustReadAll(t, filepath.Join("..", "testdata", plain))
+			data := readFile(t, filepath.Join("..", "testdata", tt.file))
 			for _, name := range misleading {
 				p := writeTemp(t, name, data)
 				comp, format, err := DetectFile(p)
@@ -61,7 +61,7 @@ func TestDetect(t *testing.T) {
 // TestDetectBOM checks that a UTF-8 byte order mark before the XML
 // content (allowed by XML 1.0, section 4.3.3) does not hide the format.
 func TestDetectBOM(t *testing.T) {
-	data := append([]byte("\uFEFF"), readFile(t, "testdata/way_6394949.osm")...)
+	data := append([]byte("\uFEFF"), readFile(t, "../testdata/way_6394949.osm")...)
 	format, items := mustReadAll(t, writeTemp(t, "bom.osm", data))
 	if format != FormatXML || len(items) != 38 { // osmium fileinfo -e way_6394949.osm: 33 nodes + 5 ways
 		t.Errorf("format %v with %d items, want osm-xml with 38", format, len(items))
@@ -73,7 +73,7 @@ func TestDetectBOM(t *testing.T) {
 func TestBytesRead(t *testing.T) {
 	for _, name := range []string{"way_6394949.osm.gz", "minute_871.osc.bz2", "relation_4017808.osh.pbf"} {
 		t.Run(name, func(t *testing.T) {
-			p := filepath.Join("testdata", name)
+			p := filepath.Join("..", "testdata", name)
 			st, err := os.Stat(p)
 			if err != nil {
 				t.Fatal(err)
@@ -99,10 +99,10 @@ func TestBytesRead(t *testing.T) {
 // and checks the error: its sentinel, and a message naming the file and a
 // position.
 func TestBadInput(t *testing.T) {
-	way := readFile(t, "testdata/way_6394949.osm")
-	wayGz := readFile(t, "testdata/way_6394949.osm.gz")
-	oscBz := readFile(t, "testdata/minute_871.osc.bz2")
-	cs := readFile(t, "testdata/changesets_36947117.osm")
+	way := readFile(t, "../testdata/way_6394949.osm")
+	wayGz := readFile(t, "../testdata/way_6394949.osm.gz")
+	oscBz := readFile(t, "../testdata/minute_871.osc.bz2")
+	cs := readFile(t, "../testdata/changesets_36947117.osm")
 	lines := bytes.SplitAfter(way, []byte("\n"))
 
 	corruptBz := append([]byte(nil), oscBz...)
@@ -167,7 +167,7 @@ func TestCancel(t *testing.T) {
 		t.Run(name, func(t *testing.T) {
 			ctx, cancel := context.WithCancel(context.Background())
 			defer cancel()
-			r, err := OpenFile(ctx, filepath.Join("testdata", name), ReadOptions{})
+			r, err := OpenFile(ctx, filepath.Join("..", "testdata", name), ReadOptions{})
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -192,7 +192,7 @@ func TestCancel(t *testing.T) {
 // TestOpenReaderLeavesStreamOpen checks that Close on a Reader from
 // OpenReader does not close the caller's stream, and that OpenFile closes its file.
 func TestOpenReaderLeavesStreamOpen(t *testing.T) {
-	f, err := os.Open("testdata/minute_871.osc")
+	f, err := os.Open("../testdata/minute_871.osc")
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,4 +1,4 @@
-package ingest
+package osmfile
 
 import (
 	"errors"
@@ -100,11 +100,9 @@ type Reader interface {
 
 // Sentinel errors; test with errors.Is.
 var (
-	ErrFormat      = errors.New("ingest: malformed input")
-	ErrUnknown     = errors.New("ingest: unknown file format")
-	ErrOrder       = errors.New("ingest: versions out of order")
-	ErrLocked      = errors.New("ingest: store is in use by another process")
-	ErrSchemaNewer = errors.New("ingest: store was written by a newer loadwake")
+	ErrFormat  = errors.New("osmfile: malformed input")
+	ErrUnknown = errors.New("osmfile: unknown file format")
+	ErrOrder   = errors.New("osmfile: versions out of order")
 )
 
 // ParseError is an error in an input file at a known position.
