@@ -11,6 +11,7 @@ import (
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/internal/reftest"
 	"github.com/loadwake/loadwake/audit/internal/worldtest"
 	"github.com/loadwake/loadwake/audit/sim"
 )
@@ -59,7 +60,7 @@ func TestAuditCoverage(t *testing.T) {
 			covered++
 		}
 	}
-	lo, hi := wilson(covered, ran)
+	lo, hi := reftest.Wilson(covered, ran)
 	t.Logf("coverage of the planted attribute effect %+.2f: %d of %d worlds (%.1f%%, Wilson 95%% [%.1f, %.1f]); mean estimate %+.3f",
 		cfg0.Effects.Attribute-1, covered, ran, 100*float64(covered)/float64(ran), 100*lo, 100*hi, sum/float64(ran))
 	if ran < worlds*9/10 || hi < 0.93 || lo > 0.97 {
@@ -68,16 +69,6 @@ func TestAuditCoverage(t *testing.T) {
 	if bias := sum/float64(ran) - (cfg0.Effects.Attribute - 1); math.Abs(bias) > 0.03 {
 		t.Errorf("mean estimate off the planted effect by %+.3f", bias)
 	}
-}
-
-// wilson returns the Wilson score 95% interval for x of n (Wilson 1927; R's
-// prop.test(x, n, correct = FALSE)).
-func wilson(x, n int) (lo, hi float64) {
-	const z = 1.959963984540054
-	p, nf := float64(x)/float64(n), float64(n)
-	c := (p + z*z/(2*nf)) / (1 + z*z/nf)
-	h := z / (1 + z*z/nf) * math.Sqrt(p*(1-p)/nf+z*z/(4*nf*nf))
-	return math.Max(0, c-h), math.Min(1, c+h)
 }
 
 // TestAuditNullWarnings audits 200 small null worlds (every planted
@@ -138,14 +129,14 @@ func TestAuditNullWarnings(t *testing.T) {
 			}
 		}
 	}
-	lo, hi := wilson(anyWarn, ran)
+	lo, hi := reftest.Wilson(anyWarn, ran)
 	t.Logf("null worlds: %d of %d audits with any warning (%.1f%%, Wilson 95%% [%.1f, %.1f]); first warnings: %q",
 		anyWarn, ran, 100*float64(anyWarn)/float64(ran), 100*lo, 100*hi, examples)
 	if ran < worlds*9/10 || lo > 0.10 {
 		t.Errorf("%d of %d null audits warn, want at most 10%%", anyWarn, ran)
 	}
 	for _, l := range layerNames {
-		lo, hi := wilson(fp[l], ran)
+		lo, hi := reftest.Wilson(fp[l], ran)
 		t.Logf("null worlds, %s: false positives (headline p < 0.05 or a warning) %d of %d (%.1f%%, Wilson 95%% [%.1f, %.1f])",
 			l, fp[l], ran, 100*float64(fp[l])/float64(ran), 100*lo, 100*hi)
 		if lo > 0.06 {

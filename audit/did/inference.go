@@ -10,29 +10,31 @@ import (
 	"gonum.org/v1/gonum/stat/distuv"
 )
 
-// Inference in this package:
+// Inference in this package, chosen by H, the smaller of the treated and
+// untreated cluster counts (MacKinnon & Webb 2017, 2018: what limits
+// few-cluster inference is the treated count, not the total):
 //
-//   - Cluster-robust variance CR1 (Liang & Zeger 1986 with the small-sample
-//     factor G/(G-1)·(N-1)/(N-K) that R's sandwich::vcovCL(type = "HC1") and
-//     Stata's vce(cluster) use). Intervals use normal quantiles when there are
-//     many treated clusters and t(G-1) quantiles otherwise.
-//   - Wild cluster bootstrap (Cameron, Gelbach & Miller 2008), unrestricted,
-//     bootstrap-t: Rademacher weights, or Webb's (2014) six-point weights when
-//     there are fewer than 12 clusters. Used automatically when the treated
-//     clusters are fewer than FewTreatedClusters (30), where analytic cluster
-//     variances are known to be too small.
-//   - Multiplier bootstrap of influence functions clustered by cluster for the
-//     group-time estimator (Callaway & Sant'Anna 2021, section 4), one set of
-//     draws shared by all aggregates of an outcome.
-//   - Wild score bootstrap for the Poisson fit (Kline & Santos 2012).
-//   - The linear event study (twfe-linear) always uses analytic CR1, with
-//     t(G-1) quantiles when treated clusters are few; its method field says so.
-//   - Joint Wald test of the leads of an event study (chi-square).
+//   - ppml-twfe (the headline): below infer.MinTreatedForInterval (4) no
+//     interval; the p-value is a randomization test re-dealing the start
+//     months over the eligible units. From 4 on, the score bootstrap with the
+//     null imposed (Kline & Santos 2012; infer.ScoreBootstrap), weights by
+//     infer.ChooseWeights, its interval by inverting the same test. Its
+//     event study: CR1 bands with t(H−1) quantiles, and the joint test of its
+//     leads (leadTest with H).
+//   - cs-att: influence-function variance with each arm's own small-sample
+//     factor (csVarianceFactors) and t(H−1) quantiles; the multiplier
+//     bootstrap only when Options.Inference asks for it.
+//   - twfe-linear and did-2x2: CR1 (Liang & Zeger 1986 with the factor
+//     G/(G−1)·(N−1)/(N−K) of R's sandwich::vcovCL type "HC1") with normal
+//     or t(G−1) quantiles, or an unrestricted wild cluster bootstrap below
+//     FewTreatedClusters treated clusters. They are robustness checks; the
+//     restricted wild bootstrap of infer (OLS.WildTest) is not yet wired in.
 //
 // Every random draw comes from a PCG generator seeded by Options.Seed.
 
-// FewTreatedClusters is the number of treated clusters below which Estimate
-// switches from analytic to bootstrap inference. Thirty follows the rule of
+// FewTreatedClusters is the number of treated clusters below which the
+// linear robustness checks (did-2x2) switch from analytic to bootstrap
+// inference. Thirty follows the rule of
 // thumb in Cameron & Miller (2015, J. Human Resources, section VI) that
 // cluster-robust variances are reliable from a few dozen clusters.
 const FewTreatedClusters = 30

@@ -226,7 +226,7 @@ func stackedPPML(ctx context.Context, p *panel.Panel, y []float64, cl []int, G i
 			kind = "exact"
 		}
 		e.method = fmt.Sprintf("randomization-%s-%d", kind, res.Evaluated)
-	} else if opts.PoissonInference == PoissonCR1T {
+	} else if opts.PoissonInference == PoissonCR1T || opts.Inference == InferenceAnalytic {
 		lo, hi, e.p, e.method = poissonInterval(b, se, H)
 	} else {
 		r, err := poissonScoreTest(ctx, st, G, b, len(tClusters), opts, rng)

@@ -50,7 +50,8 @@ type Options struct {
 	PlaceboShift int    // months the placebo moves each start back (default Window.Pre/2, at least 1)
 	Workers      int    // outcomes estimated in parallel; 0 = GOMAXPROCS
 	// PoissonInference chooses the headline's interval with enough treated
-	// clusters: PoissonScoreBootstrap (default, also for "") or PoissonCR1T.
+	// clusters: PoissonScoreBootstrap (default, also for "") or PoissonCR1T
+	// (also chosen by Inference = InferenceAnalytic).
 	PoissonInference string
 }
 

@@ -13,6 +13,7 @@ import (
 
 	"gonum.org/v1/gonum/stat/distuv"
 
+	"github.com/loadwake/loadwake/audit/internal/reftest"
 	"github.com/loadwake/loadwake/audit/panel"
 )
 
@@ -68,21 +69,11 @@ func (w nbWorld) panel(seed uint64) *panel.Panel {
 	return p
 }
 
-// wilson returns the Wilson score 95% interval for x of n (Wilson 1927; R's
-// prop.test(x, n, correct = FALSE)).
-func wilson(x, n int) (lo, hi float64) {
-	const z = 1.959963984540054
-	p, nf := float64(x)/float64(n), float64(n)
-	c := (p + z*z/(2*nf)) / (1 + z*z/nf)
-	h := z / (1 + z*z/nf) * math.Sqrt(p*(1-p)/nf+z*z/(4*nf*nf))
-	return math.Max(0, c-h), math.Min(1, c+h)
-}
-
 func rate(x, n int) string {
 	if n == 0 {
 		return "–"
 	}
-	lo, hi := wilson(x, n)
+	lo, hi := reftest.Wilson(x, n)
 	return fmt.Sprintf("%.1f%% [%.1f, %.1f] (%d/%d)", 100*float64(x)/float64(n), 100*lo, 100*hi, x, n)
 }
 
@@ -145,7 +136,7 @@ func TestValidateCoverage(t *testing.T) {
 		}
 		t.Log(row)
 		t.Logf("%d treated: headline interval unbounded in %s", nt, rate(unbounded, n[Headline]))
-		lo, hi := wilson(cover[Headline], n[Headline])
+		lo, hi := reftest.Wilson(cover[Headline], n[Headline])
 		if n[Headline] < panels*9/10 || hi < 0.93 || lo > 0.97 {
 			t.Errorf("%d treated: headline coverage %s, want 93%%–97%%", nt, rate(cover[Headline], n[Headline]))
 		}
@@ -191,11 +182,11 @@ func TestValidateNullWarnings(t *testing.T) {
 		t.Logf("%d treated: audits with any warning %s", nt, rate(anyWarn, ran))
 		for _, l := range []string{"layer0", "layer1", "layer2", "layer3"} {
 			t.Logf("%d treated, %s: headline rejects %s; warns %s", nt, l, rate(rej[l], n[l]), rate(warn[l], ran))
-			if lo, _ := wilson(rej[l]+warn[l], n[l]); lo > 0.06 {
+			if lo, _ := reftest.Wilson(rej[l]+warn[l], n[l]); lo > 0.06 {
 				t.Errorf("%d treated, %s: false positives %s", nt, l, rate(rej[l]+warn[l], n[l]))
 			}
 		}
-		if lo, _ := wilson(anyWarn, ran); lo > 0.10 {
+		if lo, _ := reftest.Wilson(anyWarn, ran); lo > 0.10 {
 			t.Errorf("%d treated: %s of null audits warn, want at most 10%%", nt, rate(anyWarn, ran))
 		}
 	}
