@@ -21,38 +21,31 @@ func benchStore(b *testing.B) *ingest.Store {
 	return st
 }
 
-// BenchmarkEvents exports the events of an invented world to Parquet files;
-// throughput in events per second.
-func BenchmarkEvents(b *testing.B) {
+// BenchmarkExport exports the events and the changeset records of an
+// invented world to Parquet files; throughput in rows per second.
+func BenchmarkExport(b *testing.B) {
 	st := benchStore(b)
 	ctx := context.Background()
-	dir := b.TempDir()
-	b.ReportAllocs()
-	var rows int64
-	for b.Loop() {
-		m, err := export.Events(ctx, st, dir, export.Options{Store: "bench"})
-		if err != nil {
-			b.Fatal(err)
-		}
-		rows += m.Rows
+	for _, kind := range []string{"events", "changesets"} {
+		b.Run(kind, func(b *testing.B) {
+			dir := b.TempDir()
+			opts := export.Options{Store: "bench"}
+			b.ReportAllocs()
+			var rows int64
+			for b.Loop() {
+				var m export.Manifest
+				var err error
+				if kind == "events" {
+					m, err = export.Events(ctx, st, dir, opts)
+				} else {
+					m, err = export.Changesets(ctx, st, dir, opts)
+				}
+				if err != nil {
+					b.Fatal(err)
+				}
+				rows += m.Rows
+			}
+			b.ReportMetric(float64(rows)/b.Elapsed().Seconds(), kind+"/s")
+		})
 	}
-	b.ReportMetric(float64(rows)/b.Elapsed().Seconds(), "events/s")
-}
-
-// BenchmarkChangesets exports the same world's changeset records;
-// throughput in changesets per second.
-func BenchmarkChangesets(b *testing.B) {
-	st := benchStore(b)
-	ctx := context.Background()
-	dir := b.TempDir()
-	b.ReportAllocs()
-	var rows int64
-	for b.Loop() {
-		m, err := export.Changesets(ctx, st, dir, export.Options{Store: "bench"})
-		if err != nil {
-			b.Fatal(err)
-		}
-		rows += m.Rows
-	}
-	b.ReportMetric(float64(rows)/b.Elapsed().Seconds(), "changesets/s")
 }
