@@ -37,12 +37,19 @@ func smallStore(tb testing.TB, seed uint64) *ingest.Store {
 var stores = map[uint64]*ingest.Store{}
 
 func buildStore(tb testing.TB, seed uint64) *ingest.Store {
-	ctx := context.Background()
+	tb.Helper()
 	cfg := sim.DefaultConfig()
 	cfg.Seed = seed
 	cfg.Cols, cfg.Rows, cfg.Months = 3, 3, 8
 	cfg.Treated, cfg.Waves = 2, 1
 	cfg.Scale = 0.2
+	return buildWorld(tb, cfg)
+}
+
+// buildWorld generates the world of cfg, ingests and classifies it.
+func buildWorld(tb testing.TB, cfg sim.Config) *ingest.Store {
+	tb.Helper()
+	ctx := context.Background()
 	dir := tb.TempDir()
 	if _, err := sim.Generate(ctx, cfg, dir, false); err != nil {
 		tb.Fatalf("generate: %v", err)
