@@ -286,31 +286,42 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 	for _, c := range charts {
 		pg.Charts = append(pg.Charts, htmlChart{Name: c.Name, Caption: c.Caption, SVG: template.HTML(c.SVG)})
 	}
-	if cl := in.Checklist; cl != nil {
-		hc := &htmlChecklist{Notes: cl.Notes, Cautions: cl.Cautions}
-		for _, ref := range []string{checklist.RefMatchedControls, checklist.RefWithoutProvenance, checklist.RefTreatedBefore} {
-			if rows := cl.Neglected(ref); len(rows) > 0 || hasRef(cl, ref) {
-				hc.Reference, hc.Rows = refWords(ref), rows
-				break
-			}
-		}
-		if hc.Reference == "" {
-			hc.Reference = "no reference (no class had enough reference features)"
-		}
-		pg.Checklist = hc
+	if in.Checklist != nil {
+		pg.Checklist = newHTMLChecklist(in.Checklist)
 	}
-	if a := in.Assessment; a != nil {
-		ha := &htmlAssessment{Proposal: a.Proposal, Features: a.Profile.Features, Changesets: a.Profile.Changesets,
-			Footprint: len(a.Footprint), Duplicates: a.DuplicateCount, Distance: a.Distance, Nearest: a.Nearest,
-			Expected: a.Expected, Lacking: a.Lacking, Notes: a.Notes, Cautions: a.Cautions}
-		for _, f := range a.Footprint {
-			if f.Treated {
-				ha.Treated++
-			}
-		}
-		pg.Assessment = ha
+	if in.Assessment != nil {
+		pg.Assessment = newHTMLAssessment(in.Assessment)
 	}
 	return page.Execute(w, pg)
+}
+
+// newHTMLChecklist picks the checklist's reference and its flagged rows, as
+// the HTML and wiki pages show them.
+func newHTMLChecklist(cl *checklist.Checklist) *htmlChecklist {
+	hc := &htmlChecklist{Notes: cl.Notes, Cautions: cl.Cautions}
+	for _, ref := range []string{checklist.RefMatchedControls, checklist.RefWithoutProvenance, checklist.RefTreatedBefore} {
+		if rows := cl.Neglected(ref); len(rows) > 0 || hasRef(cl, ref) {
+			hc.Reference, hc.Rows = refWords(ref), rows
+			break
+		}
+	}
+	if hc.Reference == "" {
+		hc.Reference = "no reference (no class had enough reference features)"
+	}
+	return hc
+}
+
+// newHTMLAssessment is the assessment as the HTML and wiki pages show it.
+func newHTMLAssessment(a *proposal.Assessment) *htmlAssessment {
+	ha := &htmlAssessment{Proposal: a.Proposal, Features: a.Profile.Features, Changesets: a.Profile.Changesets,
+		Footprint: len(a.Footprint), Duplicates: a.DuplicateCount, Distance: a.Distance, Nearest: a.Nearest,
+		Expected: a.Expected, Lacking: a.Lacking, Notes: a.Notes, Cautions: a.Cautions}
+	for _, f := range a.Footprint {
+		if f.Treated {
+			ha.Treated++
+		}
+	}
+	return ha
 }
 
 // splitWarnings puts the warnings about outcomes finer than the four layers

@@ -262,7 +262,7 @@ func TestWriteFiles(t *testing.T) {
 	if err := Write(dir, in); err != nil {
 		t.Fatal(err)
 	}
-	want := []string{FileMarkdown, FileHTML, FileJSON, FileUnits}
+	want := []string{FileMarkdown, FileHTML, FileWiki, FileJSON, FileUnits}
 	if got := Files(in); strings.Join(got, ",") != strings.Join(want, ",") {
 		t.Errorf("Files = %v, want %v (no panel without a study)", got, want)
 	}
@@ -313,7 +313,7 @@ func TestWithoutAudit(t *testing.T) {
 	if err := Write(dir, in); err != nil {
 		t.Fatal(err)
 	}
-	if got := strings.Join(Files(in), ","); got != "report.md,report.html,checklist.json" {
+	if got := strings.Join(Files(in), ","); got != "report.md,report.html,report.wiki,checklist.json" {
 		t.Errorf("Files = %s", got)
 	}
 	page, _ := os.ReadFile(filepath.Join(dir, FileHTML))
