@@ -145,6 +145,10 @@ func chartEstimator(rows []did.EventStudyRow, layer string) string {
 // month marked. ok is false when the audit has no event-study rows for the
 // layer.
 func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool, err error) {
+	return eventStudyChart(rows, layer, renderSVG)
+}
+
+func eventStudyChart(rows []did.EventStudyRow, layer string, render renderFunc) (svg []byte, ok bool, err error) {
 	est := chartEstimator(rows, layer)
 	if est == "" {
 		return nil, false, nil
@@ -234,7 +238,7 @@ func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool,
 	p.Legend.Left = true
 	p.X.Min, p.X.Max = xmin-0.5, xmax+0.5
 	p.Y.Min, p.Y.Max = lo-pad, hi+pad+0.35*(hi-lo+2*pad) // room for the legend
-	svg, err = renderSVG(p, 16*vg.Centimeter, 9*vg.Centimeter, "Event study of "+layer+" edits ("+est+")")
+	svg, err = render(p, 16*vg.Centimeter, 9*vg.Centimeter, "Event study of "+layer+" edits ("+est+")")
 	return svg, err == nil, err
 }
 
@@ -242,6 +246,10 @@ func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool,
 // and after matching, with the ±0.1 lines (Austin 2009's rule of thumb).
 // ok is false when there are no balance rows.
 func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
+	return balanceChart(rows, renderSVG)
+}
+
+func balanceChart(rows []audit.BalanceJSON, render renderFunc) (svg []byte, ok bool, err error) {
 	if len(rows) == 0 {
 		return nil, false, nil
 	}
@@ -296,7 +304,7 @@ func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
 	p.Y.Min, p.Y.Max = -0.5, top
 	p.X.Min, p.X.Max = -lim, lim
 	h := vg.Length(3+0.7*float64(len(rows))) * vg.Centimeter
-	svg, err = renderSVG(p, 16*vg.Centimeter, h, "Standardized mean differences before and after matching")
+	svg, err = render(p, 16*vg.Centimeter, h, "Standardized mean differences before and after matching")
 	return svg, err == nil, err
 }
 
@@ -381,6 +389,10 @@ func kmText(km float64) string {
 // and a scale bar in kilometres, in an equirectangular projection scaled by
 // the cosine of the mid latitude. ok is false when there is nothing to draw.
 func MapSVG(shapes Shapes, list []study.UnitInfo) (svg []byte, ok bool, err error) {
+	return mapChart(shapes, list, renderSVG)
+}
+
+func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []byte, ok bool, err error) {
 	if shapes == nil || shapes.Len() == 0 {
 		return nil, false, nil
 	}
@@ -461,7 +473,7 @@ func MapSVG(shapes Shapes, list []study.UnitInfo) (svg []byte, ok bool, err erro
 	width := 16 * vg.Centimeter
 	aspect := (p.Y.Max - p.Y.Min) / (p.X.Max - p.X.Min)
 	height := vg.Length(math.Min(math.Max(aspect, 0.3), 1.6)) * width
-	svg, err = renderSVG(p, width, height+vg.Centimeter, "Map of the study areas by role")
+	svg, err = render(p, width, height+vg.Centimeter, "Map of the study areas by role")
 	return svg, err == nil, err
 }
 

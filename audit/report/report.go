@@ -53,7 +53,7 @@ const (
 	FilePanel      = "panel.csv"
 	FileChecklist  = "checklist.json"
 	FileAssessment = "assessment.json"
-	DirCharts      = "charts" // one standalone SVG file per chart, NAME.svg
+	DirCharts      = "charts" // each chart as NAME.svg and NAME.png
 )
 
 // Files returns the names of the files Write creates for in, in writing order.
@@ -129,7 +129,7 @@ func Write(dir string, in Input) error {
 			return err
 		}
 	}
-	return nil
+	return writeChartPNGs(dir, in, charts) // charts/NAME.png beside each SVG
 }
 
 // writeAtomic writes path through a temporary file in the same folder.
