@@ -25,8 +25,10 @@ import (
 )
 
 // Colours of the Okabe–Ito palette (Okabe & Ito 2008, "Color Universal
-// Design"), chosen so that readers with the common colour-vision
-// deficiencies can still tell the groups apart.
+// Design") and three greys, chosen so that readers with the common
+// colour-vision deficiencies can still tell the groups apart: every pair a
+// chart contrasts keeps a CIEDE2000 difference of at least minDeltaE2000
+// under simulated protanopia, deuteranopia and tritanopia (cvd_test.go).
 var (
 	okBlack     = color.NRGBA{0x00, 0x00, 0x00, 0xff}
 	okOrange    = color.NRGBA{0xe6, 0x9f, 0x00, 0xff}
@@ -34,9 +36,11 @@ var (
 	okGreen     = color.NRGBA{0x00, 0x9e, 0x73, 0xff}
 	okBlue      = color.NRGBA{0x00, 0x72, 0xb2, 0xff}
 	okVermilion = color.NRGBA{0xd5, 0x5e, 0x00, 0xff}
+	okYellow    = color.NRGBA{0xf0, 0xe4, 0x42, 0xff}
 	okPurple    = color.NRGBA{0xcc, 0x79, 0xa7, 0xff}
-	okGrey      = color.NRGBA{0xbb, 0xbb, 0xbb, 0xff} // neutral, outside the palette
-	okBand      = color.NRGBA{0x56, 0xb4, 0xe9, 0x60} // sky blue, translucent
+	okGrey      = color.NRGBA{0xcc, 0xcc, 0xcc, 0xff} // light neutral, outside the palette
+	okDarkGrey  = color.NRGBA{0x55, 0x55, 0x55, 0xff} // dark neutral, outside the palette
+	okBand      = color.NRGBA{0x56, 0xb4, 0xe9, 0x90} // sky blue, translucent
 )
 
 // statusColour is the map fill of each unit role.
@@ -47,9 +51,9 @@ func statusColour(s study.UnitStatus) color.Color {
 	case study.StatusControl:
 		return okBlue
 	case study.StatusDropped:
-		return okPurple
+		return okYellow
 	case study.StatusExcluded:
-		return okOrange
+		return okDarkGrey
 	}
 	return okGrey
 }
@@ -270,7 +274,7 @@ func balanceChart(rows []audit.BalanceJSON, render renderFunc) (svg []byte, ok b
 	top := float64(len(rows)) - 0.5 + 1.2 // room for the legend
 	for _, x := range []float64{-match.BalanceThreshold, match.BalanceThreshold} {
 		l, _ := plotter.NewLine(plotter.XYs{{X: x, Y: -0.5}, {X: x, Y: top}})
-		l.Color = okGreen
+		l.Color = okDarkGrey
 		l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
 		l.Width = vg.Points(1)
 		p.Add(l)
