@@ -92,7 +92,7 @@ details summary { cursor: pointer; color: #8a3c00; margin: .3rem 0; }
 .ok { border-left: 6px solid #009e73; background: #eef8f4; padding: .6rem 1rem; }
 table { border-collapse: collapse; width: 100%; margin: .6rem 0 1rem; font-size: .92rem; background: #fff; }
 @media (max-width: 48rem) { table { display: block; overflow-x: auto; } main { padding: 1.25rem .75rem 3rem; } }
-h1, h2, h3, p, li, dd, dt, td, th { overflow-wrap: anywhere; }
+h1, h2, h3, p, li, dd, dt { overflow-wrap: anywhere; }
 th, td { border-bottom: 1px solid var(--rule); padding: .35rem .5rem; text-align: left; vertical-align: top; }
 th { background: #eef1f4; font-weight: 600; }
 th.n { text-align: right; }
