@@ -10,32 +10,40 @@ import (
 // FileWiki is the MediaWiki page Write creates, for the OSM wiki.
 const FileWiki = "report.wiki"
 
-// wikiEscapes are the characters that start markup somewhere in MediaWiki
+// wikiEscapes are the characters that open markup anywhere in MediaWiki
 // wikitext: links ([ ]), templates and parser functions ({ }), table cells
-// and pipes (|, !), bold and italic ('), headings (=), signatures (~), HTML
-// and entities (< > &), behaviour switches (__NOTOC__: _), list and
-// definition markup at a line start (* # : ;), rules (-), and the colon of
-// free web addresses (https://...) that MediaWiki links without brackets.
+// and pipes (|, !), bold and italic ('), signatures (~), HTML and entities
+// (< > &), and the colon of free web addresses (https://...), which
+// MediaWiki links without brackets, and of definition lines (; term : text).
 // Each becomes a numeric character reference, which the parser shows as the
 // character and never reads as markup.
-const wikiEscapes = "[]{}|!'=~<>&_*#:;-"
+const wikiEscapes = "[]{}|!'~<>&:;"
+
+// wikiLineStart are the characters that open markup at a line start: lists
+// (* #), headings (=) and rules (-). wikiText escapes them as the first
+// character, since every escaped text is placed at a line start or after
+// loadwake's own markup.
+const wikiLineStart = "*#=-"
 
 // wikiText escapes text from OSM data (names, tags, accounts) and from
-// loadwake's own sentences for MediaWiki: every character in wikiEscapes
-// becomes a numeric character reference, line breaks and tabs become spaces
-// (a line break could start a heading, list or table row), and the magic
-// words ISBN, RFC and PMID lose their automatic link by escaping their first
-// letter. The page shows the text as written and nothing in it becomes a
-// link, template, table break, bold or italic run, signature or HTML.
+// loadwake's own sentences for MediaWiki: every character in wikiEscapes,
+// a first character in wikiLineStart, and each underscore next to another
+// (behaviour switches such as __NOTOC__) become numeric character
+// references; line breaks and tabs become spaces (a line break could start
+// a heading, list or table row); and the magic words ISBN, RFC and PMID lose
+// their automatic link by escaping their first letter. The page shows the
+// text as written and nothing in it becomes a link, template, table break,
+// bold or italic run, signature, heading or HTML.
 func wikiText(s string) string {
 	var b strings.Builder
 	for i, r := range s {
 		switch {
 		case r == '\n' || r == '\r' || r == '\t':
 			b.WriteByte(' ')
-		case strings.ContainsRune(wikiEscapes, r):
-			fmt.Fprintf(&b, "&#%d;", r)
-		case (r == 'I' || r == 'R' || r == 'P') && magicLinkAt(s[i:]):
+		case strings.ContainsRune(wikiEscapes, r),
+			i == 0 && strings.ContainsRune(wikiLineStart, r),
+			r == '_' && (strings.HasPrefix(s[i+1:], "_") || strings.HasSuffix(s[:i], "_")),
+			(r == 'I' || r == 'R' || r == 'P') && magicLinkAt(s[i:]):
 			fmt.Fprintf(&b, "&#%d;", r)
 		default:
 			b.WriteRune(r)
