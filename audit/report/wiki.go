@@ -20,10 +20,11 @@ const FileWiki = "report.wiki"
 const wikiEscapes = "[]{}|!'~<>&:;"
 
 // wikiLineStart are the characters that open markup at a line start: lists
-// (* #), headings (=) and rules (-). wikiText escapes them as the first
+// (* #), headings (=), rules (-) and preformatted text (a space). wikiText
+// escapes them as the first
 // character, since every escaped text is placed at a line start or after
 // loadwake's own markup.
-const wikiLineStart = "*#=-"
+const wikiLineStart = "*#=- "
 
 // wikiText escapes text from OSM data (names, tags, accounts) and from
 // loadwake's own sentences for MediaWiki: every character in wikiEscapes,
