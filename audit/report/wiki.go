@@ -21,9 +21,8 @@ const wikiEscapes = "[]{}|!'~<>&:;"
 
 // wikiLineStart are the characters that open markup at a line start: lists
 // (* #), headings (=), rules (-) and preformatted text (a space). wikiText
-// escapes them as the first
-// character, since every escaped text is placed at a line start or after
-// loadwake's own markup.
+// escapes them as the first character, since every escaped text is placed
+// at a line start or after loadwake's own markup.
 const wikiLineStart = "*#=- "
 
 // wikiText escapes text from OSM data (names, tags, accounts) and from
