@@ -8,6 +8,7 @@ require (
 	github.com/duckdb/duckdb-go/v2 v2.20000.0
 	github.com/dustin/go-humanize v1.0.1
 	github.com/klauspost/compress v1.20.4
+	github.com/lucasb-eyer/go-colorful v1.4.1
 	github.com/parquet-go/parquet-go v0.32.1
 	github.com/paulmach/orb v0.14.0
 	github.com/paulmach/osm v0.8.0

@@ -25,8 +25,10 @@ import (
 )
 
 // Colours of the Okabe–Ito palette (Okabe & Ito 2008, "Color Universal
-// Design"), chosen so that readers with the common colour-vision
-// deficiencies can still tell the groups apart.
+// Design") and three greys, chosen so that readers with the common
+// colour-vision deficiencies can still tell the groups apart: every pair a
+// chart contrasts keeps a CIEDE2000 difference of at least minDeltaE2000
+// under simulated protanopia, deuteranopia and tritanopia (cvd_test.go).
 var (
 	okBlack     = color.NRGBA{0x00, 0x00, 0x00, 0xff}
 	okOrange    = color.NRGBA{0xe6, 0x9f, 0x00, 0xff}
@@ -34,9 +36,11 @@ var (
 	okGreen     = color.NRGBA{0x00, 0x9e, 0x73, 0xff}
 	okBlue      = color.NRGBA{0x00, 0x72, 0xb2, 0xff}
 	okVermilion = color.NRGBA{0xd5, 0x5e, 0x00, 0xff}
+	okYellow    = color.NRGBA{0xf0, 0xe4, 0x42, 0xff}
 	okPurple    = color.NRGBA{0xcc, 0x79, 0xa7, 0xff}
-	okGrey      = color.NRGBA{0xbb, 0xbb, 0xbb, 0xff} // neutral, outside the palette
-	okBand      = color.NRGBA{0x56, 0xb4, 0xe9, 0x60} // sky blue, translucent
+	okGrey      = color.NRGBA{0xcc, 0xcc, 0xcc, 0xff} // light neutral, outside the palette
+	okDarkGrey  = color.NRGBA{0x55, 0x55, 0x55, 0xff} // dark neutral, outside the palette
+	okBand      = color.NRGBA{0x56, 0xb4, 0xe9, 0x90} // sky blue, translucent
 )
 
 // statusColour is the map fill of each unit role.
@@ -47,9 +51,9 @@ func statusColour(s study.UnitStatus) color.Color {
 	case study.StatusControl:
 		return okBlue
 	case study.StatusDropped:
-		return okPurple
+		return okYellow
 	case study.StatusExcluded:
-		return okOrange
+		return okDarkGrey
 	}
 	return okGrey
 }
@@ -145,6 +149,10 @@ func chartEstimator(rows []did.EventStudyRow, layer string) string {
 // month marked. ok is false when the audit has no event-study rows for the
 // layer.
 func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool, err error) {
+	return eventStudyChart(rows, layer, renderSVG)
+}
+
+func eventStudyChart(rows []did.EventStudyRow, layer string, render renderFunc) (svg []byte, ok bool, err error) {
 	est := chartEstimator(rows, layer)
 	if est == "" {
 		return nil, false, nil
@@ -234,7 +242,7 @@ func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool,
 	p.Legend.Left = true
 	p.X.Min, p.X.Max = xmin-0.5, xmax+0.5
 	p.Y.Min, p.Y.Max = lo-pad, hi+pad+0.35*(hi-lo+2*pad) // room for the legend
-	svg, err = renderSVG(p, 16*vg.Centimeter, 9*vg.Centimeter, "Event study of "+layer+" edits ("+est+")")
+	svg, err = render(p, 16*vg.Centimeter, 9*vg.Centimeter, "Event study of "+layer+" edits ("+est+")")
 	return svg, err == nil, err
 }
 
@@ -242,6 +250,10 @@ func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool,
 // and after matching, with the ±0.1 lines (Austin 2009's rule of thumb).
 // ok is false when there are no balance rows.
 func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
+	return balanceChart(rows, renderSVG)
+}
+
+func balanceChart(rows []audit.BalanceJSON, render renderFunc) (svg []byte, ok bool, err error) {
 	if len(rows) == 0 {
 		return nil, false, nil
 	}
@@ -262,7 +274,7 @@ func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
 	top := float64(len(rows)) - 0.5 + 1.2 // room for the legend
 	for _, x := range []float64{-match.BalanceThreshold, match.BalanceThreshold} {
 		l, _ := plotter.NewLine(plotter.XYs{{X: x, Y: -0.5}, {X: x, Y: top}})
-		l.Color = okGreen
+		l.Color = okDarkGrey
 		l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
 		l.Width = vg.Points(1)
 		p.Add(l)
@@ -296,7 +308,7 @@ func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
 	p.Y.Min, p.Y.Max = -0.5, top
 	p.X.Min, p.X.Max = -lim, lim
 	h := vg.Length(3+0.7*float64(len(rows))) * vg.Centimeter
-	svg, err = renderSVG(p, 16*vg.Centimeter, h, "Standardized mean differences before and after matching")
+	svg, err = render(p, 16*vg.Centimeter, h, "Standardized mean differences before and after matching")
 	return svg, err == nil, err
 }
 
@@ -381,6 +393,10 @@ func kmText(km float64) string {
 // and a scale bar in kilometres, in an equirectangular projection scaled by
 // the cosine of the mid latitude. ok is false when there is nothing to draw.
 func MapSVG(shapes Shapes, list []study.UnitInfo) (svg []byte, ok bool, err error) {
+	return mapChart(shapes, list, renderSVG)
+}
+
+func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []byte, ok bool, err error) {
 	if shapes == nil || shapes.Len() == 0 {
 		return nil, false, nil
 	}
@@ -461,7 +477,7 @@ func MapSVG(shapes Shapes, list []study.UnitInfo) (svg []byte, ok bool, err erro
 	width := 16 * vg.Centimeter
 	aspect := (p.Y.Max - p.Y.Min) / (p.X.Max - p.X.Min)
 	height := vg.Length(math.Min(math.Max(aspect, 0.3), 1.6)) * width
-	svg, err = renderSVG(p, width, height+vg.Centimeter, "Map of the study areas by role")
+	svg, err = render(p, width, height+vg.Centimeter, "Map of the study areas by role")
 	return svg, err == nil, err
 }
 

@@ -91,6 +91,8 @@ p.lead { font-size: 1.05rem; }
 details summary { cursor: pointer; color: #8a3c00; margin: .3rem 0; }
 .ok { border-left: 6px solid #009e73; background: #eef8f4; padding: .6rem 1rem; }
 table { border-collapse: collapse; width: 100%; margin: .6rem 0 1rem; font-size: .92rem; background: #fff; }
+@media (max-width: 48rem) { table { display: block; overflow-x: auto; } main { padding: 1.25rem .75rem 3rem; } }
+h1, h2, h3, p, li, dd, dt { overflow-wrap: anywhere; }
 th, td { border-bottom: 1px solid var(--rule); padding: .35rem .5rem; text-align: left; vertical-align: top; }
 th { background: #eef1f4; font-weight: 600; }
 th.n { text-align: right; }
@@ -98,10 +100,13 @@ td.n { text-align: right; font-variant-numeric: tabular-nums; white-space: nowra
 .headline td.n { font-size: 1.05rem; font-weight: 600; }
 dl.glossary dt { font-weight: 600; margin-top: .6rem; }
 dl.glossary dd { margin: .1rem 0 0 1.25rem; color: var(--muted); }
-figure { margin: 1.25rem 0 1.75rem; background: #fff; border: 1px solid var(--rule); padding: .75rem; }
-figure svg { display: block; width: 100%; height: auto; max-height: 40rem; }
+figure { margin: 1.25rem 0 1.75rem; background: #fff; border: 1px solid var(--rule); padding: .75rem; min-width: 0; overflow-x: auto; }
+/* Charts are drawn 453.5 units wide with 9-unit text at the smallest: at
+   36rem (576 px) or wider that text is at least 11.4 px. Narrower screens
+   scroll the figure box sideways rather than shrink the text. */
+figure svg { display: block; width: 100%; min-width: 36rem; height: auto; }
 figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
-.charts { display: grid; grid-template-columns: 1fr; max-width: 48rem; }
+.charts { display: grid; grid-template-columns: minmax(0, 1fr); max-width: 48rem; }
 .invented { border: 3px solid var(--warn); background: #fff4ea; padding: .6rem 1rem; }
 .provenance dt { font-weight: 600; margin-top: .4rem; }
 .provenance dd { margin-left: 1rem; overflow-wrap: anywhere; }
@@ -286,31 +291,42 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 	for _, c := range charts {
 		pg.Charts = append(pg.Charts, htmlChart{Name: c.Name, Caption: c.Caption, SVG: template.HTML(c.SVG)})
 	}
-	if cl := in.Checklist; cl != nil {
-		hc := &htmlChecklist{Notes: cl.Notes, Cautions: cl.Cautions}
-		for _, ref := range []string{checklist.RefMatchedControls, checklist.RefWithoutProvenance, checklist.RefTreatedBefore} {
-			if rows := cl.Neglected(ref); len(rows) > 0 || hasRef(cl, ref) {
-				hc.Reference, hc.Rows = refWords(ref), rows
-				break
-			}
-		}
-		if hc.Reference == "" {
-			hc.Reference = "no reference (no class had enough reference features)"
-		}
-		pg.Checklist = hc
+	if in.Checklist != nil {
+		pg.Checklist = newHTMLChecklist(in.Checklist)
 	}
-	if a := in.Assessment; a != nil {
-		ha := &htmlAssessment{Proposal: a.Proposal, Features: a.Profile.Features, Changesets: a.Profile.Changesets,
-			Footprint: len(a.Footprint), Duplicates: a.DuplicateCount, Distance: a.Distance, Nearest: a.Nearest,
-			Expected: a.Expected, Lacking: a.Lacking, Notes: a.Notes, Cautions: a.Cautions}
-		for _, f := range a.Footprint {
-			if f.Treated {
-				ha.Treated++
-			}
-		}
-		pg.Assessment = ha
+	if in.Assessment != nil {
+		pg.Assessment = newHTMLAssessment(in.Assessment)
 	}
 	return page.Execute(w, pg)
+}
+
+// newHTMLChecklist picks the checklist's reference and its flagged rows, as
+// the HTML and wiki pages show them.
+func newHTMLChecklist(cl *checklist.Checklist) *htmlChecklist {
+	hc := &htmlChecklist{Notes: cl.Notes, Cautions: cl.Cautions}
+	for _, ref := range []string{checklist.RefMatchedControls, checklist.RefWithoutProvenance, checklist.RefTreatedBefore} {
+		if rows := cl.Neglected(ref); len(rows) > 0 || hasRef(cl, ref) {
+			hc.Reference, hc.Rows = refWords(ref), rows
+			break
+		}
+	}
+	if hc.Reference == "" {
+		hc.Reference = "no reference (no class had enough reference features)"
+	}
+	return hc
+}
+
+// newHTMLAssessment is the assessment as the HTML and wiki pages show it.
+func newHTMLAssessment(a *proposal.Assessment) *htmlAssessment {
+	ha := &htmlAssessment{Proposal: a.Proposal, Features: a.Profile.Features, Changesets: a.Profile.Changesets,
+		Footprint: len(a.Footprint), Duplicates: a.DuplicateCount, Distance: a.Distance, Nearest: a.Nearest,
+		Expected: a.Expected, Lacking: a.Lacking, Notes: a.Notes, Cautions: a.Cautions}
+	for _, f := range a.Footprint {
+		if f.Treated {
+			ha.Treated++
+		}
+	}
+	return ha
 }
 
 // splitWarnings puts the warnings about outcomes finer than the four layers

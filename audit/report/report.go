@@ -53,12 +53,12 @@ const (
 	FilePanel      = "panel.csv"
 	FileChecklist  = "checklist.json"
 	FileAssessment = "assessment.json"
-	DirCharts      = "charts" // one standalone SVG file per chart, NAME.svg
+	DirCharts      = "charts" // each chart as NAME.svg and NAME.png
 )
 
 // Files returns the names of the files Write creates for in, in writing order.
 func Files(in Input) []string {
-	out := []string{FileMarkdown, FileHTML}
+	out := []string{FileMarkdown, FileHTML, FileWiki}
 	if in.Audit != nil {
 		out = append(out, FileJSON)
 	}
@@ -99,6 +99,7 @@ func Write(dir string, in Input) error {
 	writers := map[string]func(io.Writer) error{
 		FileMarkdown: func(w io.Writer) error { return WriteMarkdown(w, in) },
 		FileHTML:     func(w io.Writer) error { return writeHTML(w, in, charts) },
+		FileWiki:     func(w io.Writer) error { return WriteWiki(w, in) },
 		FileUnits:    func(w io.Writer) error { return WriteUnitsGeoJSON(w, in.Units, in.Audit) },
 		FilePanel:    func(w io.Writer) error { return panel.WriteCSV(w, in.Audit.Study.Panel) },
 	}
@@ -128,7 +129,7 @@ func Write(dir string, in Input) error {
 			return err
 		}
 	}
-	return nil
+	return writeChartPNGs(dir, in, charts) // charts/NAME.png beside each SVG
 }
 
 // writeAtomic writes path through a temporary file in the same folder.
