@@ -16,7 +16,7 @@ import (
 )
 
 func TestRunAuditJSONContract(t *testing.T) {
-	w := worldtest.Build(t, sim.DefaultConfig())
+	w := worldtest.Shared(t, sim.DefaultConfig())
 	ep, err := episode.Find(w.Episodes, w.Episodes[0].ID)
 	if err != nil {
 		t.Fatal(err)

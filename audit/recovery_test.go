@@ -8,6 +8,7 @@ import (
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 	"github.com/loadwake/loadwake/audit/internal/worldtest"
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/rules"
@@ -57,7 +58,7 @@ func TestAuditRecoversPlantedEffects(t *testing.T) {
 	if testing.Short() {
 		t.Skip("simulates, ingests and audits a world")
 	}
-	w := worldtest.Build(t, sim.DefaultConfig())
+	w := worldtest.Shared(t, sim.DefaultConfig())
 	rep := auditWhole(t, w, 499)
 	truth := map[string]float64{
 		"geometry":    w.Truth.Effects.Geometry - 1,
@@ -94,8 +95,8 @@ func countTreated(t *sim.Truth) int {
 // TestAuditNullWorld: with every multiplier 1 the estimates show no effect
 // (each 95% interval covers zero).
 func TestAuditNullWorld(t *testing.T) {
-	if testing.Short() {
-		t.Skip("simulates, ingests and audits a world")
+	if testing.Short() || !simtest.Validate {
+		t.Skip("a default-size world; make validate runs it beside the 200-world null study")
 	}
 	cfg := sim.DefaultConfig()
 	cfg.Seed = 5
@@ -120,7 +121,7 @@ func TestAuditFlagsDivergingTrends(t *testing.T) {
 	cfg := sim.DefaultConfig()
 	cfg.TrendSelection = true
 	w := worldtest.Build(t, cfg)
-	rep := auditWhole(t, w, 499)
+	rep := auditWhole(t, w, 199)
 	flagged := 0
 	for _, layer := range []string{"geometry", "attribute", "new_feature"} {
 		e := effectOf(t, rep, layer, "ppml-twfe")

@@ -6,9 +6,12 @@ package worldtest
 
 import (
 	"context"
+	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/episode"
@@ -37,36 +40,83 @@ func Build(tb testing.TB, cfg sim.Config) *World {
 	return BuildWith(tb, cfg, rules.Default())
 }
 
-// BuildWith is Build with the rules r.
-func BuildWith(tb testing.TB, cfg sim.Config, r *rules.RuleSet) *World {
+// shared holds the worlds Shared built, one per configuration, for the life
+// of the test binary: tests that only read a world share one build.
+var shared struct {
+	sync.Mutex
+	worlds map[string]*World
+}
+
+// Shared is Build for tests that only read the world (no writes to its
+// store): the first call with a configuration builds it, later calls in the
+// same test binary return the same world. Its store stays open until the
+// binary exits.
+func Shared(tb testing.TB, cfg sim.Config) *World {
 	tb.Helper()
-	ctx := context.Background()
-	dir := tb.TempDir()
-	truth, err := sim.Generate(ctx, cfg, dir, false)
-	if err != nil {
-		tb.Fatalf("generate: %v", err)
-	}
-	st, err := ingest.OpenInMemory(ingest.DefaultOptions())
+	key, err := json.Marshal(cfg)
 	if err != nil {
 		tb.Fatal(err)
 	}
-	tb.Cleanup(func() { st.Close() })
+	shared.Lock()
+	defer shared.Unlock()
+	if w, ok := shared.worlds[string(key)]; ok {
+		return w
+	}
+	dir, err := os.MkdirTemp("", "worldtest-")
+	if err != nil {
+		tb.Fatal(err)
+	}
+	w, err := build(context.Background(), cfg, rules.Default(), dir)
+	if err != nil {
+		tb.Fatal(err)
+	}
+	if shared.worlds == nil {
+		shared.worlds = map[string]*World{}
+	}
+	shared.worlds[string(key)] = w
+	return w
+}
+
+// BuildWith is Build with the rules r.
+func BuildWith(tb testing.TB, cfg sim.Config, r *rules.RuleSet) *World {
+	tb.Helper()
+	w, err := build(context.Background(), cfg, r, tb.TempDir())
+	if err != nil {
+		tb.Fatal(err)
+	}
+	tb.Cleanup(func() { w.Store.Close() })
+	return w
+}
+
+func build(ctx context.Context, cfg sim.Config, r *rules.RuleSet, dir string) (*World, error) {
+	truth, err := sim.Generate(ctx, cfg, dir, false)
+	if err != nil {
+		return nil, fmt.Errorf("generate: %w", err)
+	}
+	st, err := ingest.OpenInMemory(ingest.DefaultOptions())
+	if err != nil {
+		return nil, err
+	}
+	fail := func(step string, err error) (*World, error) {
+		st.Close()
+		return nil, fmt.Errorf("%s: %w", step, err)
+	}
 	paths := []string{filepath.Join(dir, sim.HistoryFile), filepath.Join(dir, sim.ChangesetsFile)}
 	if _, err := ingest.Ingest(ctx, st, paths, ingest.IngestOptions{}); err != nil {
-		tb.Fatalf("ingest: %v", err)
+		return fail("ingest", err)
 	}
 	if _, err := layers.Run(ctx, st, r, layers.Options{}); err != nil {
-		tb.Fatalf("classify: %v", err)
+		return fail("classify", err)
 	}
 	eps, err := episode.Detect(ctx, st, r, episode.Options{})
 	if err != nil {
-		tb.Fatalf("detect: %v", err)
+		return fail("detect", err)
 	}
 	units, err := spatial.Parse(filepath.Join(dir, sim.DistrictsFile), spatial.Options{})
 	if err != nil {
-		tb.Fatalf("units: %v", err)
+		return fail("units", err)
 	}
-	return &World{Dir: dir, Store: st, Truth: truth, Rules: r, Episodes: eps, Units: units}
+	return &World{Dir: dir, Store: st, Truth: truth, Rules: r, Episodes: eps, Units: units}, nil
 }
 
 // Named returns the episode made of the world's planted import changesets
