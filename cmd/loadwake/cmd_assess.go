@@ -6,6 +6,7 @@ import (
 	"io"
 	"iter"
 	"path/filepath"
+	"time"
 
 	"github.com/paulmach/osm"
 	"github.com/spf13/cobra"
@@ -110,7 +111,7 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 		return err
 	}
 	defer st.Close()
-	units, err := storeUnits(ctx, st, o.units, o.unitID, p.Bound)
+	units, err := storeUnits(ctx, st, o.units, o.unitID, p.Bound, time.Time{})
 	if err != nil {
 		return err
 	}

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"io/fs"
 	"os"
+	"time"
 
 	"github.com/paulmach/orb"
 	"github.com/spf13/cobra"
@@ -257,16 +258,20 @@ func (s *studyFlags) open(cmd *cobra.Command, g *globalOptions) (*studyInputs, e
 	if err != nil {
 		return fail(err)
 	}
-	if in.units, err = storeUnits(ctx, st, s.units, s.unitID, orb.Bound{}); err != nil {
+	// admin:LEVEL boundaries are taken as they were when the study window opens.
+	at := time.Date(in.episode.First.Year(), in.episode.First.Month(), 1, 0, 0, 0, 0, time.UTC).AddDate(0, -s.before, 0)
+	if in.units, err = storeUnits(ctx, st, s.units, s.unitID, orb.Bound{}, at); err != nil {
 		return fail(err)
 	}
 	return in, nil
 }
 
 // storeUnits reads the units of spec; tiles:Z cover the store's area, grown
-// by extra when extra is not zero (a proposal's bound).
-func storeUnits(ctx context.Context, st *ingest.Store, spec, idProp string, extra orb.Bound) (*spatial.Units, error) {
-	uo := spatial.Options{IDProperty: idProp, Bound: extra}
+// by extra when extra is not zero (a proposal's bound); admin:LEVEL units are
+// assembled from the store's boundary relations as they were at at (zero: the
+// latest).
+func storeUnits(ctx context.Context, st *ingest.Store, spec, idProp string, extra orb.Bound, at time.Time) (*spatial.Units, error) {
+	uo := spatial.Options{IDProperty: idProp, Bound: extra, Store: st, At: at}
 	stats, err := st.Stats(ctx)
 	if err != nil {
 		return nil, err
@@ -277,5 +282,5 @@ func storeUnits(ctx context.Context, st *ingest.Store, spec, idProp string, extr
 	case stats.HasBBox:
 		uo.Bound = uo.Bound.Union(stats.BBox)
 	}
-	return spatial.Parse(spec, uo)
+	return spatial.Build(ctx, spec, uo)
 }
