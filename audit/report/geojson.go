@@ -60,6 +60,9 @@ func WriteUnitsGeoJSON(w io.Writer, shapes Shapes, r *audit.Report) error {
 			u = study.UnitInfo{ID: id, Status: study.StatusCandidate}
 		}
 		f.Properties["id"] = id
+		if n, ok := shapes.(interface{ Name(int) string }); ok && n.Name(i) != "" {
+			f.Properties["name"] = n.Name(i) // the unit's name (admin:LEVEL units, GeoJSON name properties)
+		}
 		f.Properties["status"] = u.Status.String()
 		if u.Reason != "" {
 			f.Properties["reason"] = u.Reason

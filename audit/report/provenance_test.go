@@ -2,12 +2,14 @@ package report
 
 import (
 	"bytes"
+	"encoding/json"
 	"regexp"
 	"slices"
 	"strings"
 	"testing"
 
 	"github.com/loadwake/loadwake/audit"
+	"github.com/paulmach/orb"
 	"github.com/yuin/goldmark"
 	"github.com/yuin/goldmark/extension"
 )
@@ -77,5 +79,39 @@ func TestProvenanceHTML(t *testing.T) {
 	// The invented-data banner comes before the first section.
 	if i, j := strings.Index(h, `class="invented"`), strings.Index(h, "<section"); i < 0 || i > j {
 		t.Errorf("banner at %d, first section at %d", i, j)
+	}
+}
+
+// namedShapes are two square units with names, as admin:LEVEL units have.
+type namedShapes struct{}
+
+func (namedShapes) Len() int          { return 2 }
+func (namedShapes) ID(i int) string   { return []string{"r1", "r2"}[i] }
+func (namedShapes) Name(i int) string { return []string{"Harbour Ward", ""}[i] }
+func (namedShapes) Geometry(i int) orb.Geometry {
+	x := float64(i)
+	return orb.Polygon{{{x, 0}, {x + 1, 0}, {x + 1, 1}, {x, 1}, {x, 0}}}
+}
+
+// TestUnitsGeoJSONNames: a unit's name goes into units.geojson beside its id;
+// a unit without one gets no name property.
+func TestUnitsGeoJSONNames(t *testing.T) {
+	var b bytes.Buffer
+	if err := WriteUnitsGeoJSON(&b, namedShapes{}, fixedAudit()); err != nil {
+		t.Fatal(err)
+	}
+	var fc struct {
+		Features []struct {
+			Properties map[string]any `json:"properties"`
+		} `json:"features"`
+	}
+	if err := json.Unmarshal(b.Bytes(), &fc); err != nil {
+		t.Fatal(err)
+	}
+	if len(fc.Features) != 2 || fc.Features[0].Properties["name"] != "Harbour Ward" {
+		t.Fatalf("features %+v", fc.Features)
+	}
+	if _, ok := fc.Features[1].Properties["name"]; ok {
+		t.Errorf("unnamed unit has a name: %+v", fc.Features[1].Properties)
 	}
 }
