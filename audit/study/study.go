@@ -73,6 +73,7 @@ func (s UnitStatus) MarshalText() ([]byte, error) { return []byte(s.String()), n
 type UnitInfo struct {
 	Index           int        `json:"-"`
 	ID              string     `json:"id"`
+	Name            string     `json:"name,omitempty"` // the unit's name, when its units have names (admin:LEVEL, GeoJSON name)
 	Status          UnitStatus `json:"status"`
 	Reason          string     `json:"reason,omitempty"`
 	FirstMonth      string     `json:"first_month,omitempty"` // YYYY-MM of the import's first edit here
@@ -459,6 +460,9 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	var treated, candidates []int
 	for u := 0; u < b.nu; u++ {
 		info := UnitInfo{Index: u, ID: b.units.ID(u)}
+		if n, ok := b.units.(interface{ Name(int) string }); ok {
+			info.Name = n.Name(u)
+		}
 		n := len(b.impObjects[u])
 		if n > 0 {
 			at := b.liveAtImp[u]

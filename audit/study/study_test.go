@@ -61,6 +61,9 @@ func TestStudyOnSimulatedWorld(t *testing.T) {
 			want := treatedByTruth(w.Truth, int(ep.Accounts[0].UID))
 			gotT := map[string]string{}
 			for _, u := range st.Units {
+				if u.Name == "" {
+					t.Errorf("unit %s has no name; districts.geojson names every district", u.ID)
+				}
 				if u.Status == study.StatusTreated || u.Status == study.StatusDropped {
 					gotT[u.ID] = u.FirstMonth
 				}
