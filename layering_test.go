@@ -15,9 +15,11 @@ const module = "github.com/loadwake/loadwake/"
 
 // allowed lists, for each project package (its directory), the project
 // packages its non-test files may import: imports point inward and down
-// (DEVELOPERS.md, "Import rules", holds the same table). cmd may use every
-// package and no package may use cmd; a package missing from the table fails
-// the test, so a new package states its place here.
+// (DEVELOPERS.md, "Import rules", holds the same table). cmd and the packages
+// under it (cmd/loadwake/internal/cli, the commands' shared plumbing) may use
+// every package and are the only ones to import cobra; no package outside cmd
+// may use cmd. A package missing from the table fails the test, so a new
+// package states its place here.
 var allowed = map[string][]string{
 	"ingest/osmfile":    {},
 	"ingest":            {"ingest/osmfile"},
@@ -94,8 +96,8 @@ func TestImportLayering(t *testing.T) {
 			if !own {
 				continue
 			}
-			if target == "cmd" || strings.HasPrefix(target, "cmd/") {
-				t.Errorf("%s imports %s: no package may import cmd", path, p)
+			if (target == "cmd" || strings.HasPrefix(target, "cmd/")) && !inCmd {
+				t.Errorf("%s imports %s: no package outside cmd may import cmd", path, p)
 			}
 			if !inCmd && !slices.Contains(rules, target) {
 				t.Errorf("%s imports %s: %s may use only %v", path, p, pkg, rules)

@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
@@ -107,7 +108,7 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 	t.Run("checklist to stdout", func(t *testing.T) {
 		t.Chdir(t.TempDir())
 		code, out, stderr := execMain(t, nil, "--store", store, "checklist", "--units", districts, "--changesets", csList, "--md", "-")
-		if code != exitOK || !strings.HasPrefix(out, "## Neglected tags") || !strings.Contains(stderr, "caution:") {
+		if code != cli.ExitOK || !strings.HasPrefix(out, "## Neglected tags") || !strings.Contains(stderr, "caution:") {
 			t.Errorf("--md -: exit %d; want the Markdown on stdout and the text on stderr\nstdout:\n%s\nstderr:\n%s", code, out, stderr)
 		}
 		if _, err := os.Stat("-"); err == nil {
@@ -175,8 +176,8 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 		for _, c := range cases {
 			t.Run(c.name, func(t *testing.T) {
 				_, err := execRootOut(t, append([]string{"--store", store}, c.args...)...)
-				if err == nil || errors.As(err, new(usageError)) != c.usage || !strings.Contains(err.Error(), c.has) {
-					t.Errorf("err %v (usage %v); want usage=%v containing %q", err, errors.As(err, new(usageError)), c.usage, c.has)
+				if err == nil || errors.As(err, new(cli.UsageError)) != c.usage || !strings.Contains(err.Error(), c.has) {
+					t.Errorf("err %v (usage %v); want usage=%v containing %q", err, errors.As(err, new(cli.UsageError)), c.usage, c.has)
 				}
 			})
 		}

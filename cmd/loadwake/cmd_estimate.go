@@ -11,6 +11,7 @@ import (
 
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/panel"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/spf13/cobra"
 )
 
@@ -31,7 +32,7 @@ type estimateOptions struct {
 	inference    string
 }
 
-func newEstimateCommand(g *globalOptions) *cobra.Command {
+func newEstimateCommand(g *cli.Globals) *cobra.Command {
 	d := did.DefaultOptions()
 	o := estimateOptions{unit: "unit", time: "month", firstTreated: "first_treated",
 		pre: d.Window.Pre, post: d.Window.Post, draws: d.Draws, seed: d.Seed, inference: d.Inference}
@@ -52,8 +53,8 @@ is given), p-value, the joint pre-trend test, unit counts and the inference
 method. With fewer than 30 treated clusters the intervals come from a wild or
 multiplier bootstrap. A CSV written by the panel export has the default column
 names; name the columns of your own file with the flags.`,
-		Args:        noArgs,
-		Annotations: map[string]string{annInterrupted: "nothing was written; rerun the same command"},
+		Args:        cli.NoArgs,
+		Annotations: map[string]string{cli.AnnInterrupted: "nothing was written; rerun the same command"},
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runEstimate(cmd, g, &o)
 		},
@@ -67,7 +68,7 @@ names; name the columns of your own file with the flags.`,
 	f.StringVar(&o.cluster, "cluster", "", "column with the cluster for inference (default: the unit)")
 	f.StringVar(&o.weight, "weight", "", "column with matching weights (default: 1)")
 	f.StringSliceVar(&o.covariates, "covariate", nil, "pre-period covariate column(s), constant within a unit; cs-att becomes doubly robust")
-	addFileFlag(f, &o.json, "json", "all estimates as JSON")
+	cli.AddFileFlag(f, &o.json, "json", "all estimates as JSON")
 	f.IntVar(&o.pre, "window-before", o.pre, "months before treatment the estimators use")
 	f.IntVar(&o.post, "window-after", o.post, "months from treatment on the estimators use")
 	f.IntVar(&o.draws, "draws", o.draws, "bootstrap draws")
@@ -76,17 +77,17 @@ names; name the columns of your own file with the flags.`,
 	return cmd
 }
 
-func runEstimate(cmd *cobra.Command, g *globalOptions, o *estimateOptions) error {
+func runEstimate(cmd *cobra.Command, g *cli.Globals, o *estimateOptions) error {
 	if o.panel == "" {
-		return usagef("--panel FILE.csv is required")
+		return cli.Usagef("--panel FILE.csv is required")
 	}
 	if len(o.outcomes) == 0 {
-		return usagef("name at least one --outcome column")
+		return cli.Usagef("name at least one --outcome column")
 	}
-	if err := checkEstimator(o.draws, o.inference, o.pre, o.post); err != nil {
+	if err := cli.CheckEstimator(o.draws, o.inference, o.pre, o.post); err != nil {
 		return err
 	}
-	outs, err := newOutputs(cmd, o.json)
+	outs, err := cli.NewOutputs(cmd, o.json)
 	if err != nil {
 		return err
 	}
@@ -103,14 +104,14 @@ func runEstimate(cmd *cobra.Command, g *globalOptions, o *estimateOptions) error
 	if err != nil {
 		return err
 	}
-	done := newProgress(cmd, g).step("estimate " + filepath.Base(o.panel))
+	done := cli.NewProgress(cmd, g).Step("estimate " + filepath.Base(o.panel))
 	es, err := did.Estimate(cmd.Context(), p, opts)
 	done()
 	if err != nil {
 		return fmt.Errorf("%s: %w", o.panel, err)
 	}
-	printEstimates(outs.text, es)
-	return outs.write(o.json, func(w io.Writer) error {
+	printEstimates(outs.Text, es)
+	return outs.Write(o.json, func(w io.Writer) error {
 		enc := json.NewEncoder(w)
 		enc.SetIndent("", "  ")
 		return enc.Encode(es)

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/loadwake/loadwake/audit/panel"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // writeInventedPanel writes an invented panel (40 treated units in two
@@ -128,7 +129,7 @@ func TestEstimateCommandErrors(t *testing.T) {
 			if err == nil || !strings.Contains(err.Error(), c.want) {
 				t.Fatalf("error %v, want %q", err, c.want)
 			}
-			if got := errors.As(err, new(usageError)); got != c.usage {
+			if got := errors.As(err, new(cli.UsageError)); got != c.usage {
 				t.Errorf("usage error %v, want %v", got, c.usage)
 			}
 		})

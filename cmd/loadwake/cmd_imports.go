@@ -6,6 +6,7 @@ import (
 	"os"
 
 	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/spf13/cobra"
 )
 
@@ -18,7 +19,7 @@ type importsOptions struct {
 	includeEmpty bool   // keep matched changesets with no stored versions
 }
 
-func newImportsCommand(g *globalOptions) *cobra.Command {
+func newImportsCommand(g *cli.Globals) *cobra.Command {
 	var o importsOptions
 	cmd := &cobra.Command{
 		Use:   "imports",
@@ -49,27 +50,27 @@ and the table to stderr) with the fields:
 
 Episodes are candidates to check against the import's documentation and its
 community discussion, not findings about the people behind an account.`,
-		Args: noArgs,
+		Args: cli.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runImports(cmd, g, &o)
 		},
 	}
 	f := cmd.Flags()
-	addImportFlags(cmd, g, nil, &o.changesets, &o.account, &o.rules)
-	addFileFlag(f, &o.json, "json", "the episodes as a JSON array")
+	cli.AddImportFlags(cmd, g, nil, &o.changesets, &o.account, &o.rules)
+	cli.AddFileFlag(f, &o.json, "json", "the episodes as a JSON array")
 	f.BoolVar(&o.includeEmpty, "include-empty", false, "keep matched changesets the store holds no versions of")
 	return cmd
 }
 
-func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
-	if err := checkImportChoice("", o.changesets, o.account); err != nil {
+func runImports(cmd *cobra.Command, g *cli.Globals, o *importsOptions) error {
+	if err := cli.CheckImportChoice("", o.changesets, o.account); err != nil {
 		return err
 	}
-	outs, err := newOutputs(cmd, o.json)
+	outs, err := cli.NewOutputs(cmd, o.json)
 	if err != nil {
 		return err
 	}
-	r, err := loadRules(o.rules)
+	r, err := cli.LoadRules(o.rules)
 	if err != nil {
 		return err
 	}
@@ -85,11 +86,11 @@ func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
 			return err
 		}
 	}
-	st, err := openStore(g)
+	st, err := cli.OpenStore(g)
 	if err != nil {
 		return err
 	}
-	done := newProgress(cmd, g).step("find imports")
+	done := cli.NewProgress(cmd, g).Step("find imports")
 	eps, err := episode.Detect(cmd.Context(), st, r, opts)
 	done()
 	if cerr := st.Close(); err == nil {
@@ -98,8 +99,8 @@ func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
 	if err != nil {
 		return err
 	}
-	if err := episode.Write(outs.text, eps); err != nil {
+	if err := episode.Write(outs.Text, eps); err != nil {
 		return err
 	}
-	return outs.write(o.json, func(w io.Writer) error { return episode.WriteJSON(w, eps) })
+	return outs.Write(o.json, func(w io.Writer) error { return episode.WriteJSON(w, eps) })
 }

@@ -12,6 +12,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit/spatial"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 )
 
@@ -26,7 +27,7 @@ type unitsOptions struct {
 	geojson string // output file; "-" for stdout
 }
 
-func newUnitsCommand(g *globalOptions) *cobra.Command {
+func newUnitsCommand(g *cli.Globals) *cobra.Command {
 	var o unitsOptions
 	cmd := &cobra.Command{
 		Use:   "units --units SPEC --geojson FILE",
@@ -46,19 +47,19 @@ id); name= filters by name tag (glob, case-insensitive).
 
 Administrative boundaries are not always the areas an import affects; check
 the units against the community's import guidelines and local knowledge.`,
-		Args: noArgs,
+		Args: cli.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			if o.units == "" || o.geojson == "" {
-				return usagef("units: --units and --geojson are required")
+				return cli.Usagef("units: --units and --geojson are required")
 			}
 			var at time.Time
 			if o.at != "" {
 				var err error
 				if at, err = time.Parse(time.DateOnly, o.at); err != nil {
-					return usagef("units: --at %q: want YYYY-MM-DD", o.at)
+					return cli.Usagef("units: --at %q: want YYYY-MM-DD", o.at)
 				}
 			}
-			st, err := openStore(g)
+			st, err := cli.OpenStore(g)
 			if err != nil {
 				return err
 			}
