@@ -595,7 +595,7 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 
 	// The matched panel and the full panel.
 	mk := func(members []int, weight func(u int) float64) *panel.Panel {
-		p := &panel.Panel{Start: start, Months: months, Outcomes: names, Y: make([][]float64, len(names))}
+		p := &panel.Panel{Start: start, Months: months, Outcomes: names, Y: make([][]float64, len(names)), CovariateNames: st.Covariates}
 		for _, u := range members {
 			ft := -1
 			if st.Units[u].Status == StatusTreated {

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"encoding/csv"
 	"encoding/json"
 	"fmt"
 	"io"
@@ -37,7 +38,7 @@ func newEstimateCommand(g *cli.Globals) *cobra.Command {
 	o := estimateOptions{unit: "unit", time: "month", firstTreated: "first_treated",
 		pre: d.Window.Pre, post: d.Window.Post, draws: d.Draws, seed: d.Seed, inference: d.Inference}
 	cmd := &cobra.Command{
-		Use:   "estimate --panel FILE.csv --outcome COL [--outcome COL...]",
+		Use:   "estimate --panel FILE.csv [--outcome COL...]",
 		Short: "Estimate how follow-on activity changed in treated areas against matched controls",
 		Long: `estimate reads a unit-by-month panel in long format (one row per unit and
 month) and estimates, per outcome, how activity changed in treated units after
@@ -51,8 +52,10 @@ their first treated month compared with never-treated (matched) units:
 Each row gives the effect, its 95% interval (of the relative effect where one
 is given), p-value, the joint pre-trend test, unit counts and the inference
 method. With fewer than 30 treated clusters the intervals come from a wild or
-multiplier bootstrap. A CSV written by the panel export has the default column
-names; name the columns of your own file with the flags.`,
+multiplier bootstrap. A CSV written by loadwake's panel export (loadwake panel,
+or panel.csv in a report folder) needs no further flags: its weight and cluster
+columns and all its outcomes are used, so the estimates equal the audit's. Name
+the columns of your own file with the flags.`,
 		Args:        cli.NoArgs,
 		Annotations: map[string]string{cli.AnnInterrupted: "nothing was written; rerun the same command"},
 		RunE: func(cmd *cobra.Command, _ []string) error {
@@ -64,9 +67,9 @@ names; name the columns of your own file with the flags.`,
 	f.StringVar(&o.unit, "unit", o.unit, "column with the unit identifier")
 	f.StringVar(&o.time, "time", o.time, "column with the month (YYYY-MM or YYYY-MM-DD)")
 	f.StringVar(&o.firstTreated, "first-treated", o.firstTreated, "column with the first treated month (empty for never treated)")
-	f.StringSliceVar(&o.outcomes, "outcome", nil, "outcome column(s), repeatable or comma-separated (required)")
-	f.StringVar(&o.cluster, "cluster", "", "column with the cluster for inference (default: the unit)")
-	f.StringVar(&o.weight, "weight", "", "column with matching weights (default: 1)")
+	f.StringSliceVar(&o.outcomes, "outcome", nil, "outcome column(s), repeatable or comma-separated (default for loadwake's panel export: all)")
+	f.StringVar(&o.cluster, "cluster", "", "column with the cluster for inference (default: the export's cluster column, else the unit)")
+	f.StringVar(&o.weight, "weight", "", "column with matching weights (default: the export's weight column, else 1)")
 	f.StringSliceVar(&o.covariates, "covariate", nil, "pre-period covariate column(s), constant within a unit; cs-att becomes doubly robust")
 	cli.AddFileFlag(f, &o.json, "json", "all estimates as JSON")
 	f.IntVar(&o.pre, "window-before", o.pre, "months before treatment the estimators use")
@@ -80,9 +83,6 @@ names; name the columns of your own file with the flags.`,
 func runEstimate(cmd *cobra.Command, g *cli.Globals, o *estimateOptions) error {
 	if o.panel == "" {
 		return cli.Usagef("--panel FILE.csv is required")
-	}
-	if len(o.outcomes) == 0 {
-		return cli.Usagef("name at least one --outcome column")
 	}
 	if err := cli.CheckEstimator(o.draws, o.inference, o.pre, o.post); err != nil {
 		return err
@@ -99,6 +99,12 @@ func runEstimate(cmd *cobra.Command, g *cli.Globals, o *estimateOptions) error {
 		return fmt.Errorf("panel: %w", err)
 	}
 	defer f.Close()
+	if err := o.exportDefaults(cmd, f); err != nil {
+		return err
+	}
+	if len(o.outcomes) == 0 {
+		return cli.Usagef("name at least one --outcome column (%s is not a panel export of loadwake, which names them itself)", o.panel)
+	}
 	p, err := panel.ReadCSV(f, o.panel, panel.Columns{Unit: o.unit, Time: o.time, FirstTreated: o.firstTreated,
 		Outcomes: o.outcomes, Cluster: o.cluster, Weight: o.weight, Covariates: o.covariates})
 	if err != nil {
@@ -116,6 +122,40 @@ func runEstimate(cmd *cobra.Command, g *cli.Globals, o *estimateOptions) error {
 		enc.SetIndent("", "  ")
 		return enc.Encode(es)
 	})
+}
+
+// exportDefaults reads the panel file's header and, when it is loadwake's own
+// export (panel.WriteCSV), takes what the flags leave open from it: the
+// matching weights, clusters and covariates of the export's columns, and every
+// outcome column. So `estimate --panel panel.csv` on an audit's export
+// reproduces the audit's estimates with no further flags. f is rewound for
+// the full read.
+func (o *estimateOptions) exportDefaults(cmd *cobra.Command, f *os.File) error {
+	header, err := csv.NewReader(f).Read()
+	if _, serr := f.Seek(0, io.SeekStart); serr != nil {
+		return fmt.Errorf("panel: %w", serr)
+	}
+	if err != nil {
+		return nil // panel.ReadCSV reports what is wrong with the file
+	}
+	cols, ok := panel.ExportDefaults(header)
+	if !ok {
+		return nil
+	}
+	fl := cmd.Flags()
+	if !fl.Changed("weight") {
+		o.weight = cols.Weight
+	}
+	if !fl.Changed("cluster") {
+		o.cluster = cols.Cluster
+	}
+	if !fl.Changed("outcome") {
+		o.outcomes = cols.Outcomes
+	}
+	if !fl.Changed("covariate") {
+		o.covariates = cols.Covariates
+	}
+	return nil
 }
 
 func printEstimates(w interface{ Write([]byte) (int, error) }, es *did.Estimates) {

@@ -36,8 +36,9 @@ treated from the month the import arrived; units any import touched otherwise
 are excluded; each treated unit is matched with --k untouched units on its
 pre-import activity (Mahalanobis distance, or --propensity). It prints the
 balance table and writes the panel as CSV (one row per unit and month; columns
-unit, month, first_treated, weight, cluster, then one per outcome), the format
-loadwake estimate reads.`,
+unit, month, first_treated, weight, cluster, then one per outcome, then one per
+pre-period covariate named covariate:NAME), the format loadwake estimate reads
+with no further flags.`,
 		Args:        cli.NoArgs,
 		Annotations: map[string]string{cli.AnnInterrupted: cli.InterruptedReadOnly},
 		RunE:        func(cmd *cobra.Command, _ []string) error { return runPanel(cmd, g, &o) },
