@@ -184,5 +184,11 @@ func printEstimates(w interface{ Write([]byte) (int, error) }, es *did.Estimates
 			fmt.Fprintln(w, "  - "+s)
 		}
 	}
+	if len(es.Notes) > 0 {
+		fmt.Fprintln(w, "\nnotes (robustness checks, for information):")
+		for _, s := range es.Notes {
+			fmt.Fprintln(w, "  - "+s)
+		}
+	}
 	fmt.Fprintln(w, "\n"+strings.Join(es.Cautions, "\n"))
 }
