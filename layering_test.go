@@ -34,6 +34,7 @@ var allowed = map[string][]string{
 	"audit/infer":       {},
 	"audit/sensitivity": {},
 	"audit/sim":         {},
+	"audit/sequential":  {},
 	"audit/episode":     {"layers", "rules"},
 	"audit/did":         {"audit/panel", "audit/infer", "audit/sensitivity"},
 	"audit/study":       {"audit/episode", "audit/match", "audit/panel", "layers"},
