@@ -410,4 +410,3 @@ func mde(pts []Point, target float64) (fall, rise *float64) {
 	}
 	return side(-1), side(1)
 }
-
