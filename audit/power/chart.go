@@ -37,8 +37,8 @@ func powerChart(title string, curves []Curve, label func(Curve) string, target f
 		a.Tick.Label.Font = font.Font{Typeface: "Liberation", Variant: "Sans", Size: 8}
 	}
 	p.Legend.TextStyle.Font = font.Font{Typeface: "Liberation", Variant: "Sans", Size: 8}
-	p.Legend.Top, p.Legend.Left = true, false
-	p.Y.Min, p.Y.Max = 0, 1
+	p.Legend.Top, p.Legend.Left = false, false
+	p.Y.Min, p.Y.Max = 0, 1.04
 	p.Add(plotter.NewGrid())
 	lo, hi := math.Inf(1), math.Inf(-1)
 	for i, c := range curves {

@@ -18,7 +18,7 @@ const maxTrend = 0.03
 // Var = μ + Dispersion·μ² (Dispersion 0: Poisson).
 type LayerFit struct {
 	Layer      string      `json:"layer"`
-	Level      []float64   `json:"-"`               // per unit: mean events per month in the history
+	Level      []float64   `json:"-"`               // per unit: expected events in the history's last month, before the seasonal factor
 	MeanLevel  float64     `json:"mean_level"`      // mean of Level
 	Season     [12]float64 `json:"seasonal_factor"` // by calendar month, January first; mean 1
 	Trend      float64     `json:"trend"`           // log growth per month, within ±maxTrend
@@ -36,10 +36,12 @@ type Model struct {
 }
 
 // Fit fits each outcome of the history panel h over its units: levels are
-// the units' monthly means; seasonal factors are the calendar months' shares
-// of all events (pooled over units, set to 1 with under 24 months of history);
 // the trend is the log ratio of the later half's events to the earlier
-// half's over the months between the halves' centres; the dispersion is the
+// half's over the months between the halves' centres; seasonal factors are
+// the calendar months' shares of the detrended events (pooled over units, 1
+// with under 24 months of history); a unit's level is its events over the
+// sum of the seasonal and trend factors of the months, its expected count in
+// the history's last month before the seasonal factor; the dispersion is the
 // method-of-moments estimate Σ[(y − μ)² − y] / Σμ² around the fitted means,
 // 0 when negative (Cameron & Trivedi 2013, §3.2, NB2).
 func Fit(h *panel.Panel) (*Model, error) {
@@ -62,41 +64,56 @@ func Fit(h *panel.Panel) (*Model, error) {
 				s += y[u*T+t]
 				tot[t] += y[u*T+t]
 			}
-			f.Level[u] = s / float64(T)
-			f.MeanLevel += f.Level[u] / float64(n)
 			if s == 0 {
 				f.ZeroUnits++
 			}
 			all += s
 		}
+		half := T / 2
+		lo, hi := 0.0, 0.0
+		for t := range T {
+			if t < half {
+				lo += tot[t]
+			} else if t >= T-half {
+				hi += tot[t]
+			}
+		}
+		if lo > 0 && hi > 0 {
+			f.Trend = math.Max(-maxTrend, math.Min(maxTrend, math.Log(hi/lo)/float64(T-half)))
+		}
 		for i := range f.Season {
 			f.Season[i] = 1
 		}
 		if T >= 24 && all > 0 {
+			// Calendar months' shares of the detrended totals.
 			var sum, cnt [12]float64
+			norm := 0.0
 			for t := range T {
-				mo := int(h.MonthTime(t).Month()) - 1
-				sum[mo] += tot[t]
-				cnt[mo]++
+				v := tot[t] / math.Exp(f.Trend*float64(t-(T-1)))
+				sum[int(h.MonthTime(t).Month())-1] += v
+				cnt[int(h.MonthTime(t).Month())-1]++
+				norm += v
 			}
-			mean := all / float64(T)
+			norm /= float64(T)
 			for i := range f.Season {
 				if cnt[i] > 0 {
-					f.Season[i] = math.Max(0.1, sum[i]/cnt[i]/mean)
+					f.Season[i] = math.Max(0.1, sum[i]/cnt[i]/norm)
 				}
 			}
 		}
-		half := T / 2
-		a, b := 0.0, 0.0
+		// Levels at the history's last month: the units' shares of the
+		// detrended, deseasonalized total.
+		den0 := 0.0
 		for t := range T {
-			if t < half {
-				a += tot[t]
-			} else if t >= T-half {
-				b += tot[t]
-			}
+			den0 += f.Season[int(h.MonthTime(t).Month())-1] * math.Exp(f.Trend*float64(t-(T-1)))
 		}
-		if a > 0 && b > 0 {
-			f.Trend = math.Max(-maxTrend, math.Min(maxTrend, math.Log(b/a)/float64(T-half)))
+		for u := range n {
+			s := 0.0
+			for t := range T {
+				s += y[u*T+t]
+			}
+			f.Level[u] = s / den0
+			f.MeanLevel += f.Level[u] / float64(n)
 		}
 		num, den := 0.0, 0.0
 		for u := range n {

@@ -42,20 +42,59 @@ func plainAssign(units []int, waves int, seed uint64) ([]int, error) {
 	return out, nil
 }
 
-func TestSimulateSpeedProbe(t *testing.T) {
-	m, err := Fit(historyPanel(t, 30, 24, 3, 1))
+// TestSimulateDetects: on busy invented units, the planted halving is found
+// in nearly every world and no effect in few; the curve's minimum detectable
+// fall lies between the simulated effects. A quick check of the machinery;
+// the calibration against audit/sim worlds is behind the validate tag.
+func TestSimulateDetects(t *testing.T) {
+	m, err := Fit(historyPanel(t, 24, 24, 6, 1))
 	if err != nil {
 		t.Fatal(err)
 	}
-	d := Design{Name: "plan", Waves: 3, MonthsBetween: 6, FollowUp: 6, Before: 12}
-	start := time.Now()
-	r, err := Simulate(context.Background(), m, []Design{d}, plainAssign, Options{Worlds: 8, Effects: []float64{-0.3, 0, 0.3}})
+	d := Design{Name: "plan", Waves: 3, MonthsBetween: 4, FollowUp: 4, Before: 8, Layers: []string{"attribute"}}
+	r, err := Simulate(context.Background(), m, []Design{d}, plainAssign, Options{Worlds: 6, Effects: []float64{-0.5, 0}, Draws: 99})
 	if err != nil {
 		t.Fatal(err)
 	}
-	t.Logf("%v for %d worlds x 3 effects", time.Since(start), 8)
-	for _, c := range r.Curves {
-		t.Logf("%s %+v", c.Layer, c.Points)
+	if len(r.Curves) != 1 {
+		t.Fatalf("%d curves, want 1 (one layer of one design)", len(r.Curves))
 	}
-	_ = math.Abs
+	c := r.Curves[0]
+	if c.Points[0].Detected < 5 {
+		t.Errorf("halving detected in %d of 6 worlds, want at least 5", c.Points[0].Detected)
+	}
+	if c.Points[1].Detected > 2 {
+		t.Errorf("no effect detected in %d of 6 worlds, want at most 2", c.Points[1].Detected)
+	}
+	if c.MDEFall == nil || *c.MDEFall > 0 || *c.MDEFall < -0.5 {
+		t.Errorf("minimum detectable fall %v, want within (-50%%, 0)", c.MDEFall)
+	}
+	if math.Abs(r.MCError-math.Sqrt(0.25/6)) > 1e-12 {
+		t.Errorf("Monte Carlo error %g", r.MCError)
+	}
+}
+
+func TestMDEInterpolates(t *testing.T) {
+	pts := []Point{{Effect: -0.5, Power: 1}, {Effect: math.Expm1(-0.3), Power: 0.6}, {Effect: 0, Power: 0.05}, {Effect: 0.5, Power: 0.7}}
+	fall, rise := mde(pts, 0.8)
+	// Between log points 0.3 (power 0.6) and 0.693 (power 1): halfway.
+	want := math.Expm1(-(0.3 + 0.5*(math.Log(2)-0.3)))
+	if fall == nil || math.Abs(*fall-want) > 1e-9 {
+		t.Errorf("fall %v, want %.6f", fall, want)
+	}
+	if rise != nil {
+		t.Errorf("rise %v, want none (0.7 < 0.8)", *rise)
+	}
+}
+
+func TestDesignMonths(t *testing.T) {
+	d := Design{Waves: 4, MonthsBetween: 3, FollowUp: 5, Before: 12}
+	for _, tc := range []struct{ wave, start int }{{0, 12}, {1, 15}, {2, 18}, {3, 23}} {
+		if got := d.WaveStart(tc.wave); got != tc.start {
+			t.Errorf("wave %d starts at %d, want %d", tc.wave, got, tc.start)
+		}
+	}
+	if d.Months() != 23 {
+		t.Errorf("months %d, want 23 (12 before, two gaps of 3, 5 of follow-up)", d.Months())
+	}
 }
