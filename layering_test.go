@@ -38,6 +38,7 @@ var allowed = map[string][]string{
 	"audit/infer":       {},
 	"audit/sensitivity": {},
 	"audit/sim":         {},
+	"audit/sequential":  {},
 	"audit/episode":     {"layers", "rules"},
 	"audit/did":         {"audit/panel", "audit/infer", "audit/sensitivity"},
 	"audit/study":       {"audit/episode", "audit/match", "audit/panel", "layers"},
@@ -46,6 +47,8 @@ var allowed = map[string][]string{
 		"audit/spatial", "layers", "rules"},
 	"audit": {"audit/checklist", "audit/did", "audit/episode", "audit/infer", "audit/match", "audit/panel", "audit/proposal",
 		"audit/spatial", "audit/study", "layers", "rules"},
+	"audit/power":   {"audit/checklist", "audit/did", "audit/panel", "layers"},
+	"audit/rollout": {"audit/did", "audit/markdown", "audit/power", "audit/proposal", "audit/sequential", "layers"},
 	"audit/report": {"audit", "audit/checklist", "audit/did", "audit/episode", "audit/markdown", "audit/match",
 		"audit/panel", "audit/proposal", "audit/spatial", "audit/study", "layers"},
 
