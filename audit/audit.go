@@ -60,6 +60,7 @@ type BalanceJSON struct {
 // while Schema stays the same.
 type Report struct {
 	Schema     string              `json:"schema"`
+	Event      EventSummary        `json:"event"` // what the treatment is: an import, or an event from a file
 	Import     ImportSummary       `json:"import"`
 	Window     [2]string           `json:"window"` // first and last panel month, YYYY-MM
 	Before     int                 `json:"before_months"`
@@ -120,6 +121,7 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 		return nil, fmt.Errorf("estimate: %w", err)
 	}
 	r := newReport(ep, st, est, so, opts.UnitSpec)
+	r.Event = importEvent(ep)
 	r.Provenance = NewProvenance(opts.Generator)
 	r.Provenance.Window, r.Provenance.Units = st.Window, opts.UnitSpec
 	if err := r.Provenance.addImport(ctx, src, ep); err != nil {

@@ -50,6 +50,7 @@ The figures are evidence for the community's review, not a verdict.`,
 		RunE:              func(cmd *cobra.Command, _ []string) error { return runAudit(cmd, g, &o) },
 	}
 	o.study.addFlags(cmd, g)
+	o.study.addTreatmentFlags(cmd)
 	f := cmd.Flags()
 	addFileFlag(f, &o.json, "json", "the audit as JSON")
 	addFileFlag(f, &o.md, "md", "the report's Markdown")
@@ -76,7 +77,11 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 		return err
 	}
 	out := outs.text
-	fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, joinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
+	if rep.IsImport() {
+		fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, joinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
+	} else {
+		fmt.Fprintf(out, "event %s (%s), panel %s to %s\n", rep.Event.Name, rep.Event.Source, rep.Window[0], rep.Window[1])
+	}
 	if err := audit.WriteUnitSummary(out, rep.Study); err != nil {
 		return err
 	}

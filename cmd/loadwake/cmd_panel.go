@@ -8,7 +8,6 @@ import (
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/panel"
-	"github.com/loadwake/loadwake/audit/study"
 )
 
 // panelOptions holds the flags of `loadwake panel`.
@@ -42,6 +41,7 @@ loadwake estimate reads.`,
 		RunE:        func(cmd *cobra.Command, _ []string) error { return runPanel(cmd, g, &o) },
 	}
 	o.study.addFlags(cmd, g)
+	o.study.addTreatmentFlags(cmd)
 	addFileFlag(cmd.Flags(), &o.csv, "csv", "the panel as CSV")
 	cmd.Flags().BoolVar(&o.all, "all", false, "write every clean unit (unweighted) instead of the matched set")
 	return cmd
@@ -57,14 +57,18 @@ func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
 		return err
 	}
 	defer in.store.Close()
-	done := newProgress(cmd, g).step("panel " + in.episode.ID + ": build the study")
-	st, err := study.ForEpisode(cmd.Context(), in.store, in.episode, in.all, in.units, o.study.studyOptions())
+	done := newProgress(cmd, g).step("panel " + in.label() + ": build the study")
+	st, err := in.buildStudy(cmd.Context(), o.study.studyOptions())
 	done()
 	if err != nil {
 		return err
 	}
 	out := outs.text
-	fmt.Fprintf(out, "import %s, panel %s to %s, %d outcomes\n", in.episode.ID, st.Window[0], st.Window[1], len(st.Panel.Outcomes))
+	what := "import " + in.label()
+	if in.assignment != nil {
+		what = "event " + in.label() + " (" + o.study.treatment + ")"
+	}
+	fmt.Fprintf(out, "%s, panel %s to %s, %d outcomes\n", what, st.Window[0], st.Window[1], len(st.Panel.Outcomes))
 	if err := audit.WriteUnitSummary(out, st); err != nil {
 		return err
 	}

@@ -45,6 +45,7 @@ verdict; imports follow the community's import guidelines and local review.`,
 		RunE:        func(cmd *cobra.Command, _ []string) error { return runReport(cmd, g, &o) },
 	}
 	o.study.addFlags(cmd, g)
+	o.study.addTreatmentFlags(cmd)
 	f := cmd.Flags()
 	addOutFlag(f, &o.out, "the report (required)")
 	addEstimatorFlags(f, &o.est)
@@ -70,7 +71,7 @@ func runReport(cmd *cobra.Command, g *globalOptions, o *reportOptions) error {
 		return err
 	}
 	var cl *checklist.Checklist
-	if !o.noChecklist {
+	if !o.noChecklist && in.assignment == nil { // the checklist is about an import's features
 		done := newProgress(cmd, g).step("checklist " + in.episode.ID)
 		cl, err = audit.ChecklistOf(ctx, in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), checklist.Options{})
 		done()
@@ -79,7 +80,11 @@ func runReport(cmd *cobra.Command, g *globalOptions, o *reportOptions) error {
 		}
 	}
 	out := cmd.OutOrStdout()
-	fmt.Fprintf(out, "import %s: %d import areas, %d matched comparison areas\n", rep.Import.ID, rep.Units.Treated, rep.Units.Controls)
+	if rep.IsImport() {
+		fmt.Fprintf(out, "import %s: %d import areas, %d matched comparison areas\n", rep.Import.ID, rep.Units.Treated, rep.Units.Controls)
+	} else {
+		fmt.Fprintf(out, "event %s: %d treated areas, %d matched comparison areas (no neglected-tag checklist: it is about an import's features)\n", rep.Event.Name, rep.Units.Treated, rep.Units.Controls)
+	}
 	for _, w := range rep.Warnings {
 		fmt.Fprintln(out, "warning:", w)
 	}

@@ -54,6 +54,8 @@ type studyFlags struct {
 	caliper      float64
 	propensity   bool
 	keepAccounts bool
+	treatment    string // --treatment FILE: treated units and months instead of an import
+	eventName    string // --event-name
 }
 
 func (s *studyFlags) addFlags(cmd *cobra.Command, g *globalOptions) {
@@ -132,6 +134,9 @@ func (s *studyFlags) validate() error {
 	if err := checkImportChoice(s.importID, s.changesets, s.account); err != nil {
 		return err
 	}
+	if err := s.checkTreatment(); err != nil {
+		return err
+	}
 	switch {
 	case s.units == "":
 		return usagef("--units is required: tiles:Z or a GeoJSON file of polygons")
@@ -198,11 +203,14 @@ func (e *estimatorFlags) options(s *studyFlags) did.Options {
 
 // runStudyAudit audits the import of in, with a progress spinner.
 func runStudyAudit(cmd *cobra.Command, g *globalOptions, in *studyInputs, s *studyFlags, e *estimatorFlags) (*audit.Report, error) {
-	done := newProgress(cmd, g).step("audit " + in.episode.ID + ": study and estimates")
+	done := newProgress(cmd, g).step("audit " + in.label() + ": study and estimates")
 	defer done()
-	return audit.Run(cmd.Context(), in.store, in.episode, in.all, in.units,
-		audit.Options{Study: s.studyOptions(), Estimate: e.options(s), UnitSpec: s.units,
-			Generator: generator(cmd.Context(), in.store, false)})
+	opts := audit.Options{Study: s.studyOptions(), Estimate: e.options(s), UnitSpec: s.units,
+		Generator: generator(cmd.Context(), in.store, false)}
+	if in.assignment != nil {
+		return audit.RunTreatment(cmd.Context(), in.store, in.assignment, in.all, in.units, opts)
+	}
+	return audit.Run(cmd.Context(), in.store, in.episode, in.all, in.units, opts)
 }
 
 func (s *studyFlags) studyOptions() study.Options {
@@ -216,8 +224,10 @@ type studyInputs struct {
 	store   *ingest.Store
 	rules   *rules.RuleSet
 	all     []episode.Episode
-	episode *episode.Episode
+	episode *episode.Episode // nil with --treatment
 	units   *spatial.Units
+	// assignment is the treatment of --treatment; nil for an import's study.
+	assignment *study.Assignment
 }
 
 // open opens the store, loads the rules, finds the import and reads the
@@ -252,14 +262,23 @@ func (s *studyFlags) open(cmd *cobra.Command, g *globalOptions) (*studyInputs, e
 		st.Close()
 		return nil, err
 	}
-	done := newProgress(cmd, g).step("find imports")
-	in.all, in.episode, err = episode.DetectAndFind(ctx, st, r, opts, s.importID)
-	done()
-	if err != nil {
-		return fail(err)
+	var first time.Time
+	if s.treatment != "" {
+		if err := s.openTreatment(cmd, g, in); err != nil {
+			return fail(err)
+		}
+		first, _ = in.assignment.Span()
+	} else {
+		done := newProgress(cmd, g).step("find imports")
+		in.all, in.episode, err = episode.DetectAndFind(ctx, st, r, opts, s.importID)
+		done()
+		if err != nil {
+			return fail(err)
+		}
+		first = in.episode.First
 	}
 	// admin:LEVEL boundaries are taken as they were when the study window opens.
-	at := time.Date(in.episode.First.Year(), in.episode.First.Month(), 1, 0, 0, 0, 0, time.UTC).AddDate(0, -s.before, 0)
+	at := time.Date(first.Year(), first.Month(), 1, 0, 0, 0, 0, time.UTC).AddDate(0, -s.before, 0)
 	if in.units, err = storeUnits(ctx, st, s.units, s.unitID, orb.Bound{}, at); err != nil {
 		return fail(err)
 	}
