@@ -193,6 +193,9 @@ func MakeCharts(in Input) ([]Chart, error) {
 				Caption: "The study areas by role. Import areas are compared with the matched comparison areas only; unused, excluded and left-out areas do not enter the estimates."})
 		}
 	}
+	if isEvent(in) {
+		out = eventCharts(out)
+	}
 	return out, nil
 }
 
