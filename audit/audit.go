@@ -74,9 +74,12 @@ type Report struct {
 	Robustness []Agreement `json:"robustness"`
 	// UnitFigures are descriptive observed and expected edits per import
 	// area (UnitFigure), not per-area effects.
-	UnitFigures []UnitFigure  `json:"unit_figures"`
-	Balance     []BalanceJSON `json:"balance"`
-	Estimation  struct {
+	UnitFigures []UnitFigure `json:"unit_figures"`
+	// Splits are the headline by area traits (AddSplits); nil when none
+	// was asked for.
+	Splits     *did.Splits   `json:"splits,omitempty"`
+	Balance    []BalanceJSON `json:"balance"`
+	Estimation struct {
 		Window did.Window `json:"event_window"`
 		Draws  int        `json:"bootstrap_draws"`
 		Seed   uint64     `json:"seed"`

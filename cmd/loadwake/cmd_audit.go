@@ -17,6 +17,7 @@ type auditOptions struct {
 	out   string // write the report folder here
 	md    string // write the report's Markdown here
 	est   estimatorFlags
+	by    []string // --by traits
 }
 
 func newAuditCommand(g *globalOptions) *cobra.Command {
@@ -56,6 +57,7 @@ The figures are evidence for the community's review, not a verdict.`,
 	addFileFlag(f, &o.md, "md", "the report's Markdown")
 	addOutFlag(f, &o.out, "the report (Markdown, HTML with charts, JSON, GeoJSON, panel CSV)")
 	addEstimatorFlags(f, &o.est)
+	addByFlag(cmd, &o.by)
 	return cmd
 }
 
@@ -77,6 +79,9 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 		return err
 	}
 	out := outs.text
+	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, out); err != nil {
+		return err
+	}
 	if rep.IsImport() {
 		fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, joinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
 	} else {

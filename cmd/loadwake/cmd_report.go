@@ -16,6 +16,7 @@ type reportOptions struct {
 	out         string
 	est         estimatorFlags
 	noChecklist bool
+	by          []string // --by traits
 }
 
 func newReportCommand(g *globalOptions) *cobra.Command {
@@ -50,6 +51,7 @@ verdict; imports follow the community's import guidelines and local review.`,
 	addOutFlag(f, &o.out, "the report (required)")
 	addEstimatorFlags(f, &o.est)
 	f.BoolVar(&o.noChecklist, "no-checklist", false, "leave the neglected-tag checklist out")
+	addByFlag(cmd, &o.by)
 	return cmd
 }
 
@@ -68,6 +70,9 @@ func runReport(cmd *cobra.Command, g *globalOptions, o *reportOptions) error {
 	defer in.store.Close()
 	rep, err := runStudyAudit(cmd, g, in, &o.study, &o.est)
 	if err != nil {
+		return err
+	}
+	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, cmd.OutOrStdout()); err != nil {
 		return err
 	}
 	var cl *checklist.Checklist
