@@ -60,6 +60,7 @@ type BalanceJSON struct {
 // while Schema stays the same.
 type Report struct {
 	Schema     string              `json:"schema"`
+	Event      EventSummary        `json:"event"` // what the treatment is: an import, or an event from a file
 	Import     ImportSummary       `json:"import"`
 	Window     [2]string           `json:"window"` // first and last panel month, YYYY-MM
 	Before     int                 `json:"before_months"`
@@ -73,9 +74,12 @@ type Report struct {
 	Robustness []Agreement `json:"robustness"`
 	// UnitFigures are descriptive observed and expected edits per import
 	// area (UnitFigure), not per-area effects.
-	UnitFigures []UnitFigure  `json:"unit_figures"`
-	Balance     []BalanceJSON `json:"balance"`
-	Estimation  struct {
+	UnitFigures []UnitFigure `json:"unit_figures"`
+	// Splits are the headline by area traits (AddSplits); nil when none
+	// was asked for.
+	Splits     *did.Splits   `json:"splits,omitempty"`
+	Balance    []BalanceJSON `json:"balance"`
+	Estimation struct {
 		Window did.Window `json:"event_window"`
 		Draws  int        `json:"bootstrap_draws"`
 		Seed   uint64     `json:"seed"`
@@ -120,6 +124,7 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 		return nil, fmt.Errorf("estimate: %w", err)
 	}
 	r := newReport(ep, st, est, so, opts.UnitSpec)
+	r.Event = importEvent(ep)
 	r.Provenance = NewProvenance(opts.Generator)
 	r.Provenance.Window, r.Provenance.Units = st.Window, opts.UnitSpec
 	if err := r.Provenance.addImport(ctx, src, ep); err != nil {

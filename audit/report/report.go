@@ -193,6 +193,14 @@ func MakeCharts(in Input) ([]Chart, error) {
 				Caption: "The study areas by role. Import areas are compared with the matched comparison areas only; unused, excluded and left-out areas do not enter the estimates."})
 		}
 	}
+	forest, err := forestCharts(in.Audit)
+	if err != nil {
+		return nil, err
+	}
+	out = append(out, forest...)
+	if isEvent(in) {
+		out = eventCharts(out)
+	}
 	return out, nil
 }
 

@@ -231,6 +231,10 @@ func newView(in Input) view {
 	v.Cautions = append([]string{
 		"These estimates are evidence, not proof: areas differ in ways no matching captures, and a change after an import can have other causes.",
 	}, r.Cautions...)
+	v.Notes = append(splitNotes(r), v.Notes...)
+	if !r.IsImport() {
+		v = eventView(v, r)
+	}
 	return v
 }
 

@@ -18,6 +18,7 @@ type auditOptions struct {
 	out   string // write the report folder here
 	md    string // write the report's Markdown here
 	est   cli.EstimatorFlags
+	by    []string // --by traits
 }
 
 func newAuditCommand(g *cli.Globals) *cobra.Command {
@@ -51,11 +52,13 @@ The figures are evidence for the community's review, not a verdict.`,
 		RunE:              func(cmd *cobra.Command, _ []string) error { return runAudit(cmd, g, &o) },
 	}
 	o.study.AddFlags(cmd, g)
+	o.study.AddTreatmentFlags(cmd)
 	f := cmd.Flags()
 	cli.AddFileFlag(f, &o.json, "json", "the audit as JSON")
 	cli.AddFileFlag(f, &o.md, "md", "the report's Markdown")
 	cli.AddOutFlag(f, &o.out, "the report (Markdown, HTML with charts, JSON, GeoJSON, panel CSV)")
 	cli.AddEstimatorFlags(f, &o.est)
+	addByFlag(cmd, &o.by)
 	return cmd
 }
 
@@ -77,7 +80,14 @@ func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
 		return err
 	}
 	out := outs.Text
-	fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, cli.JoinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
+	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, out); err != nil {
+		return err
+	}
+	if rep.IsImport() {
+		fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, cli.JoinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
+	} else {
+		fmt.Fprintf(out, "event %s (%s), panel %s to %s\n", rep.Event.Name, rep.Event.Source, rep.Window[0], rep.Window[1])
+	}
 	if err := audit.WriteUnitSummary(out, rep.Study); err != nil {
 		return err
 	}

@@ -8,7 +8,6 @@ import (
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/panel"
-	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
@@ -44,6 +43,7 @@ with no further flags.`,
 		RunE:        func(cmd *cobra.Command, _ []string) error { return runPanel(cmd, g, &o) },
 	}
 	o.study.AddFlags(cmd, g)
+	o.study.AddTreatmentFlags(cmd)
 	cli.AddFileFlag(cmd.Flags(), &o.csv, "csv", "the panel as CSV")
 	cmd.Flags().BoolVar(&o.all, "all", false, "write every clean unit (unweighted) instead of the matched set")
 	return cmd
@@ -59,14 +59,18 @@ func runPanel(cmd *cobra.Command, g *cli.Globals, o *panelOptions) error {
 		return err
 	}
 	defer in.Store.Close()
-	done := cli.NewProgress(cmd, g).Step("panel " + in.Episode.ID + ": build the study")
-	st, err := study.ForEpisode(cmd.Context(), in.Store, in.Episode, in.All, in.Units, o.study.StudyOptions())
+	done := cli.NewProgress(cmd, g).Step("panel " + in.Label() + ": build the study")
+	st, err := in.BuildStudy(cmd.Context(), o.study.StudyOptions())
 	done()
 	if err != nil {
 		return err
 	}
 	out := outs.Text
-	fmt.Fprintf(out, "import %s, panel %s to %s, %d outcomes\n", in.Episode.ID, st.Window[0], st.Window[1], len(st.Panel.Outcomes))
+	what := "import " + in.Label()
+	if in.Assignment != nil {
+		what = "event " + in.Label() + " (" + o.study.Treatment + ")"
+	}
+	fmt.Fprintf(out, "%s, panel %s to %s, %d outcomes\n", what, st.Window[0], st.Window[1], len(st.Panel.Outcomes))
 	if err := audit.WriteUnitSummary(out, st); err != nil {
 		return err
 	}

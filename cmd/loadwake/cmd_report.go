@@ -17,6 +17,7 @@ type reportOptions struct {
 	out         string
 	est         cli.EstimatorFlags
 	noChecklist bool
+	by          []string // --by traits
 }
 
 func newReportCommand(g *cli.Globals) *cobra.Command {
@@ -46,10 +47,12 @@ verdict; imports follow the community's import guidelines and local review.`,
 		RunE:        func(cmd *cobra.Command, _ []string) error { return runReport(cmd, g, &o) },
 	}
 	o.study.AddFlags(cmd, g)
+	o.study.AddTreatmentFlags(cmd)
 	f := cmd.Flags()
 	cli.AddOutFlag(f, &o.out, "the report (required)")
 	cli.AddEstimatorFlags(f, &o.est)
 	f.BoolVar(&o.noChecklist, "no-checklist", false, "leave the neglected-tag checklist out")
+	addByFlag(cmd, &o.by)
 	return cmd
 }
 
@@ -70,8 +73,11 @@ func runReport(cmd *cobra.Command, g *cli.Globals, o *reportOptions) error {
 	if err != nil {
 		return err
 	}
+	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, cmd.OutOrStdout()); err != nil {
+		return err
+	}
 	var cl *checklist.Checklist
-	if !o.noChecklist {
+	if !o.noChecklist && in.Assignment == nil { // the checklist is about an import's features
 		done := cli.NewProgress(cmd, g).Step("checklist " + in.Episode.ID)
 		cl, err = audit.ChecklistOf(ctx, in.Store, in.Rules, in.Episode, in.All, in.Units, o.study.StudyOptions(), checklist.Options{})
 		done()
@@ -80,7 +86,11 @@ func runReport(cmd *cobra.Command, g *cli.Globals, o *reportOptions) error {
 		}
 	}
 	out := cmd.OutOrStdout()
-	fmt.Fprintf(out, "import %s: %d import areas, %d matched comparison areas\n", rep.Import.ID, rep.Units.Treated, rep.Units.Controls)
+	if rep.IsImport() {
+		fmt.Fprintf(out, "import %s: %d import areas, %d matched comparison areas\n", rep.Import.ID, rep.Units.Treated, rep.Units.Controls)
+	} else {
+		fmt.Fprintf(out, "event %s: %d treated areas, %d matched comparison areas (no neglected-tag checklist: it is about an import's features)\n", rep.Event.Name, rep.Units.Treated, rep.Units.Controls)
+	}
 	for _, w := range rep.Warnings {
 		fmt.Fprintln(out, "warning:", w)
 	}

@@ -96,6 +96,8 @@ func errorHints() []errorHint {
 		{[]error{spatial.ErrUnits}, "check --units: tiles:Z (a lower Z gives fewer, larger tiles), or a GeoJSON file of polygons in longitude/latitude with an id property (--unit-id)"},
 		{[]error{panel.ErrInvalid}, "fix the panel file at the row named above, or name its columns with --unit, --time, --first-treated and --outcome"},
 		{[]error{proposal.ErrInvalid}, "fix the proposal file at the position named above (OSM XML, OsmChange or GeoJSON with tags as properties)"},
+		{[]error{study.ErrAssignment}, "fix the treatment file at the line named above: a header such as unit,start, one row per treated unit with its first treated month (YYYY-MM), ids as in --units"},
+		{[]error{study.ErrAssignment}, "fix the treatment file at the line named above: a header such as unit,start, one row per treated unit with its first treated month (YYYY-MM), ids as in --units"},
 		{[]error{study.ErrStudy}, "the study cannot be built as asked: widen --before/--after, lower --min-intensity, or choose other units"},
 		{[]error{episode.ErrNoImport}, "list the store's imports with \"loadwake imports\", then pass --import ID, --account NAME or --changesets FILE"},
 		{[]error{sim.ErrOutputExists}, "pass --force to replace the files, or choose another --out"},

@@ -54,6 +54,8 @@ type StudyFlags struct {
 	Caliper      float64
 	Propensity   bool
 	KeepAccounts bool
+	Treatment    string // --treatment FILE: treated units and months instead of an import
+	EventName    string // --event-name
 }
 
 // AddFlags adds the study flags to cmd.
@@ -133,6 +135,9 @@ func (s *StudyFlags) validate() error {
 	if err := CheckImportChoice(s.ImportID, s.Changesets, s.Account); err != nil {
 		return err
 	}
+	if err := s.checkTreatment(); err != nil {
+		return err
+	}
 	switch {
 	case s.Units == "":
 		return Usagef("--units is required: tiles:Z or a GeoJSON file of polygons")
@@ -197,13 +202,17 @@ func (e *EstimatorFlags) Options(s *StudyFlags) did.Options {
 	return eo
 }
 
-// RunStudyAudit audits the import of in, with a progress spinner.
+// RunStudyAudit audits the import (or the --treatment event) of in, with a
+// progress spinner.
 func RunStudyAudit(cmd *cobra.Command, g *Globals, in *StudyInputs, s *StudyFlags, e *EstimatorFlags) (*audit.Report, error) {
-	done := NewProgress(cmd, g).Step("audit " + in.Episode.ID + ": study and estimates")
+	done := NewProgress(cmd, g).Step("audit " + in.Label() + ": study and estimates")
 	defer done()
-	return audit.Run(cmd.Context(), in.Store, in.Episode, in.All, in.Units,
-		audit.Options{Study: s.StudyOptions(), Estimate: e.Options(s), UnitSpec: s.Units,
-			Generator: Generator(cmd.Context(), in.Store, false)})
+	opts := audit.Options{Study: s.StudyOptions(), Estimate: e.Options(s), UnitSpec: s.Units,
+		Generator: Generator(cmd.Context(), in.Store, false)}
+	if in.Assignment != nil {
+		return audit.RunTreatment(cmd.Context(), in.Store, in.Assignment, in.All, in.Units, opts)
+	}
+	return audit.Run(cmd.Context(), in.Store, in.Episode, in.All, in.Units, opts)
 }
 
 // StudyOptions are the study.Options of the flags.
@@ -218,8 +227,10 @@ type StudyInputs struct {
 	Store   *ingest.Store
 	Rules   *rules.RuleSet
 	All     []episode.Episode
-	Episode *episode.Episode
+	Episode *episode.Episode // nil with --treatment
 	Units   *spatial.Units
+	// Assignment is the treatment of --treatment; nil for an import's study.
+	Assignment *study.Assignment
 }
 
 // Open opens the store, loads the rules, finds the import and reads the
@@ -254,14 +265,23 @@ func (s *StudyFlags) Open(cmd *cobra.Command, g *Globals) (*StudyInputs, error) 
 		st.Close()
 		return nil, err
 	}
-	done := NewProgress(cmd, g).Step("find imports")
-	in.All, in.Episode, err = episode.DetectAndFind(ctx, st, r, opts, s.ImportID)
-	done()
-	if err != nil {
-		return fail(err)
+	var first time.Time
+	if s.Treatment != "" {
+		if err := s.openTreatment(cmd, g, in); err != nil {
+			return fail(err)
+		}
+		first, _ = in.Assignment.Span()
+	} else {
+		done := NewProgress(cmd, g).Step("find imports")
+		in.All, in.Episode, err = episode.DetectAndFind(ctx, st, r, opts, s.ImportID)
+		done()
+		if err != nil {
+			return fail(err)
+		}
+		first = in.Episode.First
 	}
 	// admin:LEVEL boundaries are taken as they were when the study window opens.
-	at := time.Date(in.Episode.First.Year(), in.Episode.First.Month(), 1, 0, 0, 0, 0, time.UTC).AddDate(0, -s.Before, 0)
+	at := time.Date(first.Year(), first.Month(), 1, 0, 0, 0, 0, time.UTC).AddDate(0, -s.Before, 0)
 	if in.Units, err = StoreUnits(ctx, st, s.Units, s.UnitID, orb.Bound{}, at); err != nil {
 		return fail(err)
 	}
