@@ -110,6 +110,9 @@ func Estimate(ctx context.Context, s *Sample, opts Options) (*Result, error) {
 	if len(s.Cohorts) > 1 {
 		r.Notes = append(r.Notes, fmt.Sprintf("the import reached its areas in %d waves; each wave's import areas are compared with all comparison areas around the wave's own start, so a comparison-area newcomer can count in more than one wave's comparison (the group figures pool the waves)", len(s.Cohorts)))
 	}
+	if s.ImportAccounts > 0 {
+		r.Notes = append(r.Notes, fmt.Sprintf("%d accounts whose first edit was part of an import are not counted as newcomers", s.ImportAccounts))
+	}
 	if s.Elsewhere > 0 {
 		r.Notes = append(r.Notes, fmt.Sprintf("%d accounts started in areas outside the comparison (unmatched, excluded or dropped areas) and are not counted", s.Elsewhere))
 	}
@@ -329,6 +332,20 @@ func hazardRatio(ctx context.Context, s *Sample) HazardRatio {
 	if n == 0 {
 		hr.Note = "no newcomers"
 		return hr
+	}
+	var stops [2][2]int
+	for _, nc := range s.Newcomers {
+		if nc.Stopped {
+			stops[int(b01(nc.Treated))][int(b01(nc.After))]++
+		}
+	}
+	for t := 1; t >= 0; t-- {
+		for a := 0; a < 2; a++ {
+			if stops[t][a] == 0 {
+				hr.Note = fmt.Sprintf("not computed: no newcomer who started in %s areas %s the import has stopped yet, so the ratio has no finite estimate", areaWord(t == 1), periodWord(a == 1))
+				return hr
+			}
+		}
 	}
 	x := mat.NewDense(n, 3, nil)
 	d := survival.CoxData{Time: make([]float64, n), Event: make([]bool, n), X: x, Strata: make([]int, n), Cluster: make([]int, n)}

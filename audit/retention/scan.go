@@ -81,7 +81,8 @@ func (o Options) withDefaults() Options {
 
 // account is an account's running state during the scan.
 type account struct {
-	unit      int // -1: pending (no located edit in a unit yet); -2: not followed
+	unit      int  // -1: pending (no located edit in a unit yet); -2: not followed
+	importer  bool // its first edit was an import's, or it is an import account
 	first     time.Time
 	last      time.Time
 	firstYear int
@@ -110,61 +111,76 @@ func Scan(ctx context.Context, src layers.DerivedReader, st *study.Study, units 
 	if st == nil || units == nil {
 		return nil, fmt.Errorf("%w: no study", ErrRetention)
 	}
-	skipCS := map[osm.ChangesetID]bool{}
-	for _, c := range st.Import.Changesets {
-		skipCS[c] = true
-	}
-	for _, c := range opts.OtherImports {
-		skipCS[c] = true
-	}
-	skipUID := map[osm.UserID]bool{}
-	for _, u := range st.Import.UIDs {
-		skipUID[u] = true
-	}
-	accts := map[osm.UserID]*account{}
-	var end time.Time
-	err := layers.ScanEvents(ctx, src, time.Time{}, time.Time{}, func(e *layers.Event) error {
-		if e.Time.After(end) {
-			end = e.Time
-		}
-		a, ok := accts[e.UID]
-		if !ok {
-			a = &account{unit: -1}
-			if skipUID[e.UID] || skipCS[e.Changeset] {
-				a.unit = -2
-			}
-			accts[e.UID] = a
-		}
-		if a.unit == -2 {
-			return nil
-		}
-		if a.unit == -1 {
-			if !e.Located {
-				return nil
-			}
-			u, ok := units.Locate(e.Location)
-			if !ok {
-				a.unit = -2 // first located edit outside every unit
-				return nil
-			}
-			a.unit, a.first = u, e.Time
-		}
-		a.last = e.Time
-		if e.Time.Before(a.first.AddDate(1, 0, 0)) {
-			a.firstYear++
-		}
-		return nil
-	})
-	if err != nil {
+	sc := newScanner(st, units, opts)
+	if err := layers.ScanEvents(ctx, src, time.Time{}, time.Time{}, sc.add); err != nil {
 		return nil, fmt.Errorf("retention: scan events: %w", err)
 	}
-	return sample(st, accts, end, skipUID, opts)
+	return sample(st, sc.accts, sc.end, opts)
+}
+
+// scanner follows every account through the events, in time order.
+type scanner struct {
+	units   study.UnitIndex
+	skipCS  map[osm.ChangesetID]bool
+	skipUID map[osm.UserID]bool
+	accts   map[osm.UserID]*account
+	end     time.Time
+}
+
+func newScanner(st *study.Study, units study.UnitIndex, opts Options) *scanner {
+	sc := &scanner{units: units, skipCS: map[osm.ChangesetID]bool{}, skipUID: map[osm.UserID]bool{}, accts: map[osm.UserID]*account{}}
+	for _, c := range st.Import.Changesets {
+		sc.skipCS[c] = true
+	}
+	for _, c := range opts.OtherImports {
+		sc.skipCS[c] = true
+	}
+	for _, u := range st.Import.UIDs {
+		sc.skipUID[u] = true
+	}
+	return sc
+}
+
+// add takes the next event: the first event of an account decides whether
+// it is followed (not an import's), its first located event its unit and
+// start, every later event its last edit and first-year count.
+func (sc *scanner) add(e *layers.Event) error {
+	if e.Time.After(sc.end) {
+		sc.end = e.Time
+	}
+	a, ok := sc.accts[e.UID]
+	if !ok {
+		a = &account{unit: -1}
+		if sc.skipUID[e.UID] || sc.skipCS[e.Changeset] {
+			a.unit, a.importer = -2, true
+		}
+		sc.accts[e.UID] = a
+	}
+	if a.unit == -2 {
+		return nil
+	}
+	if a.unit == -1 {
+		if !e.Located {
+			return nil
+		}
+		u, ok := sc.units.Locate(e.Location)
+		if !ok {
+			a.unit = -2 // first located edit outside every unit
+			return nil
+		}
+		a.unit, a.first = u, e.Time
+	}
+	a.last = e.Time
+	if e.Time.Before(a.first.AddDate(1, 0, 0)) {
+		a.firstYear++
+	}
+	return nil
 }
 
 // monthsBetween is the time from a to b in average calendar months.
 func monthsBetween(a, b time.Time) float64 { return b.Sub(a).Hours() / 24 / (365.2425 / 12) }
 
-func sample(st *study.Study, accts map[osm.UserID]*account, end time.Time, skipUID map[osm.UserID]bool, opts Options) (*Sample, error) {
+func sample(st *study.Study, accts map[osm.UserID]*account, end time.Time, opts Options) (*Sample, error) {
 	win0, err := time.Parse("2006-01", st.Window[0])
 	if err != nil {
 		return nil, fmt.Errorf("%w: study window %q: %v", ErrRetention, st.Window[0], err)
@@ -213,8 +229,8 @@ func sample(st *study.Study, accts map[osm.UserID]*account, end time.Time, skipU
 			s.Controls = append(s.Controls, u.Index)
 		}
 	}
-	for uid, a := range accts {
-		if a.unit == -2 && skipUID[uid] {
+	for _, a := range accts {
+		if a.importer {
 			s.ImportAccounts++
 		}
 		if a.unit < 0 {
