@@ -21,8 +21,9 @@ type htmlPage struct {
 	Charts        []htmlChart
 	Checklist     *htmlChecklist
 	Assessment    *htmlAssessment
-	Invented      bool      // the invented-data banner
-	Provenance    []provRow // where the figures come from
+	Invented      bool          // the invented-data banner
+	Provenance    []provRow     // where the figures come from
+	Retention     template.HTML // the newcomer retention section (retention.go)
 }
 
 type htmlChart struct {
@@ -200,7 +201,7 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 </tbody>
 </table>
 {{end}}</section>
-{{end}}{{with .Checklist}}<section id="checklist">
+{{end}}{{.Retention}}{{with .Checklist}}<section id="checklist">
 <h2>Neglected tags</h2>
 <p>Imported features compared with {{.Reference}}. Each row is a key the imported features carry markedly less often.</p>
 {{if .Rows}}<table>
@@ -290,6 +291,12 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 	}
 	for _, c := range charts {
 		pg.Charts = append(pg.Charts, htmlChart{Name: c.Name, Caption: c.Caption, SVG: template.HTML(c.SVG)})
+	}
+	if in.Audit != nil {
+		var err error
+		if pg.Retention, err = retentionHTML(newRetentionView(in.Audit.Retention)); err != nil {
+			return err
+		}
 	}
 	if in.Checklist != nil {
 		pg.Checklist = newHTMLChecklist(in.Checklist)

@@ -89,6 +89,9 @@ func WriteMarkdown(w io.Writer, in Input) error {
 			}
 		}
 	}
+	if in.Audit != nil {
+		writeRetentionMarkdown(&b, newRetentionView(in.Audit.Retention), e)
+	}
 	if in.Checklist != nil {
 		b.WriteString("\n")
 		if err := in.Checklist.WriteMarkdown(&b); err != nil {

@@ -183,6 +183,11 @@ func MakeCharts(in Input) ([]Chart, error) {
 		out = append(out, Chart{Name: "balance", SVG: svg,
 			Caption: "How far the import areas differed from the comparison areas before the import, for each trait used in matching, in standard deviations: open rings before matching, filled dots after. Dots inside the dashed ±0.1 lines count as well balanced."})
 	}
+	if svg, ok, err := retentionChart(in.Audit.Retention, renderSVG); err != nil {
+		return nil, err
+	} else if ok {
+		out = append(out, Chart{Name: retentionChartName, SVG: svg, Caption: retentionCaption})
+	}
 	if in.Units != nil {
 		svg, ok, err := MapSVG(in.Units, in.Audit.UnitList)
 		if err != nil {

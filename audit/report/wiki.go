@@ -127,6 +127,7 @@ func WriteWiki(w io.Writer, in Input) error {
 	}
 	if v.HasAudit {
 		writeWikiAudit(&b, v, heading, list)
+		writeRetentionWiki(&b, newRetentionView(in.Audit.Retention), heading, list)
 	}
 	if in.Checklist != nil {
 		writeWikiChecklist(&b, in.Checklist.Import, newHTMLChecklist(in.Checklist), heading, list)

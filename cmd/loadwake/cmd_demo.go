@@ -36,6 +36,9 @@ type demoOptions struct {
 	grid  int     // districts per side (0: the simulator's default)
 	scale float64 // activity and stock multiplier (0: the simulator's default)
 	draws int
+	// newcomerHR plants newcomers who keep to one district (sim.Retention)
+	// with this hazard ratio of stopping after the import; 0 leaves them out.
+	newcomerHR float64
 }
 
 func newDemoCommand(g *cli.Globals) *cobra.Command {
@@ -65,6 +68,7 @@ All data are invented: never upload them to OpenStreetMap.`,
 	f.IntVar(&o.grid, "grid", 0, "districts per side of the world (default: the simulator's 8)")
 	f.Float64Var(&o.scale, "scale", 0, "multiplier on activity and map size (default: the simulator's 1)")
 	f.IntVar(&o.draws, "draws", o.draws, "bootstrap draws of the estimators")
+	f.Float64Var(&o.newcomerHR, "newcomer-hazard-ratio", 0, "plant newcomers who keep to one district and stop this many times as often after the import in import areas (0: none; changes the whole world)")
 	return cmd
 }
 
@@ -86,6 +90,8 @@ func (o *demoOptions) validate() error {
 		return cli.Usagef("--scale must not be negative")
 	case o.draws < 99:
 		return cli.Usagef("--draws must be at least 99")
+	case o.newcomerHR < 0:
+		return cli.Usagef("--newcomer-hazard-ratio must not be negative")
 	}
 	return nil
 }
@@ -100,6 +106,11 @@ func (o *demoOptions) config() sim.Config {
 	}
 	if o.scale > 0 {
 		cfg.Scale = o.scale
+	}
+	if o.newcomerHR > 0 {
+		r := sim.DefaultRetention()
+		r.HazardRatio = o.newcomerHR
+		cfg.Retention = &r
 	}
 	return cfg
 }
