@@ -54,6 +54,7 @@ type htmlAssessment struct {
 
 var pageFuncs = template.FuncMap{
 	"inventedBanner": func() string { return InventedBanner },
+	"baseCSS":        func() template.CSS { return template.CSS(baseCSS) },
 	"safeURL":        safeURL,
 	"pct":            func(x float64) string { return fmt.Sprintf("%.1f%%", 100*x) },
 	"pp":             func(x float64) string { return fmt.Sprintf("%+.1f", 100*x) },
@@ -67,17 +68,9 @@ var pageFuncs = template.FuncMap{
 	},
 }
 
-// page is the report's HTML: inline CSS, inline SVG, no scripts, and nothing
-// that loads from elsewhere. Its look is the project's own.
-var page = template.Must(template.New("report").Funcs(pageFuncs).Parse(`<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<meta name="generator" content="loadwake">
-<title>{{.Title}}</title>
-<style>
-:root { --ink: #1d232b; --muted: #5a6470; --rule: #d9dde2; --paper: #fbfaf7; --warn: #d55e00; --calm: #0072b2; }
+// baseCSS is the style every loadwake page shares: the report and the
+// overview of all imports. It loads nothing from elsewhere.
+const baseCSS = `:root { --ink: #1d232b; --muted: #5a6470; --rule: #d9dde2; --paper: #fbfaf7; --warn: #d55e00; --calm: #0072b2; }
 * { box-sizing: border-box; }
 body { margin: 0; background: var(--paper); color: var(--ink);
   font: 16px/1.55 "Liberation Sans", Arial, Helvetica, sans-serif; }
@@ -113,7 +106,19 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 .cautions { border-top: 3px solid var(--ink); margin-top: 2.5rem; padding-top: .5rem; }
 .muted { color: var(--muted); }
 @media print { body { background: #fff; } figure { break-inside: avoid; } }
-</style>
+`
+
+// page is the report's HTML: inline CSS, inline SVG, no scripts, and nothing
+// that loads from elsewhere. Its look is the project's own.
+var page = template.Must(template.New("report").Funcs(pageFuncs).Parse(`<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<meta name="generator" content="loadwake">
+<title>{{.Title}}</title>
+<style>
+{{baseCSS}}</style>
 </head>
 <body>
 <main>

@@ -24,6 +24,7 @@ type assessOptions struct {
 	rules    string
 	units    string
 	unitID   string
+	unitName string
 	distance float64
 	nearest  int
 	noAudit  bool
@@ -63,6 +64,7 @@ figures are a first screen for local review, not a conflation or a decision.`,
 	f.StringVar(&o.rules, "rules", "", "rule `FILE` (default: the built-in rules; see loadwake rules show)")
 	f.StringVar(&o.units, "units", "tiles:14", `spatial units: "tiles:Z" or a GeoJSON file of polygons`)
 	f.StringVar(&o.unitID, "unit-id", "id", "GeoJSON property holding each unit's id")
+	f.StringVar(&o.unitName, "unit-name", "name", "GeoJSON property `PROP` holding each unit's name")
 	f.Float64Var(&o.distance, "distance", proposal.DefaultDuplicateDistance, "metres within which an existing feature of the same class is a likely duplicate")
 	f.IntVar(&o.nearest, "nearest", proposal.DefaultNearestImports, "past imports to compare with")
 	f.BoolVar(&o.noAudit, "no-audit", false, "do not audit the nearest past imports (faster; no expected effects or neglected keys)")
@@ -111,7 +113,7 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 		return err
 	}
 	defer st.Close()
-	units, err := storeUnits(ctx, st, o.units, o.unitID, p.Bound, time.Time{})
+	units, err := storeUnits(ctx, st, o.units, o.unitID, o.unitName, p.Bound, time.Time{})
 	if err != nil {
 		return err
 	}

@@ -47,6 +47,7 @@ type studyFlags struct {
 	rules        string
 	units        string
 	unitID       string
+	unitName     string
 	before       int
 	after        int
 	minIntensity float64
@@ -57,10 +58,16 @@ type studyFlags struct {
 }
 
 func (s *studyFlags) addFlags(cmd *cobra.Command, g *globalOptions) {
-	f := cmd.Flags()
 	addImportFlags(cmd, g, &s.importID, &s.changesets, &s.account, &s.rules)
-	f.StringVar(&s.units, "units", "", "spatial units `SPEC`: tiles:Z (slippy-map tiles of zoom Z) or a GeoJSON file of polygons (required)")
+	s.addUnitFlags(cmd.Flags())
+}
+
+// addUnitFlags adds the flags of the units, the panel and the matching: all
+// study flags but those naming the import.
+func (s *studyFlags) addUnitFlags(f *pflag.FlagSet) {
+	f.StringVar(&s.units, "units", "", "spatial units `SPEC`: tiles:Z (slippy-map tiles of zoom Z), admin:LEVEL or a GeoJSON file of polygons (required)")
 	f.StringVar(&s.unitID, "unit-id", "id", "GeoJSON property `PROP` holding each unit's id")
+	f.StringVar(&s.unitName, "unit-name", "name", "GeoJSON property `PROP` holding each unit's name, shown on maps and in tables")
 	f.IntVar(&s.before, "before", 24, "months of the panel before the import's first month")
 	f.IntVar(&s.after, "after", 24, "months of the panel after its last month")
 	f.Float64Var(&s.minIntensity, "min-intensity", 0.05, "smallest share of imported features among a unit's features that makes it treated")
@@ -260,7 +267,7 @@ func (s *studyFlags) open(cmd *cobra.Command, g *globalOptions) (*studyInputs, e
 	}
 	// admin:LEVEL boundaries are taken as they were when the study window opens.
 	at := time.Date(in.episode.First.Year(), in.episode.First.Month(), 1, 0, 0, 0, 0, time.UTC).AddDate(0, -s.before, 0)
-	if in.units, err = storeUnits(ctx, st, s.units, s.unitID, orb.Bound{}, at); err != nil {
+	if in.units, err = storeUnits(ctx, st, s.units, s.unitID, s.unitName, orb.Bound{}, at); err != nil {
 		return fail(err)
 	}
 	return in, nil
@@ -270,8 +277,8 @@ func (s *studyFlags) open(cmd *cobra.Command, g *globalOptions) (*studyInputs, e
 // by extra when extra is not zero (a proposal's bound); admin:LEVEL units are
 // assembled from the store's boundary relations as they were at at (zero: the
 // latest).
-func storeUnits(ctx context.Context, st *ingest.Store, spec, idProp string, extra orb.Bound, at time.Time) (*spatial.Units, error) {
-	uo := spatial.Options{IDProperty: idProp, Bound: extra, Store: st, At: at}
+func storeUnits(ctx context.Context, st *ingest.Store, spec, idProp, nameProp string, extra orb.Bound, at time.Time) (*spatial.Units, error) {
+	uo := spatial.Options{IDProperty: idProp, NameProperty: nameProp, Bound: extra, Store: st, At: at}
 	stats, err := st.Stats(ctx)
 	if err != nil {
 		return nil, err
