@@ -16,8 +16,6 @@ import (
 // htmlPage is the data of the HTML template.
 type htmlPage struct {
 	view
-	MainWarnings  []string // general and per-layer warnings, shown open
-	OtherWarnings []string // about finer outcomes (key families, contributor groups), folded
 	Charts        []htmlChart
 	Checklist     *htmlChecklist
 	Assessment    *htmlAssessment
@@ -82,6 +80,9 @@ p.lead { font-size: 1.05rem; }
 .warnings { border-left: 6px solid var(--warn); background: #fff4ea; padding: .6rem 1rem; margin: 1.25rem 0; }
 .warnings h2 { margin-top: .2rem; color: #8a3c00; }
 details summary { cursor: pointer; color: #8a3c00; margin: .3rem 0; }
+.answer { border-left: 6px solid var(--calm); background: #eef5fb; padding: .4rem 1rem; margin: 1rem 0; }
+.answer h2 { margin-top: .3rem; }
+.answer li { margin: .25rem 0; }
 .ok { border-left: 6px solid #009e73; background: #eef8f4; padding: .6rem 1rem; }
 table { border-collapse: collapse; width: 100%; margin: .6rem 0 1rem; font-size: .92rem; background: #fff; }
 @media (max-width: 48rem) { table { display: block; overflow-x: auto; } main { padding: 1.25rem .75rem 3rem; } }
@@ -124,23 +125,30 @@ var page = template.Must(template.New("report").Funcs(pageFuncs).Parse(`<!DOCTYP
 <main>
 <h1>{{.Title}}</h1>
 {{if .Invented}}<p class="invented" role="note"><strong>{{inventedBanner}}</strong></p>
-{{end}}{{range .Lead}}<p class="lead">{{.}}</p>
-{{end}}
-{{if .HasAudit}}{{if .Warnings}}<section class="warnings" id="warnings">
+{{end}}{{if .HasAudit}}<section id="answer" class="answer">
+<h2>In short</h2>
+{{if .Answers}}<ul>{{range .Answers}}
+<li><strong>{{.Label}}</strong> <span class="muted">({{.Layer}})</span>: {{.Text}}</li>{{end}}
+</ul>
+{{else}}<p>No layer could be estimated; see the warnings and the table of all estimates.</p>
+{{end}}<p class="muted">Compared with matched areas the import did not touch, in the import's own areas. Terms are explained under <a href="#glossary">What the numbers mean</a>.</p>
+</section>
+{{if .Warnings}}<section class="warnings" id="warnings">
 <h2>Warnings</h2>
-<ul>{{range .MainWarnings}}
+{{if .TopWarnings}}<ul>{{range .TopWarnings}}
 <li>{{.}}</li>{{end}}
 </ul>
-{{if .OtherWarnings}}<details>
-<summary>{{len .OtherWarnings}} more about finer outcomes (key families, contributor groups)</summary>
-<ul>{{range .OtherWarnings}}
+{{end}}{{if .MoreWarnings}}<details>
+<summary>{{len .MoreWarnings}} more warning(s), including finer outcomes (key families, contributor groups)</summary>
+<ul>{{range .MoreWarnings}}
 <li>{{.}}</li>{{end}}
 </ul>
 </details>
 {{end}}</section>
 {{else}}<p class="ok" id="warnings">No warnings: the checks that run with every audit raised nothing.</p>
+{{end}}{{end}}{{range .Lead}}<p class="lead">{{.}}</p>
 {{end}}
-<section id="headline">
+{{if .HasAudit}}<section id="headline">
 <h2>How follow-on editing changed</h2>
 {{if .Headline}}<table class="headline">
 <thead><tr><th>Layer</th><th class="n">Relative effect ({{.Estimator}})</th><th class="n">95% interval</th><th>Pre-import test</th></tr></thead>
@@ -289,9 +297,6 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 	pg := htmlPage{view: newView(in)}
 	if p := in.provenance(); p != nil {
 		pg.Invented, pg.Provenance = p.Invented, provenanceRows(p)
-	}
-	if in.Audit != nil {
-		pg.MainWarnings, pg.OtherWarnings = splitWarnings(pg.Warnings, in.Audit.Effects)
 	}
 	for _, c := range charts {
 		pg.Charts = append(pg.Charts, htmlChart{Name: c.Name, Caption: c.Caption, SVG: template.HTML(c.SVG)})
