@@ -16,11 +16,11 @@ import (
 // htmlPage is the data of the HTML template.
 type htmlPage struct {
 	view
-	Charts        []htmlChart
-	Checklist     *htmlChecklist
-	Assessment    *htmlAssessment
-	Invented      bool      // the invented-data banner
-	Provenance    []provRow // where the figures come from
+	Charts     []htmlChart
+	Checklist  *htmlChecklist
+	Assessment *htmlAssessment
+	Invented   bool      // the invented-data banner
+	Provenance []provRow // where the figures come from
 }
 
 type htmlChart struct {

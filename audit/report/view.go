@@ -25,15 +25,15 @@ type view struct {
 	// warnings, shown on the first screen; MoreWarnings the rest, folded.
 	TopWarnings  []string
 	MoreWarnings []string
-	Headline  []headline
-	Glossary  []term
-	Areas     []string
-	Balance   []balanceRow
-	Estimates []estimateRow
-	Robust    []robustRow
-	Placebo   []placeboRow
-	Notes     []string
-	Cautions  []string
+	Headline     []headline
+	Glossary     []term
+	Areas        []string
+	Balance      []balanceRow
+	Estimates    []estimateRow
+	Robust       []robustRow
+	Placebo      []placeboRow
+	Notes        []string
+	Cautions     []string
 }
 
 type headline struct {
