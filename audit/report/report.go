@@ -181,7 +181,7 @@ func MakeCharts(in Input) ([]Chart, error) {
 		return nil, err
 	} else if ok {
 		out = append(out, Chart{Name: "balance", SVG: svg,
-			Caption: "How far the import areas differed from the comparison areas before the import, for each trait used in matching, in standard deviations: open rings before matching, filled dots after. Dots inside the dashed ±0.1 lines count as well balanced."})
+			Caption: "How far the import areas differed from the comparison areas before the import, for each trait used in matching, in standard deviations (the SMD). Each arrow starts at the difference against all untouched areas (grey bar) and ends at the difference against the matched comparison areas; arrows ending in the shaded zone (within ±0.1) count as alike, vermilion arrows ending outside it did not get there."})
 	}
 	if in.Units != nil {
 		svg, ok, err := MapSVG(in.Units, in.Audit.UnitList)
