@@ -2,6 +2,7 @@ package report
 
 import (
 	"bytes"
+	"cmp"
 	"fmt"
 	"html"
 	"image/color"
@@ -12,6 +13,8 @@ import (
 	"strings"
 
 	"github.com/paulmach/orb"
+	"github.com/paulmach/orb/planar"
+	xfont "golang.org/x/image/font"
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/font"
 	"gonum.org/v1/plot/plotter"
@@ -442,8 +445,10 @@ func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []by
 		return nil, false, nil
 	}
 	status := make(map[string]study.UnitStatus, len(list))
+	names := make(map[string]string, len(list))
 	for _, u := range list {
 		status[u.ID] = u.Status
+		names[u.ID] = u.Name
 	}
 	var b orb.Bound
 	first := true
@@ -492,16 +497,51 @@ func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []by
 			poly.Color = statusColour(s)
 			poly.LineStyle = draw.LineStyle{Color: color.White, Width: vg.Points(0.6)}
 			p.Add(poly)
-			if !seen[s] {
-				seen[s] = true
+			seen[s] = true
+		}
+	}
+	// Import areas are outlined on top of every fill, so that their edges
+	// show whatever their neighbours' colours.
+	var outlines []plot.Plotter
+	var labels mapLabels
+	for _, i := range order {
+		id := shapes.ID(i)
+		s := status[id]
+		if s == study.StatusTreated {
+			for _, rings := range polygonRings(shapes.Geometry(i)) {
+				xy := make(plotter.XYs, len(rings[0]))
+				for k, pt := range rings[0] {
+					xy[k] = pr.xy(pt)
+				}
+				line, err := plotter.NewLine(xy)
+				if err != nil {
+					return nil, false, fmt.Errorf("report: map of unit %q: %w", id, err)
+				}
+				line.LineStyle = importOutline
+				outlines = append(outlines, line)
+			}
+		}
+		if s == study.StatusTreated || s == study.StatusControl {
+			if c, ok := labelPoint(shapes.Geometry(i)); ok {
+				labels = append(labels, mapLabel{At: pr.xy(c), Text: cmp.Or(names[id], id), Treated: s == study.StatusTreated})
 			}
 		}
 	}
+	p.Add(outlines...)
+	if len(labels) > maxMapLabels { // too many to read: import areas only
+		labels = slices.DeleteFunc(labels, func(l mapLabel) bool { return !l.Treated })
+	}
+	if len(labels) <= maxMapLabels {
+		p.Add(labels)
+	}
 	for _, s := range []study.UnitStatus{study.StatusTreated, study.StatusControl, study.StatusCandidate, study.StatusExcluded, study.StatusDropped} {
 		if seen[s] {
-			th, _ := plotter.NewPolygon(plotter.XYs{{X: 0, Y: 0}, {X: 1, Y: 0}, {X: 1, Y: 1}})
+			th, _ := plotter.NewPolygon(plotter.XYs{{X: 0, Y: 0}, {X: 1, Y: 0}, {X: 1, Y: 1}, {X: 0, Y: 1}})
 			th.Color = statusColour(s)
 			th.LineStyle.Width = 0
+			if s == study.StatusTreated {
+				th.LineStyle = importOutline
+			}
 			p.Legend.Add(statusLabel(s), th)
 		}
 	}
@@ -520,6 +560,79 @@ func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []by
 	height := vg.Length(math.Min(math.Max(aspect, 0.3), 1.6)) * width
 	svg, err = render(p, width, height+vg.Centimeter, "Map of the study areas by role")
 	return svg, err == nil, err
+}
+
+// importOutline is the edge drawn around every import area on the map.
+var importOutline = draw.LineStyle{Color: okBlack, Width: vg.Points(1.6)}
+
+// maxMapLabels is the most unit names a map shows: beyond it only import
+// areas are named, and beyond it again none (the names are in units.geojson).
+const maxMapLabels = 40
+
+// mapLabel is a unit's name at its centroid, on a white box so that it reads
+// on any fill.
+type mapLabel struct {
+	At      plotter.XY
+	Text    string
+	Treated bool // import areas' names are bold
+}
+
+type mapLabels []mapLabel
+
+// Plot draws import areas' names first, then the others; a name that would
+// overlap one already drawn is left out (every name is in units.geojson).
+func (ls mapLabels) Plot(c draw.Canvas, plt *plot.Plot) {
+	tx, ty := plt.Transforms(&c)
+	var placed []vg.Rectangle
+	ordered := slices.Clone(ls)
+	slices.SortStableFunc(ordered, func(a, b mapLabel) int {
+		switch {
+		case a.Treated == b.Treated:
+			return 0
+		case a.Treated:
+			return -1
+		}
+		return 1
+	})
+	for _, l := range ordered {
+		ts := draw.TextStyle{Color: okBlack, Font: chartFont(9), Handler: plt.Title.TextStyle.Handler, XAlign: draw.XCenter, YAlign: draw.YCenter}
+		if l.Treated {
+			ts.Font.Weight = xfont.WeightBold
+		}
+		pt := vg.Point{X: tx(l.At.X), Y: ty(l.At.Y)}
+		w, h := ts.Width(l.Text), ts.Height(l.Text)
+		pad := vg.Points(1.5)
+		box := vg.Rectangle{Min: vg.Point{X: pt.X - w/2 - pad, Y: pt.Y - h/2 - pad}, Max: vg.Point{X: pt.X + w/2 + pad, Y: pt.Y + h/2 + pad}}
+		if slices.ContainsFunc(placed, func(r vg.Rectangle) bool { return overlaps(r, box) }) {
+			continue
+		}
+		placed = append(placed, box)
+		c.SetColor(color.NRGBA{0xff, 0xff, 0xff, 0xd8})
+		c.Fill(box.Path())
+		c.FillText(ts, pt, l.Text)
+	}
+}
+
+func overlaps(a, b vg.Rectangle) bool {
+	return a.Min.X < b.Max.X && b.Min.X < a.Max.X && a.Min.Y < b.Max.Y && b.Min.Y < a.Max.Y
+}
+
+// labelPoint is where a unit's name goes: the area centroid of its
+// largest polygon (orb/planar).
+func labelPoint(g orb.Geometry) (orb.Point, bool) {
+	var best orb.Polygon
+	bestArea := -1.0
+	for _, rings := range polygonRings(g) {
+		poly := orb.Polygon(rings)
+		if a := math.Abs(planar.Area(poly)); a > bestArea {
+			best, bestArea = poly, a
+		}
+	}
+	if best == nil || bestArea <= 0 {
+		return orb.Point{}, false
+	}
+	c, _ := planar.CentroidArea(best)
+	return c, true
 }
 
 // polygonRings returns the rings of each polygon of a polygonal geometry,

@@ -190,7 +190,7 @@ func MakeCharts(in Input) ([]Chart, error) {
 		}
 		if ok {
 			out = append(out, Chart{Name: "map", SVG: svg,
-				Caption: "The study areas by role. Import areas are compared with the matched comparison areas only; unused, excluded and left-out areas do not enter the estimates."})
+				Caption: "The study areas by role, with the import areas outlined in black and named in bold, and the comparison areas named where there is room (every name is in units.geojson). Import areas are compared with the matched comparison areas only; unused, excluded and left-out areas do not enter the estimates. The bar gives the scale."})
 		}
 	}
 	return out, nil
