@@ -109,17 +109,35 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 @media print { body { background: #fff; } figure { break-inside: avoid; } }
 `
 
-// page is the report's HTML: inline CSS, inline SVG, no scripts, and nothing
-// that loads from elsewhere. Its look is the project's own.
-var page = template.Must(template.New("report").Funcs(pageFuncs).Parse(`<!DOCTYPE html>
+// sharedTemplates are the parts every loadwake page shares: its head up to
+// the page's own style rules (given the title), and the sections it ends
+// with: where the figures come from (a list of provRow) and the cautions
+// (strings).
+const sharedTemplates = `{{define "head"}}<!DOCTYPE html>
 <html lang="en">
 <head>
 <meta charset="utf-8">
 <meta name="viewport" content="width=device-width, initial-scale=1">
 <meta name="generator" content="loadwake">
-<title>{{.Title}}</title>
+<title>{{.}}</title>
 <style>
-{{baseCSS}}</style>
+{{baseCSS}}{{end}}{{define "provenance"}}{{if .}}<section class="provenance" id="provenance">
+<h2>Where these figures come from</h2>
+<dl>{{range .}}
+<dt>{{.Label}}</dt><dd>{{.Text}}{{if .Links}}{{if .Text}}: {{end}}{{range $i, $l := .Links}}{{if $i}}, {{end}}{{if safeURL $l.URL}}<a href="{{$l.URL}}">{{$l.Text}}</a>{{else}}{{$l.Text}}{{end}}{{end}}{{end}}</dd>{{end}}
+</dl>
+</section>
+{{end}}{{end}}{{define "cautions"}}<section class="cautions" id="cautions">
+<h2>Cautions</h2>
+<ul>{{range .}}
+<li>{{.}}</li>{{end}}
+</ul>
+</section>
+{{end}}`
+
+// page is the report's HTML: inline CSS, inline SVG, no scripts, and nothing
+// that loads from elsewhere. Its look is the project's own.
+var page = template.Must(template.Must(template.New("report").Funcs(pageFuncs).Parse(sharedTemplates)).Parse(`{{template "head" .Title}}</style>
 </head>
 <body>
 <main>
@@ -262,19 +280,7 @@ var page = template.Must(template.New("report").Funcs(pageFuncs).Parse(`<!DOCTYP
 <li>{{.}}</li>{{end}}
 </ul>
 </section>
-{{end}}{{if .Provenance}}<section class="provenance" id="provenance">
-<h2>Where these figures come from</h2>
-<dl>{{range .Provenance}}
-<dt>{{.Label}}</dt><dd>{{.Text}}{{if .Links}}{{if .Text}}: {{end}}{{range $i, $l := .Links}}{{if $i}}, {{end}}{{if safeURL $l.URL}}<a href="{{$l.URL}}">{{$l.Text}}</a>{{else}}{{$l.Text}}{{end}}{{end}}{{end}}</dd>{{end}}
-</dl>
-</section>
-{{end}}<section class="cautions" id="cautions">
-<h2>Cautions</h2>
-<ul>{{range .Cautions}}
-<li>{{.}}</li>{{end}}
-</ul>
-</section>
-</main>
+{{end}}{{template "provenance" .Provenance}}{{template "cautions" .Cautions}}</main>
 </body>
 </html>
 `))

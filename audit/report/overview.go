@@ -256,15 +256,7 @@ func overviewGlossary(ov *audit.Overview) []term {
 	}
 }
 
-var overviewPage = template.Must(template.New("overview").Funcs(pageFuncs).Parse(`<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<meta name="generator" content="loadwake">
-<title>Follow-on editing after every import in the store</title>
-<style>
-{{baseCSS}}
+var overviewPage = template.Must(template.Must(template.New("overview").Funcs(pageFuncs).Parse(sharedTemplates)).Parse(`{{template "head" .Title}}
 main { max-width: 80rem; }
 .sorter { position: absolute; opacity: 0; width: 1px; height: 1px; }
 .ov { overflow-x: auto; }
@@ -284,7 +276,7 @@ main { max-width: 80rem; }
 </head>
 <body>
 <main>
-<h1>Follow-on editing after every import in the store</h1>
+<h1>{{.Title}}</h1>
 {{if .Invented}}<p class="invented" role="note"><strong>{{inventedBanner}}</strong></p>
 {{end}}<p class="lead">{{.Lead}}</p>
 <p class="muted">Sort with the ▲ (smallest first) and ▼ (largest first) buttons in each heading; imports without a figure stay last. Terms are explained below the table.</p>
@@ -306,19 +298,7 @@ main { max-width: 80rem; }
 <dt>{{.Name}}</dt><dd>{{.Text}}</dd>{{end}}
 </dl>
 </section>
-{{if .Provenance}}<section class="provenance" id="provenance">
-<h2>Where these figures come from</h2>
-<dl>{{range .Provenance}}
-<dt>{{.Label}}</dt><dd>{{.Text}}</dd>{{end}}
-</dl>
-</section>
-{{end}}<section class="cautions" id="cautions">
-<h2>Cautions</h2>
-<ul>{{range .Cautions}}
-<li>{{.}}</li>{{end}}
-</ul>
-</section>
-</main>
+{{template "provenance" .Provenance}}{{template "cautions" .Cautions}}</main>
 </body>
 </html>
 `))
@@ -329,6 +309,9 @@ var (
 	overviewHeaders = []string{"Import", "Area", "Size (versions)", "Geometry", "Attribute", "New features", "Deletions", "Neglected keys", "Warnings"}
 	overviewSortOf  = []int{0, 1, 2, 3, 4, 5, 6, 7, 8}
 )
+
+// overviewTitle heads the overview in every format.
+const overviewTitle = "Follow-on editing after every import in the store"
 
 // overviewLead is the sentence above the table.
 func overviewLead(ov *audit.Overview) string {
@@ -351,6 +334,7 @@ func overviewLead(ov *audit.Overview) string {
 // order).
 func WriteOverviewHTML(w io.Writer, ov *audit.Overview) error {
 	data := struct {
+		Title      string
 		Lead       string
 		Invented   bool
 		Columns    int
@@ -361,7 +345,7 @@ func WriteOverviewHTML(w io.Writer, ov *audit.Overview) error {
 		Glossary   []term
 		Provenance []provRow
 		Cautions   []string
-	}{Lead: overviewLead(ov), Columns: len(overviewHeaders), Headers: overviewHeaders, SortOf: overviewSortOf,
+	}{Title: overviewTitle, Lead: overviewLead(ov), Columns: len(overviewHeaders), Headers: overviewHeaders, SortOf: overviewSortOf,
 		Lines: newOverviewLines(ov), Glossary: overviewGlossary(ov), Cautions: ov.Cautions}
 	for _, s := range overviewSorts {
 		data.Sorts = append(data.Sorts, struct{ Name string }{s.Name})
@@ -377,7 +361,7 @@ func WriteOverviewHTML(w io.Writer, ov *audit.Overview) error {
 func WriteOverviewMarkdown(w io.Writer, ov *audit.Overview) error {
 	e := markdown.Escape
 	var b bytes.Buffer
-	b.WriteString("# Follow-on editing after every import in the store\n\n")
+	fmt.Fprintf(&b, "# %s\n\n", overviewTitle)
 	if ov.Provenance != nil && ov.Provenance.Invented {
 		fmt.Fprintf(&b, "> **%s**\n\n", e(InventedBanner))
 	}

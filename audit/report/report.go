@@ -196,17 +196,27 @@ func MakeCharts(in Input) ([]Chart, error) {
 	return out, nil
 }
 
+// layerNames are each layer's edits in plain words: a short label for the
+// first screen and a phrase for sentences.
+var layerNames = map[string]struct{ label, words string }{
+	layers.Geometry.String():   {"Moving or reshaping features", "edits that move or reshape existing features"},
+	layers.Attribute.String():  {"Changing tags", "edits that change the tags of existing features"},
+	layers.NewFeature.String(): {"Mapping new features", "newly mapped features"},
+	layers.Deletion.String():   {"Deleting features", "deleted features"},
+}
+
 // layerWords describes a layer's edits in plain words.
 func layerWords(layer string) string {
-	switch layer {
-	case layers.Geometry.String():
-		return "edits that move or reshape existing features"
-	case layers.Attribute.String():
-		return "edits that change the tags of existing features"
-	case layers.NewFeature.String():
-		return "newly mapped features"
-	case layers.Deletion.String():
-		return "deleted features"
+	if n, ok := layerNames[layer]; ok {
+		return n.words
 	}
 	return layer + " counts"
+}
+
+// layerLabel names a layer's edits in a few plain words.
+func layerLabel(layer string) string {
+	if n, ok := layerNames[layer]; ok {
+		return n.label
+	}
+	return layer
 }

@@ -49,21 +49,6 @@ type answer struct{ Label, Layer, Text string }
 // maxTopWarnings is how many warnings the first screen shows.
 const maxTopWarnings = 3
 
-// layerLabel names a layer's edits in a few plain words.
-func layerLabel(layer string) string {
-	switch layer {
-	case layers.Geometry.String():
-		return "Moving or reshaping features"
-	case layers.Attribute.String():
-		return "Changing tags"
-	case layers.NewFeature.String():
-		return "Mapping new features"
-	case layers.Deletion.String():
-		return "Deleting features"
-	}
-	return layer
-}
-
 // wholeAbs formats |x| as a whole percentage without a sign.
 func wholeAbs(x float64) string { return fmt.Sprintf("%.0f%%", math.Abs(math.Round(100*x))) }
 
