@@ -25,6 +25,7 @@ type assessOptions struct {
 	rules    string
 	units    string
 	unitID   string
+	unitName string
 	distance float64
 	nearest  int
 	noAudit  bool
@@ -64,6 +65,7 @@ figures are a first screen for local review, not a conflation or a decision.`,
 	f.StringVar(&o.rules, "rules", "", "rule `FILE` (default: the built-in rules; see loadwake rules show)")
 	f.StringVar(&o.units, "units", "tiles:14", `spatial units: "tiles:Z" or a GeoJSON file of polygons`)
 	f.StringVar(&o.unitID, "unit-id", "id", "GeoJSON property holding each unit's id")
+	f.StringVar(&o.unitName, "unit-name", "name", "GeoJSON property `PROP` holding each unit's name")
 	f.Float64Var(&o.distance, "distance", proposal.DefaultDuplicateDistance, "metres within which an existing feature of the same class is a likely duplicate")
 	f.IntVar(&o.nearest, "nearest", proposal.DefaultNearestImports, "past imports to compare with")
 	f.BoolVar(&o.noAudit, "no-audit", false, "do not audit the nearest past imports (faster; no expected effects or neglected keys)")
@@ -102,7 +104,7 @@ func runAssess(cmd *cobra.Command, g *cli.Globals, o *assessOptions, path string
 		return err
 	}
 	defer st.Close()
-	units, err := cli.StoreUnits(ctx, st, o.units, o.unitID, p.Bound, time.Time{})
+	units, err := cli.StoreUnits(ctx, st, o.units, o.unitID, o.unitName, p.Bound, time.Time{})
 	if err != nil {
 		return err
 	}

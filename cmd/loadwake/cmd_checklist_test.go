@@ -151,6 +151,47 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 		}
 	})
 
+	t.Run("imports --audit", func(t *testing.T) {
+		dir := filepath.Join(tmp, "overview")
+		csvPath := filepath.Join(tmp, "overview.csv")
+		out, err := execRootOut(t, "--store", store, "imports", "--audit", "--units", districts, "--draws", "99", "--out", dir, "--csv", csvPath)
+		if err != nil {
+			t.Fatalf("imports --audit: %v\n%s", err, out)
+		}
+		var ov struct {
+			Schema  string `json:"schema"`
+			Imports []struct {
+				Import  string `json:"import"`
+				Effects []struct {
+					Layer string `json:"layer"`
+				} `json:"effects"`
+				TopKeys []struct {
+					Key string `json:"key"`
+				} `json:"top_keys"`
+				Error string `json:"error"`
+			} `json:"imports"`
+		}
+		data, err := os.ReadFile(filepath.Join(dir, "overview.json"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := json.Unmarshal(data, &ov); err != nil || ov.Schema != "loadwake-overview/1" || len(ov.Imports) == 0 {
+			t.Fatalf("overview.json: %v, schema %q, %d imports", err, ov.Schema, len(ov.Imports))
+		}
+		// building:levels is planted as neglected (sim.DefaultConfig).
+		if r := ov.Imports[0]; r.Error != "" || len(r.Effects) == 0 || len(r.TopKeys) == 0 || r.TopKeys[0].Key != "building:levels" {
+			t.Errorf("first row %+v", r)
+		}
+		for _, name := range []string{"overview.html", "overview.md", "overview.csv"} {
+			if fi, err := os.Stat(filepath.Join(dir, name)); err != nil || fi.Size() == 0 {
+				t.Errorf("%s: %v", name, err)
+			}
+		}
+		if !strings.Contains(out, "every import audited over") || !strings.Contains(out, "wrote "+csvPath) {
+			t.Errorf("output:\n%s", out)
+		}
+	})
+
 	t.Run("errors", func(t *testing.T) {
 		empty := filepath.Join(tmp, "empty.geojson")
 		os.WriteFile(empty, []byte(`{"type":"FeatureCollection","features":[]}`), 0o644)
@@ -172,6 +213,9 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 			{"checklist without units", []string{"checklist", "--changesets", csList}, true, "--units"},
 			{"bad provenance", []string{"checklist", "--provenance", "source~("}, true, "--provenance"},
 			{"bad types", []string{"checklist", "--provenance", "tiger:*", "--types", "x"}, true, "--types"},
+			{"imports study flag without --audit", []string{"imports", "--units", districts}, true, "add --audit"},
+			{"imports --audit without units", []string{"imports", "--audit", "--out", tmp}, true, "--units"},
+			{"imports --audit without output", []string{"imports", "--audit", "--units", districts}, true, "--out DIR"},
 		}
 		for _, c := range cases {
 			t.Run(c.name, func(t *testing.T) {

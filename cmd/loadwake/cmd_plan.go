@@ -132,7 +132,7 @@ func runPlan(cmd *cobra.Command, g *cli.Globals, o *planOptions, path string) er
 		return err
 	}
 	defer st.Close()
-	units, err := cli.StoreUnits(ctx, st, o.units, o.unitID, p.Bound, time.Time{})
+	units, err := cli.StoreUnits(ctx, st, o.units, o.unitID, "name", p.Bound, time.Time{})
 	if err != nil {
 		return err
 	}

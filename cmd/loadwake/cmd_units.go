@@ -21,10 +21,11 @@ var _ spatial.VersionReader = (*ingest.Store)(nil)
 
 // unitsOptions holds the flags of `loadwake units`.
 type unitsOptions struct {
-	units   string // unit specification
-	unitID  string // id property of a GeoJSON unit file
-	at      string // YYYY-MM-DD the boundaries are taken at; empty for the latest
-	geojson string // output file; "-" for stdout
+	units    string // unit specification
+	unitID   string // id property of a GeoJSON unit file
+	unitName string // name property of a GeoJSON unit file
+	at       string // YYYY-MM-DD the boundaries are taken at; empty for the latest
+	geojson  string // output file; "-" for stdout
 }
 
 func newUnitsCommand(g *cli.Globals) *cobra.Command {
@@ -69,6 +70,7 @@ the units against the community's import guidelines and local knowledge.`,
 	}
 	cmd.Flags().StringVar(&o.units, "units", "", `units: "tiles:Z", a GeoJSON file, or "admin:LEVEL[,name=GLOB][,within=NAME]"`)
 	cmd.Flags().StringVar(&o.unitID, "unit-id", "id", "property of a GeoJSON unit file holding each unit's id")
+	cmd.Flags().StringVar(&o.unitName, "unit-name", "name", "property of a GeoJSON unit file holding each unit's name")
 	cmd.Flags().StringVar(&o.at, "at", "", "date (YYYY-MM-DD) admin boundaries are taken at (default: latest)")
 	cmd.Flags().StringVar(&o.geojson, "geojson", "", `output GeoJSON file ("-" for stdout)`)
 	return cmd
@@ -80,7 +82,7 @@ func runUnits(ctx context.Context, st *ingest.Store, o *unitsOptions, at time.Ti
 	if err != nil {
 		return err
 	}
-	uo := spatial.Options{IDProperty: o.unitID, Store: st, At: at}
+	uo := spatial.Options{IDProperty: o.unitID, NameProperty: o.unitName, Store: st, At: at}
 	if stats.HasBBox {
 		uo.Bound = stats.BBox
 	}

@@ -129,7 +129,7 @@ func TestVersionOf(t *testing.T) {
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			if got := cli.VersionOf(&c.info); got != c.want {
-				t.Errorf("versionOf = %q, want %q", got, c.want)
+				t.Errorf("cli.VersionOf = %q, want %q", got, c.want)
 			}
 		})
 	}

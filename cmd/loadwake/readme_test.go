@@ -35,11 +35,12 @@ func readmeCommands(t testing.TB, path, lang string) []readmeCommand {
 	for sc.Scan() {
 		n++
 		text := sc.Text()
+		fence := strings.TrimSpace(text) // blocks inside list items are indented
 		switch {
-		case !in && text == "```"+lang:
+		case !in && fence == "```"+lang:
 			in = true
 			continue
-		case in && text == "```":
+		case in && fence == "```":
 			in = false
 			continue
 		case !in:

@@ -48,6 +48,12 @@ const (
 	progressNarrow      = 72 // terminals narrower than this get the short form
 )
 
+// Bar returns a bar counting total items with an ETA (silent when stderr is
+// not a terminal); the caller sets, finishes and exits it.
+func (p *Progress) Bar(desc string, total int64) *progressbar.ProgressBar {
+	return p.bar(desc, total, false)
+}
+
 // bar returns a bar counting to total (bytes when isBytes), with an ETA, or a
 // spinner with the elapsed time when total is negative.
 func (p *Progress) bar(desc string, total int64, isBytes bool) *progressbar.ProgressBar {

@@ -47,6 +47,7 @@ type StudyFlags struct {
 	Rules        string
 	Units        string
 	UnitID       string
+	UnitName     string
 	Before       int
 	After        int
 	MinIntensity float64
@@ -60,10 +61,16 @@ type StudyFlags struct {
 
 // AddFlags adds the study flags to cmd.
 func (s *StudyFlags) AddFlags(cmd *cobra.Command, g *Globals) {
-	f := cmd.Flags()
 	AddImportFlags(cmd, g, &s.ImportID, &s.Changesets, &s.Account, &s.Rules)
-	f.StringVar(&s.Units, "units", "", "spatial units `SPEC`: tiles:Z (slippy-map tiles of zoom Z) or a GeoJSON file of polygons (required)")
+	s.AddUnitFlags(cmd.Flags())
+}
+
+// AddUnitFlags adds the flags of the units, the panel and the matching: all
+// study flags but those naming the import.
+func (s *StudyFlags) AddUnitFlags(f *pflag.FlagSet) {
+	f.StringVar(&s.Units, "units", "", "spatial units `SPEC`: tiles:Z (slippy-map tiles of zoom Z), admin:LEVEL or a GeoJSON file of polygons (required)")
 	f.StringVar(&s.UnitID, "unit-id", "id", "GeoJSON property `PROP` holding each unit's id")
+	f.StringVar(&s.UnitName, "unit-name", "name", "GeoJSON property `PROP` holding each unit's name, shown on maps and in tables")
 	f.IntVar(&s.Before, "before", 24, "months of the panel before the import's first month")
 	f.IntVar(&s.After, "after", 24, "months of the panel after its last month")
 	f.Float64Var(&s.MinIntensity, "min-intensity", 0.05, "smallest share of imported features among a unit's features that makes it treated")
@@ -138,6 +145,11 @@ func (s *StudyFlags) validate() error {
 	if err := s.checkTreatment(); err != nil {
 		return err
 	}
+	return s.ValidateUnits()
+}
+
+// ValidateUnits checks the flags AddUnitFlags adds.
+func (s *StudyFlags) ValidateUnits() error {
 	switch {
 	case s.Units == "":
 		return Usagef("--units is required: tiles:Z or a GeoJSON file of polygons")
@@ -282,7 +294,7 @@ func (s *StudyFlags) Open(cmd *cobra.Command, g *Globals) (*StudyInputs, error) 
 	}
 	// admin:LEVEL boundaries are taken as they were when the study window opens.
 	at := time.Date(first.Year(), first.Month(), 1, 0, 0, 0, 0, time.UTC).AddDate(0, -s.Before, 0)
-	if in.Units, err = StoreUnits(ctx, st, s.Units, s.UnitID, orb.Bound{}, at); err != nil {
+	if in.Units, err = StoreUnits(ctx, st, s.Units, s.UnitID, s.UnitName, orb.Bound{}, at); err != nil {
 		return fail(err)
 	}
 	return in, nil
@@ -292,8 +304,8 @@ func (s *StudyFlags) Open(cmd *cobra.Command, g *Globals) (*StudyInputs, error) 
 // by extra when extra is not zero (a proposal's bound); admin:LEVEL units are
 // assembled from the store's boundary relations as they were at at (zero: the
 // latest).
-func StoreUnits(ctx context.Context, st *ingest.Store, spec, idProp string, extra orb.Bound, at time.Time) (*spatial.Units, error) {
-	uo := spatial.Options{IDProperty: idProp, Bound: extra, Store: st, At: at}
+func StoreUnits(ctx context.Context, st *ingest.Store, spec, idProp, nameProp string, extra orb.Bound, at time.Time) (*spatial.Units, error) {
+	uo := spatial.Options{IDProperty: idProp, NameProperty: nameProp, Bound: extra, Store: st, At: at}
 	stats, err := st.Stats(ctx)
 	if err != nil {
 		return nil, err
