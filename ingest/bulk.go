@@ -369,19 +369,30 @@ const maxFanIn = 64
 
 // reduceRuns merges groups of spilled runs until at most maxFanIn are left.
 func (b *bulkIngest) reduceRuns(ctx context.Context) error {
-	for len(b.runs) > maxFanIn {
+	runs, err := reduceRunFiles(ctx, b.runs, b.runDir)
+	if err != nil {
+		return fmt.Errorf("%s: %w", b.s.name(), err)
+	}
+	b.runs = runs
+	return nil
+}
+
+// reduceRunFiles merges groups of the sorted runs into longer runs in dir
+// until at most maxFanIn are left, and returns the runs left.
+func reduceRunFiles(ctx context.Context, runs []string, dir string) ([]string, error) {
+	for len(runs) > maxFanIn {
 		var next []string
-		for i := 0; i < len(b.runs); i += maxFanIn {
-			group := b.runs[i:min(i+maxFanIn, len(b.runs))]
-			path, err := sortrun.MergeFiles(ctx, group, filepath.Join(b.runDir, fmt.Sprintf("merged-%d-%05d", len(b.runs), len(next))))
+		for i := 0; i < len(runs); i += maxFanIn {
+			group := runs[i:min(i+maxFanIn, len(runs))]
+			path, err := sortrun.MergeFiles(ctx, group, filepath.Join(dir, fmt.Sprintf("merged-%d-%05d", len(runs), len(next))))
 			if err != nil {
-				return fmt.Errorf("%s: %w", b.s.name(), err)
+				return nil, err
 			}
 			next = append(next, path)
 		}
-		b.runs = next
+		runs = next
 	}
-	return nil
+	return runs, nil
 }
 
 func (b *bulkIngest) setMarker() error {

@@ -75,4 +75,21 @@
 // makes. A bulk ingest stopped by its context while it reads stores nothing;
 // a file abandoned at a parse error keeps the items read before the error,
 // as the transactional path keeps its committed batches.
+//
+// Derived data come through PutDerived (write batches) or, for many records
+// in any key order, PutDerivedSorted: sorted runs of 32 MiB in a temporary
+// folder, merged and written by the StreamWriter in incremental mode at the
+// level above the stored data (falling back to write batches while the
+// memtable holds writes, and in memory).
+//
+// # Memory
+//
+// Badger reads and writes its tables, value log and memtable logs through
+// memory mappings, so every page a scan or a write touches would stay in the
+// process's resident set until the store closes, and the resident set would
+// grow with the store. On Linux a store on disk watches the file-backed part
+// of the resident set every 200 ms and, above Options.WithMappedResident
+// (256 MiB by default), asks the kernel to reclaim the pages of its own
+// files' mappings (MADV_PAGEOUT, which never discards data: a page used again
+// is read again from the file or the page cache).
 package ingest

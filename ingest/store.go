@@ -69,6 +69,7 @@ type Options struct {
 	tableSize    int64
 	compactors   int
 	syncWrites   bool
+	mappedRes    int64 // see WithMappedResident
 }
 
 // DefaultOptions returns options tuned for loading on a small machine in
@@ -87,8 +88,19 @@ func DefaultOptions() Options {
 		indexCache:   32 << 20,
 		tableSize:    4 << 20,
 		compactors:   2,
+		mappedRes:    defaultMappedResident,
 	}
 }
+
+// WithMappedResident returns a copy that keeps at most about n bytes of the
+// store's memory-mapped files in the process's resident set (on Linux; 0
+// leaves them to the kernel). Badger maps its table files and reads and
+// writes them through the mappings, so without a limit every table a long
+// scan or a large write touches stays resident until the store is closed,
+// and the process's resident set grows with the store. Above the limit the
+// store asks the kernel to reclaim those pages (they are file pages: nothing
+// is lost, a page used again is read again). The default is 256 MiB.
+func (o Options) WithMappedResident(n int64) Options { o.mappedRes = n; return o }
 
 // WithLogger returns a copy that sends messages to l; nil means silent.
 func (o Options) WithLogger(l Logger) Options {
@@ -197,7 +209,8 @@ type Store struct {
 	dir  string // "" in memory
 	opts Options
 
-	writeMu sync.Mutex // serialises Ingest
+	writeMu  sync.Mutex      // serialises Ingest
+	resident *residentKeeper // bounds the mapped files' resident pages
 	// interrupted is set while the store holds the remains of a bulk ingest
 	// that did not finish (its marker file is in dir): reads refuse it with
 	// ErrInterrupted and the next Ingest starts the bulk ingest again.
@@ -312,6 +325,7 @@ func newStore(db *badger.DB, dir string, opts Options) (*Store, error) {
 		db.Close()
 		return nil, err
 	}
+	s.resident = startResidentKeeper(dir, opts.mappedRes)
 	return s, nil
 }
 
@@ -358,6 +372,7 @@ func (s *Store) checkSchema() error {
 
 // Close flushes and closes the store.
 func (s *Store) Close() error {
+	s.resident.close()
 	if err := s.db.Close(); err != nil {
 		return fmt.Errorf("close %s: %v", s.name(), err)
 	}

@@ -79,14 +79,21 @@
 // first edits and the node position table, and hands runs of whole objects
 // (consecutive ids, about 512 versions) to Options.Workers goroutines. Each
 // worker has its own locator (caches of way and relation versions) and counts
-// its own events; one writer goroutine stores the batches. A version is
+// its own events; one writer goroutine stores the batches. A store that
+// sorts in bulk (*ingest.Store's PutDerivedSorted) takes all of the pass's
+// events at once: it sorts them in runs on disk and writes them in key order
+// at the end of the pass, without the write-ahead log, memtables and
+// compactions that writing some 2 keys per version in scan order costs; a
+// Source without it gets one write batch per batch of events. A version is
 // compared only with its own object's versions and placed from data that do
 // not change during the pass, and the keys are fixed by the events, so the
 // stored results are byte-identical whatever the number of workers.
 //
 // # Memory
 //
-// The pass holds, per worker, one batch of events (Options.BatchSize), a run of
+// The pass holds, per worker, one batch of events (Options.BatchSize), the
+// store's sort buffer for the events (32 MiB, the rest in temporary runs under
+// Options.TempDir: about 110 bytes per event), a run of
 // versions and a cache of at most 1024 way and 1024 relation version lists;
 // a few runs queued between the scan and the workers; one sorting run of the
 // node→way table while it is built (16 MiB); and the per-account first-edit

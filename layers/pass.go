@@ -493,16 +493,26 @@ func (w *worker) flush(ctx context.Context, t osm.Type) error {
 	return nil
 }
 
+// sortedWriter is a Source that takes derived records in any key order and
+// writes them sorted in bulk (*ingest.Store's PutDerivedSorted): the events
+// of a pass come in scan order, not in key order, and a store writing them
+// in key order needs neither a write-ahead log nor compactions.
+type sortedWriter interface {
+	PutDerivedSorted(ctx context.Context, tempDir string, fill func(put func(key, value []byte) error) error) error
+}
+
 func (p *pass) startWriter() {
 	p.queue = make(chan []Event, 1)
 	p.free = make(chan []Event, len(p.workers)+2)
 	p.done = make(chan error, 1)
 	queue := p.queue
-	go func() {
+	// drain takes every batch from the queue, hands it to write until write
+	// fails, and returns the batch to the free list.
+	drain := func(write func([]Event) error) error {
 		var err error
 		for b := range queue {
 			if err == nil {
-				if err = p.write(b); err != nil {
+				if err = write(b); err != nil {
 					p.werr.Store(&err)
 				}
 			}
@@ -511,6 +521,20 @@ func (p *pass) startWriter() {
 			case p.free <- b[:0]:
 			default:
 			}
+		}
+		return err
+	}
+	sw, ok := p.src.(sortedWriter)
+	if !ok {
+		go func() { p.done <- drain(p.write) }()
+		return
+	}
+	go func() {
+		err := sw.PutDerivedSorted(p.ctx, p.opts.TempDir, func(put func(k, v []byte) error) error {
+			return drain(func(evs []Event) error { return p.putEvents(evs, put) })
+		})
+		if err != nil {
+			err = fmt.Errorf("write events: %w", err)
 		}
 		p.done <- err
 	}()
@@ -529,23 +553,26 @@ func (p *pass) stopWriter() error {
 
 // write stores one batch of events under their time and changeset keys.
 func (p *pass) write(evs []Event) error {
-	err := p.src.PutDerived(p.ctx, func(put func(k, v []byte) error) error {
-		for i := range evs {
-			e := &evs[i]
-			p.vbuf = encodeValue(p.vbuf[:0], e)
-			p.kbuf = eventKey(p.kbuf[:0], e)
-			if err := put(p.kbuf, p.vbuf); err != nil {
-				return err
-			}
-			p.kbuf = changesetKey(p.kbuf[:0], e)
-			if err := put(p.kbuf, nil); err != nil {
-				return err
-			}
-		}
-		return nil
-	})
+	err := p.src.PutDerived(p.ctx, func(put func(k, v []byte) error) error { return p.putEvents(evs, put) })
 	if err != nil {
 		return fmt.Errorf("write events: %w", err)
+	}
+	return nil
+}
+
+// putEvents puts each event under its time key and its changeset key.
+func (p *pass) putEvents(evs []Event, put func(k, v []byte) error) error {
+	for i := range evs {
+		e := &evs[i]
+		p.vbuf = encodeValue(p.vbuf[:0], e)
+		p.kbuf = eventKey(p.kbuf[:0], e)
+		if err := put(p.kbuf, p.vbuf); err != nil {
+			return err
+		}
+		p.kbuf = changesetKey(p.kbuf[:0], e)
+		if err := put(p.kbuf, nil); err != nil {
+			return err
+		}
 	}
 	return nil
 }

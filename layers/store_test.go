@@ -55,9 +55,11 @@ func eventStrings(tb testing.TB, src DerivedReader) []string {
 }
 
 // TestStoreMatchesMemory runs the pass on real histories (osm module
-// testdata) ingested into the Badger store, with one, two and three
+// testdata) ingested into the Badger store, in memory and on disk (where the
+// events go through the store's sorted bulk write), with one, two and three
 // classifying goroutines, and on the in-memory fake; all must store the same
-// events.
+// events, and so must a forced second pass on disk (which drops the first's
+// events and writes again over the store's earlier writes).
 func TestStoreMatchesMemory(t *testing.T) {
 	for _, file := range []string{"annotate/testdata/way_6394949.osm", "annotate/testdata/relation_4017808.osm"} {
 		t.Run(filepath.Base(file), func(t *testing.T) {
@@ -65,21 +67,40 @@ func TestStoreMatchesMemory(t *testing.T) {
 			mem := newMemSource(t, readOSMXML(t, path)...)
 			memSum := runPass(t, mem)
 			want := eventStrings(t, mem)
-			for _, workers := range []int{1, 2, 3} {
-				st := ingested(t, "", path)
+			same := func(t *testing.T, what string, st *ingest.Store) {
+				t.Helper()
+				got := eventStrings(t, st)
+				if len(got) != len(want) {
+					t.Fatalf("%s: store has %d events, fake %d", what, len(got), len(want))
+				}
+				for i := range want {
+					if got[i] != want[i] {
+						t.Errorf("%s: event %d\nstore %s\n fake %s", what, i, got[i], want[i])
+						break
+					}
+				}
+			}
+			for _, c := range []struct {
+				workers int
+				disk    bool
+			}{{1, false}, {2, false}, {3, false}, {1, true}, {3, true}} {
+				dir := ""
+				if c.disk {
+					dir = filepath.Join(t.TempDir(), "store")
+				}
+				workers := c.workers
+				st := ingested(t, dir, path)
+				what := fmt.Sprintf("workers %d, disk %v", workers, c.disk)
 				sum, err := Run(context.Background(), st, rules.Default(), Options{Workers: workers, BatchSize: 100, chunk: 5})
 				if err != nil {
 					t.Fatal(err)
 				}
-				got := eventStrings(t, st)
-				if len(got) != len(want) {
-					t.Fatalf("workers %d: store has %d events, fake %d", workers, len(got), len(want))
-				}
-				for i := range want {
-					if got[i] != want[i] {
-						t.Errorf("workers %d: event %d\nstore %s\n fake %s", workers, i, got[i], want[i])
-						break
+				same(t, what, st)
+				if c.disk {
+					if _, err := Run(context.Background(), st, rules.Default(), Options{Workers: workers, Force: true}); err != nil {
+						t.Fatal(err)
 					}
+					same(t, what+", forced again", st)
 				}
 				if sum.Fingerprint != memSum.Fingerprint || sum.WaysMissingNodes != memSum.WaysMissingNodes {
 					t.Errorf("workers %d: summary %+v, fake %+v", workers, sum, memSum)

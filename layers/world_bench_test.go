@@ -5,6 +5,8 @@ import (
 	"flag"
 	"os"
 	"path/filepath"
+	"runtime"
+	"runtime/debug"
 	"runtime/metrics"
 	"strconv"
 	"strings"
@@ -29,7 +31,9 @@ var (
 // fresh copy of the ingested store made with the timer stopped. Per-version
 // cost should not grow with the world: ns/version and cpu-ns/version are the
 // figures to compare across sizes; peak-heap-B is the largest live heap
-// sampled during the pass (runtime/metrics, every 10 ms).
+// sampled during the pass (runtime/metrics, every 10 ms) and peak-rss-B the
+// process's peak resident set during the pass (VmHWM, reset before each
+// pass; Linux only, else not reported), the test binary included.
 func BenchmarkClassifyWorld(b *testing.B) {
 	for _, s := range strings.Split(*worldScales, ",") {
 		scale, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
@@ -43,11 +47,14 @@ func BenchmarkClassifyWorld(b *testing.B) {
 			b.ReportAllocs()
 			var sum Summary
 			var cpu float64
-			var peak uint64
+			var peak, rss uint64
 			for b.Loop() {
 				b.StopTimer()
 				st := openCopy(b, dir)
 				warm(b, st)
+				runtime.GC()
+				debug.FreeOSMemory()
+				resetPeakRSS()
 				stop := sampleHeap(&peak)
 				b.StartTimer()
 				c0 := cpuTime(b)
@@ -57,6 +64,9 @@ func BenchmarkClassifyWorld(b *testing.B) {
 				cpu += cpuTime(b) - c0
 				b.StopTimer()
 				stop()
+				if n, ok := peakRSS(); ok {
+					rss = max(rss, n)
+				}
 				if err := st.Close(); err != nil {
 					b.Fatal(err)
 				}
@@ -71,6 +81,9 @@ func BenchmarkClassifyWorld(b *testing.B) {
 			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(versions)/float64(b.N), "ns/version")
 			b.ReportMetric(cpu*1e9/float64(versions)/float64(b.N), "cpu-ns/version")
 			b.ReportMetric(float64(peak), "peak-heap-B")
+			if rss > 0 {
+				b.ReportMetric(float64(rss), "peak-rss-B")
+			}
 		})
 	}
 }
@@ -151,4 +164,26 @@ func sampleHeap(peak *uint64) (stop func()) {
 		}
 	})
 	return func() { close(quit); wg.Wait() }
+}
+
+// resetPeakRSS resets the process's peak resident set (Linux: writing 5 to
+// /proc/self/clear_refs resets VmHWM to the current resident set).
+func resetPeakRSS() {
+	os.WriteFile("/proc/self/clear_refs", []byte("5"), 0)
+}
+
+// peakRSS returns the process's peak resident set since the last
+// resetPeakRSS (VmHWM in /proc/self/status).
+func peakRSS() (uint64, bool) {
+	b, err := os.ReadFile("/proc/self/status")
+	if err != nil {
+		return 0, false
+	}
+	for _, line := range strings.Split(string(b), "\n") {
+		if rest, ok := strings.CutPrefix(line, "VmHWM:"); ok {
+			kb, err := strconv.ParseUint(strings.TrimSpace(strings.TrimSuffix(strings.TrimSpace(rest), "kB")), 10, 64)
+			return kb << 10, err == nil
+		}
+	}
+	return 0, false
 }
