@@ -10,6 +10,8 @@ import (
 	"strings"
 	"testing"
 
+	"gonum.org/v1/gonum/stat"
+
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/internal/reftest"
@@ -33,6 +35,8 @@ func TestAuditCoverage(t *testing.T) {
 	const worlds = 200
 	cfg0 := sim.DefaultConfig()
 	covered, ran, sum := 0, 0, 0.0
+	var logs, ses []float64 // log ratio estimates and their standard errors, for the diagnosis
+	above, below := 0, 0    // misses: interval wholly above or below the planted effect
 	for seed := 1; seed <= worlds; seed++ {
 		cfg := sim.DefaultConfig()
 		cfg.Seed = uint64(seed)
@@ -57,10 +61,19 @@ func TestAuditCoverage(t *testing.T) {
 		}
 		ran++
 		sum += *e.RelativeEffect
-		if want := cfg.Effects.Attribute - 1; e.CI95[0] <= want && want <= e.CI95[1] {
+		logs, ses = append(logs, math.Log1p(*e.RelativeEffect)), append(ses, e.SE)
+		switch want := cfg.Effects.Attribute - 1; {
+		case e.CI95[0] > want:
+			above++
+		case e.CI95[1] < want:
+			below++
+		default:
 			covered++
 		}
 	}
+	mean, sd := stat.MeanStdDev(logs, nil)
+	t.Logf("log ratio: mean %+.4f (planted %+.4f), standard deviation across worlds %.4f, mean reported standard error %.4f; misses: %d intervals above the planted effect, %d below",
+		mean, math.Log(cfg0.Effects.Attribute), sd, stat.Mean(ses, nil), above, below)
 	lo, hi := reftest.Wilson(covered, ran)
 	t.Logf("coverage of the planted attribute effect %+.2f: %d of %d worlds (%.1f%%, Wilson 95%% [%.1f, %.1f]); mean estimate %+.3f",
 		cfg0.Effects.Attribute-1, covered, ran, 100*float64(covered)/float64(ran), 100*lo, 100*hi, sum/float64(ran))

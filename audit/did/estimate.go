@@ -255,10 +255,10 @@ func estimateOutcome(ctx context.Context, p *panel.Panel, o int, cl []int, G int
 	if desErr != nil {
 		add(EstimatorTWFELinear, nil, desErr)
 	} else {
-		tw, err := twfeEventStudy(design, y, cl, G, opts)
+		tw, err := twfeEventStudy(ctx, design, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorTWFELinear))
 		add(EstimatorTWFELinear, tw, err)
 	}
-	dd, err := did2x2(p, y, cohortsWithPre(p), cl, G, opts, rngFor(opts.Seed, name, EstimatorDiD2x2))
+	dd, err := did2x2(ctx, p, y, cohortsWithPre(p), cl, G, opts, rngFor(opts.Seed, name, EstimatorDiD2x2))
 	add(EstimatorDiD2x2, dd, err)
 	return r
 }
