@@ -128,6 +128,9 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 		def.Window = did.Window{Pre: min(so.Before, 12), Post: so.After}
 		eo = def
 	}
+	if eo.Family == nil {
+		eo.Family = familyLayers()
+	}
 	est, err := did.Estimate(ctx, st.Panel, eo)
 	if err != nil {
 		return nil, fmt.Errorf("estimate: %w", err)
@@ -169,12 +172,11 @@ func newReport(ep *episode.Episode, st *study.Study, est *did.Estimates, so stud
 			MeanControl: orZero(b.MeanControl), MatchedMeanControl: orZero(b.MatchedMeanControl),
 			SMDBefore: orZero(b.SMD), SMDAfter: orZero(b.MatchedSMD), FlagBefore: b.Imbalanced, FlagAfter: b.MatchedImbalanced})
 	}
-	var alarms []string
-	r.Robustness, alarms = robustness(est.Effects)
-	r.Warnings = append(r.Warnings, alarms...)
-	r.Warnings = append(r.Warnings, est.Warnings...)
-	r.Warnings = append(r.Warnings, growthWarnings(st.Balance, r.Units.Treated, r.Units.Controls)...)
+	var alarms, signNotes []string
+	r.Robustness, alarms, signNotes = robustness(est.Effects)
+	r.Warnings = orderWarnings(alarms, est.Warnings, growthWarnings(st.Balance, r.Units.Treated, controlWeights(st.Panel)))
 	r.Notes = append(r.Notes, est.Notes...)
+	r.Notes = append(r.Notes, signNotes...)
 	r.UnitFigures = unitFigures(st.Panel, est.Window)
 	if st.Outside > 0 {
 		r.Notes = append(r.Notes, fmt.Sprintf("%d events fell outside every unit and were not counted", st.Outside))

@@ -6,8 +6,11 @@ import (
 	"context"
 	"fmt"
 	"math"
+	"sort"
 	"strings"
 	"testing"
+
+	"gonum.org/v1/gonum/stat"
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/did"
@@ -32,6 +35,8 @@ func TestAuditCoverage(t *testing.T) {
 	const worlds = 200
 	cfg0 := sim.DefaultConfig()
 	covered, ran, sum := 0, 0, 0.0
+	var logs, ses []float64 // log ratio estimates and their standard errors, for the diagnosis
+	above, below := 0, 0    // misses: interval wholly above or below the planted effect
 	for seed := 1; seed <= worlds; seed++ {
 		cfg := sim.DefaultConfig()
 		cfg.Seed = uint64(seed)
@@ -56,10 +61,19 @@ func TestAuditCoverage(t *testing.T) {
 		}
 		ran++
 		sum += *e.RelativeEffect
-		if want := cfg.Effects.Attribute - 1; e.CI95[0] <= want && want <= e.CI95[1] {
+		logs, ses = append(logs, math.Log1p(*e.RelativeEffect)), append(ses, e.SE)
+		switch want := cfg.Effects.Attribute - 1; {
+		case e.CI95[0] > want:
+			above++
+		case e.CI95[1] < want:
+			below++
+		default:
 			covered++
 		}
 	}
+	mean, sd := stat.MeanStdDev(logs, nil)
+	t.Logf("log ratio: mean %+.4f (planted %+.4f), standard deviation across worlds %.4f, mean reported standard error %.4f; misses: %d intervals above the planted effect, %d below",
+		mean, math.Log(cfg0.Effects.Attribute), sd, stat.Mean(ses, nil), above, below)
 	lo, hi := reftest.Wilson(covered, ran)
 	t.Logf("coverage of the planted attribute effect %+.2f: %d of %d worlds (%.1f%%, Wilson 95%% [%.1f, %.1f]); mean estimate %+.3f",
 		cfg0.Effects.Attribute-1, covered, ran, 100*float64(covered)/float64(ran), 100*lo, 100*hi, sum/float64(ran))
@@ -71,17 +85,25 @@ func TestAuditCoverage(t *testing.T) {
 	}
 }
 
-// TestAuditNullWarnings audits 200 small null worlds (every planted
-// multiplier 1, parallel trends, 8 of 36 districts treated in 2 waves) and
-// counts the audits with any warning (target at most 10%) and, per layer, the
-// audits where the headline rejects at 5% or a warning names the layer
-// (target at most 6%), each with its Wilson 95% interval.
-func TestAuditNullWarnings(t *testing.T) {
-	const worlds = 200
-	layerNames := []string{"geometry", "attribute", "new_feature", "deletion"}
-	anyWarn, ran := 0, 0
-	fp := map[string]int{}
-	var examples []string
+// nullStudy holds what nullWorlds counted: audits with any warning, per layer
+// the false positives (headline p < 0.05 or a warning naming the layer) and
+// the headline's rejections by direction, and the warnings by outcome and
+// kind.
+type nullStudy struct {
+	ran, anyWarn int
+	fp           map[string]int
+	down, up     map[string]int
+	kinds        map[string]int
+	examples     []string
+}
+
+var nullLayers = []string{"geometry", "attribute", "new_feature", "deletion"}
+
+// nullWorlds audits worlds small null worlds (every planted multiplier 1,
+// parallel trends, 8 of 36 districts treated in 2 waves, seeds 5001...).
+func nullWorlds(t *testing.T, worlds int) nullStudy {
+	t.Helper()
+	s := nullStudy{fp: map[string]int{}, down: map[string]int{}, up: map[string]int{}, kinds: map[string]int{}}
 	for seed := 1; seed <= worlds; seed++ {
 		cfg := sim.DefaultConfig()
 		cfg.Seed = uint64(5000 + seed)
@@ -105,59 +127,110 @@ func TestAuditNullWarnings(t *testing.T) {
 		if !ok {
 			continue
 		}
-		ran++
+		s.ran++
 		if len(rep.Warnings) > 0 {
-			anyWarn++
-			if len(examples) < 5 {
-				examples = append(examples, rep.Warnings[0])
+			s.anyWarn++
+			if len(s.examples) < 5 {
+				s.examples = append(s.examples, rep.Warnings[0])
 			}
 		}
-		for _, l := range layerNames {
-			hit := false
+		named := map[string]bool{}
+		for _, msg := range rep.Warnings {
+			// Outcomes end at ": " (key families are "attribute:KEY").
+			outcome, _, _ := strings.Cut(msg, ": ")
+			named[outcome] = true
+			kind := "other"
+			switch {
+			case strings.Contains(msg, "robustness check"):
+				kind = "sign"
+			case strings.Contains(msg, "moved apart"):
+				kind = "pre-trend"
+			case strings.Contains(msg, "grew at a different pace"):
+				kind = "growth"
+			}
+			s.kinds[outcome+" "+kind]++
+		}
+		for _, l := range nullLayers {
+			hit := named[l]
 			for _, e := range rep.Effects {
 				if e.Layer == l && e.Estimator == did.Headline && e.PValue < 0.05 {
 					hit = true
-				}
-			}
-			for _, msg := range rep.Warnings {
-				if strings.HasPrefix(msg, l+":") {
-					hit = true
+					if e.RelativeEffect != nil && *e.RelativeEffect > 0 {
+						s.up[l]++
+					} else {
+						s.down[l]++
+					}
 				}
 			}
 			if hit {
-				fp[l]++
+				s.fp[l]++
 			}
 		}
 	}
-	lo, hi := reftest.Wilson(anyWarn, ran)
+	return s
+}
+
+// log writes the study's figures with Wilson 95% intervals.
+func (s nullStudy) log(t *testing.T) {
+	t.Helper()
+	lo, hi := reftest.Wilson(s.anyWarn, s.ran)
 	t.Logf("null worlds: %d of %d audits with any warning (%.1f%%, Wilson 95%% [%.1f, %.1f]); first warnings: %q",
-		anyWarn, ran, 100*float64(anyWarn)/float64(ran), 100*lo, 100*hi, examples)
-	// Target: at most 10% of null audits warn. Measured on this design: 74 of
-	// 200 (37.0%, Wilson 95% [30.6, 43.9]), the target is NOT met (the
-	// robustness sign checks and the pre-import growth test fire on finer
-	// outcomes and on attribute; see the closing note of the verdict work).
-	// Until it is, the test guards the measured level against regressions:
-	// it fails when the rate's interval lies wholly above 45%, and logs the
-	// shortfall against the target.
-	if lo > 0.10 {
-		t.Logf("target missed: %d of %d null audits warn, target at most 10%%", anyWarn, ran)
+		s.anyWarn, s.ran, 100*float64(s.anyWarn)/float64(s.ran), 100*lo, 100*hi, s.examples)
+	for _, l := range nullLayers {
+		lo, hi := reftest.Wilson(s.fp[l], s.ran)
+		t.Logf("null worlds, %s: false positives (headline p < 0.05 or a warning naming the layer) %d of %d (%.1f%%, Wilson 95%% [%.1f, %.1f]); headline rejections %d down, %d up",
+			l, s.fp[l], s.ran, 100*float64(s.fp[l])/float64(s.ran), 100*lo, 100*hi, s.down[l], s.up[l])
 	}
-	if ran < worlds*9/10 || lo > 0.45 {
-		t.Errorf("%d of %d null audits warn, more than the measured 37%% (target 10%%)", anyWarn, ran)
+	var ks []string
+	for k := range s.kinds {
+		ks = append(ks, k)
 	}
-	for _, l := range layerNames {
-		lo, hi := reftest.Wilson(fp[l], ran)
-		t.Logf("null worlds, %s: false positives (headline p < 0.05 or a warning) %d of %d (%.1f%%, Wilson 95%% [%.1f, %.1f])",
-			l, fp[l], ran, 100*float64(fp[l])/float64(ran), 100*lo, 100*hi)
-		// Target at most 6% per layer; measured 9.0% geometry, 29.0%
-		// attribute, 13.0% new_feature, 14.5% deletion (200 worlds): NOT
-		// met. The guard fails when a layer's interval lies wholly above
-		// 35%, above every measured layer, and logs the shortfall.
-		if lo > 0.06 {
-			t.Logf("target missed: %s false positives in %d of %d null audits, target at most 6%%", l, fp[l], ran)
+	sort.Strings(ks)
+	for _, k := range ks {
+		t.Logf("warnings naming %s: %d", k, s.kinds[k])
+	}
+}
+
+// TestAuditNullWarnings audits 200 small null worlds and counts the audits
+// with any warning (target at most 10%) and, per layer, the audits where the
+// headline rejects at 5% or a warning names the layer (target at most 6%),
+// each with its Wilson 95% interval. The guards fail when a measured rate
+// exceeds its target.
+//
+// History of this design: 74 of 200 audits warned (37.0%, Wilson 95% [30.6,
+// 43.9]) and the per-layer false positives read geometry 9.0%, attribute
+// 29.0%, new_feature 13.0%, deletion 14.5%, while warnings were raised for
+// every outcome (key families and contributor groups too), robustness sign
+// disagreements warned at an unadjusted headline p < 0.05, a failed
+// doubly robust cs-att fit warned on every outcome, the growth test took
+// matched controls at face value, and the count of "warnings naming
+// attribute" took the key families "attribute:KEY" for the layer.
+func TestAuditNullWarnings(t *testing.T) {
+	const worlds = 200
+	s := nullWorlds(t, worlds)
+	s.log(t)
+	if s.ran < worlds*9/10 {
+		t.Fatalf("only %d of %d worlds audited", s.ran, worlds)
+	}
+	if rate := float64(s.anyWarn) / float64(s.ran); rate > 0.10 {
+		t.Errorf("%d of %d null audits warn (%.1f%%), target at most 10%%", s.anyWarn, s.ran, 100*rate)
+	}
+	for _, l := range nullLayers {
+		if rate := float64(s.fp[l]) / float64(s.ran); rate > 0.06 {
+			t.Errorf("%s: false positives in %d of %d null audits (%.1f%%), target at most 6%%", l, s.fp[l], s.ran, 100*rate)
 		}
-		if lo > 0.35 {
-			t.Errorf("%s: false positives in %d of %d null audits, more than measured (target 6%%)", l, fp[l], ran)
-		}
+	}
+}
+
+// TestNullDiagnose is the quick look at the same design: 40 null worlds,
+// the figures of TestAuditNullWarnings and where the warnings come from,
+// logged (go test -tags validate -v -run TestNullDiagnose ./audit/). It
+// checks only that the worlds audited.
+func TestNullDiagnose(t *testing.T) {
+	const worlds = 40
+	s := nullWorlds(t, worlds)
+	s.log(t)
+	if s.ran < worlds*9/10 {
+		t.Fatalf("only %d of %d worlds audited", s.ran, worlds)
 	}
 }

@@ -3,6 +3,7 @@ package audit
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 
 	"gonum.org/v1/gonum/stat/distuv"
@@ -12,6 +13,7 @@ import (
 	"github.com/loadwake/loadwake/audit/match"
 	"github.com/loadwake/loadwake/audit/panel"
 	"github.com/loadwake/loadwake/audit/study"
+	"github.com/loadwake/loadwake/layers"
 )
 
 // One story per report: the headline estimator (did.Headline) gives the
@@ -82,16 +84,59 @@ func agreementOf(h, c did.Effect) Agreement {
 	return a
 }
 
+// familyLayers are the outcomes whose findings may raise warnings: the four
+// headline layers. Key families and contributor groups are finer outcomes,
+// shown as information: an audit of one import estimates a dozen or more,
+// and alarms on each would fire on most audits of imports that changed
+// nothing.
+func familyLayers() []string {
+	out := make([]string, len(layers.Layers))
+	for i, l := range layers.Layers {
+		out[i] = l.String()
+	}
+	return out
+}
+
+// headlineHolm returns the headline's p-value of each family layer with an
+// estimate, adjusted by Holm's method across those layers, and how many
+// there are.
+func headlineHolm(effects []did.Effect) (map[string]float64, int) {
+	var names []string
+	var ps []float64
+	for _, e := range effects {
+		if e.Estimator == did.Headline && e.RelativeEffect != nil && slices.Contains(familyLayers(), e.Layer) {
+			names = append(names, e.Layer)
+			ps = append(ps, e.PValue)
+		}
+	}
+	adj, err := infer.Holm(ps)
+	if err != nil {
+		return map[string]float64{}, 0
+	}
+	out := make(map[string]float64, len(names))
+	for i, n := range names {
+		out[n] = adj[i]
+	}
+	return out, len(names)
+}
+
 // robustness compares every robustness estimator with the headline, layer by
-// layer, and returns the comparisons and, first in line for the warnings,
-// the layers where a significant headline meets a check of the other sign.
-func robustness(effects []did.Effect) (rows []Agreement, alarms []string) {
+// layer. It returns the comparisons, the alarms (a family layer whose
+// headline is significant after Holm's adjustment across the family meets
+// checks of the other sign: one warning per layer, first in line), and
+// notes for the other sign disagreements of a headline with p < 0.05 (finer
+// outcomes, or not significant after the adjustment): information.
+func robustness(effects []did.Effect) (rows []Agreement, alarms, notes []string) {
 	head := map[string]did.Effect{}
+	var order []string
 	for _, e := range effects {
 		if e.Estimator == did.Headline && e.RelativeEffect != nil {
 			head[e.Layer] = e
+			order = append(order, e.Layer)
 		}
 	}
+	adj, nFamily := headlineHolm(effects)
+	against := map[string][]string{}
 	for _, c := range effects {
 		h, ok := head[c.Layer]
 		if c.Estimator == did.Headline || !ok {
@@ -105,11 +150,58 @@ func robustness(effects []did.Effect) (rows []Agreement, alarms []string) {
 		a := agreementOf(h, c)
 		rows = append(rows, a)
 		if h.PValue < 0.05 && math.Signbit(a.Headline) != math.Signbit(a.Relative) {
-			alarms = append(alarms, fmt.Sprintf("%s: the headline (%s) finds %+.0f%% (p = %.3g) but %s finds %+.0f%%: the direction of the change depends on how it is measured; read the robustness section before relying on it",
-				c.Layer, did.Headline, 100*a.Headline, h.PValue, c.Estimator, 100*a.Relative))
+			against[c.Layer] = append(against[c.Layer], fmt.Sprintf("%s %+.0f%%", c.Estimator, 100*a.Relative))
 		}
 	}
-	return rows, alarms
+	for _, l := range order {
+		checks := against[l]
+		if len(checks) == 0 {
+			continue
+		}
+		h := head[l]
+		if p, ok := adj[l]; ok && p < 0.05 {
+			alarms = append(alarms, fmt.Sprintf("%s: the headline finds that %s %s by %.0f%%, but %s the other way, so the direction depends on how the change is measured; read the robustness section before relying on it — %s %+.0f%%, p = %.3g (%.3g after Holm's adjustment across %d layers); against it: %s",
+				l, layerWords(l), riseFall(*h.RelativeEffect), 100*math.Abs(*h.RelativeEffect), checkWords(len(checks)),
+				did.Headline, 100**h.RelativeEffect, h.PValue, p, nFamily, strings.Join(checks, ", ")))
+			continue
+		}
+		why := "a finer outcome"
+		if _, ok := adj[l]; ok {
+			why = "not significant after Holm's adjustment across the layers"
+		}
+		notes = append(notes, fmt.Sprintf("%s: the headline (%s) finds %+.0f%% (p = %.3g) but %s (%s; information, not a warning)",
+			l, did.Headline, 100**h.RelativeEffect, h.PValue, strings.Join(checks, ", "), why))
+	}
+	return rows, alarms, notes
+}
+
+// layerWords names a layer's edits for a reader.
+func layerWords(layer string) string {
+	switch layer {
+	case "geometry":
+		return "edits to shapes and positions"
+	case "attribute":
+		return "edits to tags"
+	case "new_feature":
+		return "newly mapped features"
+	case "deletion":
+		return "deletions"
+	}
+	return layer
+}
+
+func riseFall(x float64) string {
+	if x < 0 {
+		return "fell"
+	}
+	return "rose"
+}
+
+func checkWords(n int) string {
+	if n == 1 {
+		return "one robustness check points"
+	}
+	return fmt.Sprintf("%d robustness checks point", n)
 }
 
 // UnitFigure is a descriptive figure for one import area and outcome:
@@ -171,20 +263,33 @@ func unitFigures(p *panel.Panel, win did.Window) []UnitFigure {
 // growthWarnings warns on the balance rows that matter under unit fixed
 // effects: pre-import growth per layer (study.GrowthPrefix). A row warns when
 // its matched standardized difference is at least match.BalanceThreshold and
-// larger than chance: the z statistic SMD/√(1/n_t + 1/n_c) (the standardized
-// difference of two means, pooled standard deviation) rejects at 5% after
-// Holm's adjustment across the layers. Level differences are shown in the
-// balance table as information only: unit fixed effects absorb them.
-func growthWarnings(rows []match.BalanceRow, nt, nc int) []string {
-	if nt < 1 || nc < 1 {
+// larger than chance after Holm's adjustment across the layers. The test
+// statistic is the standardized difference over its standard error
+// √(1/n_t + 1/n_c), with n_c the matched controls' effective number
+// (Σw)²/Σw² (Kish; controls matched with replacement count less than their
+// number), against Student's t with n_t − 1 degrees of freedom (few treated
+// units: the treated side's variance is estimated from them alone). Level
+// differences are shown in the balance table as information only: unit
+// fixed effects absorb them.
+func growthWarnings(rows []match.BalanceRow, nt int, controlWeights []float64) []string {
+	var sw, sw2 float64
+	for _, w := range controlWeights {
+		if w > 0 {
+			sw += w
+			sw2 += w * w
+		}
+	}
+	if nt < 2 || sw2 == 0 {
 		return nil
 	}
+	nc := sw * sw / sw2
+	tdist := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(nt - 1)}
 	var ps []float64
 	var sel []match.BalanceRow
 	for _, b := range rows {
 		if strings.HasPrefix(b.Name, study.GrowthPrefix) && !math.IsNaN(b.MatchedSMD) {
-			z := b.MatchedSMD / math.Sqrt(1/float64(nt)+1/float64(nc))
-			ps = append(ps, 2*distuv.UnitNormal.Survival(math.Abs(z)))
+			z := b.MatchedSMD / math.Sqrt(1/float64(nt)+1/nc)
+			ps = append(ps, 2*tdist.Survival(math.Abs(z)))
 			sel = append(sel, b)
 		}
 	}
@@ -195,9 +300,67 @@ func growthWarnings(rows []match.BalanceRow, nt, nc int) []string {
 	var out []string
 	for i, b := range sel {
 		if adj[i] < 0.05 && math.Abs(b.MatchedSMD) >= match.BalanceThreshold {
-			out = append(out, fmt.Sprintf("%s: import areas grew differently from their comparison areas before the import (%s, standardized difference %+.2f, p = %.3g after Holm's adjustment across %d layers); level differences are absorbed by the unit fixed effects, growth differences are not",
-				strings.TrimPrefix(b.Name, study.GrowthPrefix), b.Name, b.MatchedSMD, adj[i], len(ps)))
+			l := strings.TrimPrefix(b.Name, study.GrowthPrefix)
+			out = append(out, fmt.Sprintf("%s: before the import, %s grew at a different pace in import areas than in their comparison areas, which the comparison does not correct for (it corrects for different levels, not different growth) — %s, standardized difference %+.2f, p = %.3g after Holm's adjustment across %d layers",
+				l, layerWords(l), b.Name, b.MatchedSMD, adj[i], len(ps)))
 		}
+	}
+	return out
+}
+
+// controlWeights returns the matching weights of p's control units.
+func controlWeights(p *panel.Panel) []float64 {
+	var w []float64
+	for _, u := range p.Units {
+		if u.FirstTreated < 0 && u.Weight > 0 {
+			w = append(w, u.Weight)
+		}
+	}
+	return w
+}
+
+// Warning ranks, most important first: a reviewer sees the first few.
+const (
+	rankNothing  = iota // nothing could be estimated
+	rankSign            // a significant headline contradicted in sign
+	rankPreTrend        // trends moved apart before the import
+	rankGrowth          // pre-import growth differs
+	rankProblem         // a layer the headline could not estimate
+	rankOther           // units left out and the like
+)
+
+// orderWarnings merges the robustness alarms, the estimators' warnings and
+// the growth warnings in order of importance (the rank constants; stable
+// within a rank).
+func orderWarnings(alarms, estimates, growth []string) []string {
+	type ranked struct {
+		rank int
+		msg  string
+	}
+	var all []ranked
+	for _, m := range alarms {
+		all = append(all, ranked{rankSign, m})
+	}
+	for _, m := range estimates {
+		rank := rankOther
+		head, _, named := strings.Cut(m, ": ")
+		switch {
+		case strings.Contains(m, "nothing estimated"):
+			rank = rankNothing
+		case strings.Contains(m, "moved apart"):
+			rank = rankPreTrend
+		case named && slices.Contains(familyLayers(), head):
+			rank = rankProblem
+		}
+		all = append(all, ranked{rank, m})
+	}
+	for _, m := range growth {
+		all = append(all, ranked{rankGrowth, m})
+	}
+	slices.SortStableFunc(all, func(a, b ranked) int { return a.rank - b.rank })
+	out := make([]string, 0, len(all))
+	for _, r := range all {
+		out = append(out, r.msg)
 	}
 	return out
 }

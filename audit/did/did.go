@@ -1,10 +1,14 @@
 package did
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"math/rand/v2"
 
+	"gonum.org/v1/gonum/mat"
+
+	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
 )
 
@@ -61,7 +65,7 @@ func longDiffs(p *panel.Panel, y []float64, cohorts []int, win Window) []diffRow
 }
 
 // did2x2 estimates the pooled 2x2 difference-in-differences of outcome y.
-func did2x2(p *panel.Panel, y []float64, cohorts []int, cl []int, G int, opts Options, rng *rand.Rand) (*estimate, error) {
+func did2x2(ctx context.Context, p *panel.Panel, y []float64, cohorts []int, cl []int, G int, opts Options, rng *rand.Rand) (*estimate, error) {
 	rows := longDiffs(p, y, cohorts, opts.Window)
 	nc := len(cohorts)
 	// absorb cohort intercepts: weighted cohort means removed from x and y.
@@ -102,11 +106,18 @@ func did2x2(p *panel.Panel, y []float64, cohorts []int, cl []int, G int, opts Op
 		note: fmt.Sprintf("pooled 2x2 long differences, %d cohort(s), window %d months before and %d after, cohort intercepts", nc, opts.Window.Pre, opts.Window.Post)}
 	tc := len(tClusters)
 	if opts.useBootstrap(tc) {
-		name, webb := bootName(res.g)
-		q, pv := reg.wildBootstrap(res, opts.Draws, webb, rng)
-		e.lo, e.hi = res.b-q*res.se, res.b+q*res.se
-		e.p = pv
-		e.method = fmt.Sprintf("wild-bootstrap-%s-%d", name, opts.Draws)
+		// The same regression with the cohort intercepts as columns, for
+		// the restricted wild cluster bootstrap.
+		xd := mat.NewDense(len(rows), 1+nc, nil)
+		for i := range rows {
+			xd.Set(i, 0, x[i])
+			xd.Set(i, 1+rc[i], 1)
+		}
+		a := make([]float64, 1+nc)
+		a[0] = 1
+		if err := e.setWildRestricted(ctx, infer.Design{X: xd, Y: d, Weights: w, Cluster: ncl}, a, tc, opts, rng); err != nil {
+			return nil, err
+		}
 	} else {
 		c := critical(tc, res.g)
 		e.lo, e.hi = res.b-c*res.se, res.b+c*res.se
@@ -206,44 +217,4 @@ func (r *oneReg) cr1(xt, u []float64) (float64, int) {
 	}
 	adj := float64(G) / float64(G-1) * float64(n-1) / float64(n-r.kParams)
 	return math.Sqrt(adj*meat) / sxx, G
-}
-
-// wildBootstrap runs the unrestricted wild cluster bootstrap-t
-// (Cameron, Gelbach & Miller 2008): y* = ŷ + v_g·û, refit, t* = (b*−b)/se*.
-// It returns the 95% quantile of |t*| (for the interval b ± q·se) and the
-// bootstrap p-value P(|t*| ≥ |b/se|).
-func (r *oneReg) wildBootstrap(res *oneRes, draws int, webb bool, rng *rand.Rand) (q, p float64) {
-	v := make([]float64, r.G)
-	e := make([]float64, len(res.u))
-	ts := make([]float64, 0, draws)
-	t0 := math.Abs(res.b / res.se)
-	hits := 0
-	for range draws {
-		bootWeights(rng, v, webb)
-		for i := range e {
-			e[i] = v[r.cl[i]] * res.u[i]
-		}
-		r.absorb(e)
-		sxy := 0.0
-		for i := range e {
-			sxy += r.w[i] * res.xt[i] * e[i]
-		}
-		db := sxy / res.sxx
-		for i := range e {
-			e[i] -= db * res.xt[i]
-		}
-		se, _ := r.cr1(res.xt, e)
-		if !(se > 0) {
-			continue
-		}
-		t := math.Abs(db / se)
-		ts = append(ts, t)
-		if t >= t0 {
-			hits++
-		}
-	}
-	if len(ts) == 0 {
-		return critical(0, res.g), 1
-	}
-	return quantile(ts, 0.95), float64(hits+1) / float64(len(ts)+1)
 }

@@ -1,13 +1,17 @@
 package did
 
 import (
+	"context"
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"strings"
 	"testing"
 	"time"
 
+	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
+	"github.com/loadwake/loadwake/audit/panel/paneltest"
 )
 
 // twoPeriodPanel builds a two-month panel from per-unit (before, after)
@@ -42,7 +46,7 @@ func TestDiD2x2CardKrueger(t *testing.T) {
 	opts := DefaultOptions()
 	opts.Inference = InferenceAnalytic
 	cl, G := p.ClusterIndex()
-	e, err := did2x2(p, p.Y[0], []int{1}, cl, G, opts, rand.New(rand.NewPCG(1, 2)))
+	e, err := did2x2(context.Background(), p, p.Y[0], []int{1}, cl, G, opts, rand.New(rand.NewPCG(1, 2)))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -91,7 +95,7 @@ func TestCSEqualsDiD2x2(t *testing.T) {
 		opts := DefaultOptions()
 		opts.Inference = InferenceAnalytic
 		cl, G := p.ClusterIndex()
-		d, err := did2x2(p, p.Y[0], []int{1}, cl, G, opts, rng)
+		d, err := did2x2(context.Background(), p, p.Y[0], []int{1}, cl, G, opts, rng)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -133,7 +137,7 @@ func TestDiD2x2WildBootstrap(t *testing.T) {
 	p := twoPeriodPanel([][2]float64{{1, 5}, {2, 7}, {3, 6}, {2, 9}}, [][2]float64{{1, 2}, {3, 3}, {2, 4}, {4, 4}, {1, 1}})
 	opts := DefaultOptions()
 	cl, G := p.ClusterIndex()
-	e, err := did2x2(p, p.Y[0], []int{1}, cl, G, opts, rand.New(rand.NewPCG(1, 1)))
+	e, err := did2x2(context.Background(), p, p.Y[0], []int{1}, cl, G, opts, rand.New(rand.NewPCG(1, 1)))
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -146,5 +150,62 @@ func TestDiD2x2WildBootstrap(t *testing.T) {
 	// The bootstrap-t interval with 9 clusters is wider than the normal one (common practice).
 	if e.hi-e.lo <= 2*1.96*e.se {
 		t.Errorf("bootstrap interval %v not wider than normal %v", e.hi-e.lo, 2*1.96*e.se)
+	}
+}
+
+// TestLinearDesignForWild: the event study handed to the restricted wild
+// bootstrap (unit effects absorbed, month dummies as columns) is the same
+// regression as the closed-form two-way demeaning: equal coefficients and
+// equal CR1 standard error of the mean of lags (Frisch–Waugh–Lovell; the
+// same CR1 factor, K counting every fixed effect).
+func TestLinearDesignForWild(t *testing.T) {
+	w := paneltest.World{PerCohort: 6, Cohorts: []int{8, 11}, Controls: 9, Months: 18, Delta: 0.2}
+	p := w.Panel(4)
+	p.Units[len(p.Units)-1].Weight = 2.5
+	win := Window{Pre: 4, Post: 6}
+	d, err := newESDesign(p, win)
+	if err != nil {
+		t.Fatal(err)
+	}
+	cl, G := p.ClusterIndex()
+	opts := DefaultOptions()
+	opts.Window = win
+	opts.Inference = InferenceAnalytic
+	e, err := twfeEventStudy(context.Background(), d, p.Y[0], cl, G, opts, rand.New(rand.NewPCG(1, 1)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	f, err := infer.FitOLS(d.linearDesign(p.Y[0], cl))
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := make([]float64, d.K)
+	nPost := 0
+	for _, ev := range d.cols {
+		if ev >= 0 {
+			nPost++
+		}
+	}
+	for c, ev := range d.cols {
+		if ev >= 0 {
+			a[c] = 1 / float64(nPost)
+		}
+	}
+	full := d.fullRestriction(a)
+	att := 0.0
+	for j, v := range full {
+		att += v * f.Beta[j]
+	}
+	if math.Abs(att-e.att) > 1e-9*(1+math.Abs(e.att)) || math.Abs(f.SE(full)-e.se) > 1e-9*e.se {
+		t.Errorf("design for the bootstrap: att %v se %v; closed form: att %v se %v", att, f.SE(full), e.att, e.se)
+	}
+	opts.Inference = InferenceBootstrap
+	b, err := twfeEventStudy(context.Background(), d, p.Y[0], cl, G, opts, rand.New(rand.NewPCG(1, 1)))
+	if err != nil {
+		t.Fatal(err)
+	}
+	// One procedure: the interval excludes 0 exactly when p < 0.05.
+	if excl := b.lo > 0 || b.hi < 0; excl != (b.p < 0.05) || !strings.HasPrefix(b.method, "wild-bootstrap-") || b.noInterval {
+		t.Errorf("restricted wild bootstrap: [%v, %v], p %v, method %q", b.lo, b.hi, b.p, b.method)
 	}
 }

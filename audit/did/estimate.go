@@ -90,43 +90,55 @@ func Estimate(ctx context.Context, p *panel.Panel, opts Options) (*Estimates, er
 	if err := ctx.Err(); err != nil {
 		return nil, err
 	}
+	// Warnings in order of importance: trends that moved apart before the
+	// import first, then outcomes the headline could not estimate, then
+	// units left out (above).
+	pre, preNotes := preTrendWarnings(p.Outcomes, results, opts)
+	problems := []string{}
 	for _, r := range results {
 		out.Effects = append(out.Effects, r.effects...)
 		out.EventStudy = append(out.EventStudy, r.events...)
 		out.ByCohort = append(out.ByCohort, r.cohorts...)
 		out.Placebo = append(out.Placebo, r.placebo...)
-		out.Warnings = append(out.Warnings, r.warnings...)
+		problems = append(problems, r.warnings...)
 		out.Notes = append(out.Notes, r.notes...)
 	}
-	out.Warnings = append(out.Warnings, preTrendWarnings(p.Outcomes, results)...)
+	out.Warnings = append(append(pre, problems...), out.Warnings...)
+	out.Notes = append(out.Notes, preNotes...)
 	return out, nil
 }
 
-// preTrendWarnings warns for each outcome whose headline pre-trend test
-// rejects at 5% after Holm's adjustment across the outcomes tested (one
-// family: an audit tests every layer, and unadjusted tests would raise an
-// alarm on some layer of most audits with parallel trends).
-func preTrendWarnings(names []string, results []outcomeResult) []string {
+// preTrendWarnings warns for each outcome of the warning family
+// (Options.Family) whose headline pre-trend test rejects at 5% after Holm's
+// adjustment across the family (an audit tests every layer, and unadjusted
+// tests would raise an alarm on some layer of most audits with parallel
+// trends). Outcomes outside the family get a note when their own test
+// rejects at 5%.
+func preTrendWarnings(names []string, results []outcomeResult, opts Options) (warnings, notes []string) {
 	var ps []float64
 	var idx []int
 	for o, r := range results {
-		if r.headHas {
+		switch {
+		case !r.headHas:
+		case opts.inFamily(names[o]):
 			ps = append(ps, r.headPre)
 			idx = append(idx, o)
+		case r.headPre < 0.05:
+			notes = append(notes, fmt.Sprintf("%s: before the import, import areas and comparison areas moved apart (%s joint test of the event study's leads: p = %.3g, not adjusted; a finer outcome, shown as information)",
+				names[o], Headline, r.headPre))
 		}
 	}
 	adj, err := infer.Holm(ps)
 	if err != nil {
-		return nil
+		return nil, notes
 	}
-	var out []string
 	for i, o := range idx {
 		if adj[i] < 0.05 {
-			out = append(out, fmt.Sprintf("%s: before the import, import areas and comparison areas moved apart (%s joint test of the event study's leads: p = %.3g, %.3g after Holm's adjustment across %d outcomes); the comparison may not show what would have happened without the import",
+			warnings = append(warnings, fmt.Sprintf("%s: before the import, import areas and comparison areas moved apart, so the comparison may not show what would have happened without the import — %s joint test of the event study's leads: p = %.3g, %.3g after Holm's adjustment across %d outcomes",
 				names[o], Headline, ps[i], adj[i], len(ps)))
 		}
 	}
-	return out
+	return warnings, notes
 }
 
 type outcomeResult struct {
@@ -144,11 +156,15 @@ func estimateOutcome(ctx context.Context, p *panel.Panel, o int, cl []int, G int
 	name := p.Outcomes[o]
 	y := p.Y[o]
 	var r outcomeResult
-	warn := func(format string, args ...any) {
-		r.warnings = append(r.warnings, fmt.Sprintf("%s: ", name)+fmt.Sprintf(format, args...))
-	}
 	note := func(format string, args ...any) {
 		r.notes = append(r.notes, fmt.Sprintf("%s: ", name)+fmt.Sprintf(format, args...))
+	}
+	// Problems of an outcome outside the warning family are information.
+	warn := note
+	if opts.inFamily(name) {
+		warn = func(format string, args ...any) {
+			r.warnings = append(r.warnings, fmt.Sprintf("%s: ", name)+fmt.Sprintf(format, args...))
+		}
 	}
 	total := 0.0
 	for u, un := range p.Units {
@@ -215,7 +231,8 @@ func estimateOutcome(ctx context.Context, p *panel.Panel, o int, cl []int, G int
 	// cs-att
 	cs, err := callawaySantAnna(p, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorCS), dr)
 	if err != nil && dr {
-		warn("cs-att: doubly robust estimator failed (%v); unconditional estimator used", err)
+		// A robustness check's problem: information, not an alarm.
+		note("cs-att: doubly robust estimator failed (%v); unconditional estimator used", err)
 		cs, err = callawaySantAnna(p, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorCS), false)
 	}
 	if err == nil {
@@ -238,10 +255,10 @@ func estimateOutcome(ctx context.Context, p *panel.Panel, o int, cl []int, G int
 	if desErr != nil {
 		add(EstimatorTWFELinear, nil, desErr)
 	} else {
-		tw, err := twfeEventStudy(design, y, cl, G, opts)
+		tw, err := twfeEventStudy(ctx, design, y, cl, G, opts, rngFor(opts.Seed, name, EstimatorTWFELinear))
 		add(EstimatorTWFELinear, tw, err)
 	}
-	dd, err := did2x2(p, y, cohortsWithPre(p), cl, G, opts, rngFor(opts.Seed, name, EstimatorDiD2x2))
+	dd, err := did2x2(ctx, p, y, cohortsWithPre(p), cl, G, opts, rngFor(opts.Seed, name, EstimatorDiD2x2))
 	add(EstimatorDiD2x2, dd, err)
 	return r
 }

@@ -74,11 +74,11 @@ func BenchmarkEstimators(b *testing.B) {
 		if err != nil {
 			return err
 		}
-		_, err = twfeEventStudy(d, y, cl, G, opts)
+		_, err = twfeEventStudy(context.Background(), d, y, cl, G, opts, rng)
 		return err
 	})
 	run(EstimatorDiD2x2, func() error {
-		_, err := did2x2(p, y, cohortsWithPre(p), cl, G, opts, rng)
+		_, err := did2x2(context.Background(), p, y, cohortsWithPre(p), cl, G, opts, rng)
 		return err
 	})
 	run("placebo", func() error {

@@ -6,6 +6,7 @@ import (
 	"fmt"
 	"math"
 	"math/rand/v2"
+	"slices"
 	"strings"
 	"testing"
 	"time"
@@ -82,6 +83,49 @@ func TestEstimateFlagsPreTrends(t *testing.T) {
 	}
 	if len(es.Placebo) != 1 || es.Placebo[0].PValue >= 0.05 {
 		t.Errorf("placebo %+v should show the drift", es.Placebo)
+	}
+}
+
+// TestEstimateWarningFamily: with Options.Family, only the family's
+// outcomes raise warnings; the same drift in an outcome outside it is a note.
+func TestEstimateWarningFamily(t *testing.T) {
+	w := paneltest.World{PerCohort: 100, Cohorts: []int{14, 20}, Controls: 200, Months: 36, Trend: 0.06, Outcomes: 2}
+	p := w.Panel(2)
+	for _, tc := range []struct {
+		name       string
+		family     []string
+		warn, note []string
+	}{
+		{name: "every outcome", warn: []string{"layer0", "layer1"}},
+		{name: "layer1 only", family: []string{"layer1"}, warn: []string{"layer1"}, note: []string{"layer0"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			opts := DefaultOptions()
+			opts.Draws = 99
+			opts.Family = tc.family
+			es, err := Estimate(context.Background(), p, opts)
+			if err != nil {
+				t.Fatal(err)
+			}
+			count := func(list []string, outcome string) int {
+				n := 0
+				for _, m := range list {
+					if strings.HasPrefix(m, outcome+": before the import, import areas and comparison areas moved apart") {
+						n++
+					}
+				}
+				return n
+			}
+			for _, o := range []string{"layer0", "layer1"} {
+				wantW, wantN := slices.Contains(tc.warn, o), slices.Contains(tc.note, o)
+				if got := count(es.Warnings, o) == 1; got != wantW {
+					t.Errorf("%s: pre-trend warning %v, want %v: %q", o, got, wantW, es.Warnings)
+				}
+				if got := count(es.Notes, o) == 1; got != wantN {
+					t.Errorf("%s: pre-trend note %v, want %v: %q", o, got, wantN, es.Notes)
+				}
+			}
+		})
 	}
 }
 
@@ -272,8 +316,12 @@ func TestEstimateSingularCovariates(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if !strings.Contains(strings.Join(es.Warnings, "\n"), "doubly robust estimator failed") {
-		t.Errorf("warnings %v", es.Warnings)
+	// A robustness check's problem is information (a note), not an alarm.
+	if !strings.Contains(strings.Join(es.Notes, "\n"), "doubly robust estimator failed") {
+		t.Errorf("notes %v", es.Notes)
+	}
+	if strings.Contains(strings.Join(es.Warnings, "\n"), "doubly robust") {
+		t.Errorf("a robustness check's failure among the warnings: %v", es.Warnings)
 	}
 	if e := effectOf(t, es, "layer0", EstimatorCS); !strings.HasPrefix(e.Note, "unconditional") {
 		t.Errorf("note %q", e.Note)

@@ -1,8 +1,13 @@
 package did
 
 import (
+	"context"
 	"fmt"
 	"math"
+	"math/rand/v2"
+	"slices"
+
+	"github.com/loadwake/loadwake/audit/infer"
 
 	"github.com/loadwake/loadwake/audit/panel"
 	"gonum.org/v1/gonum/mat"
@@ -134,7 +139,7 @@ func (d *esDesign) rowTilde(r, t int, row []float64) {
 }
 
 // twfeEventStudy fits the event study of outcome y.
-func twfeEventStudy(d *esDesign, y []float64, cl []int, G int, opts Options) (*estimate, error) {
+func twfeEventStudy(ctx context.Context, d *esDesign, y []float64, cl []int, G int, opts Options, rng *rand.Rand) (*estimate, error) {
 	p, T, K := d.p, d.p.Months, d.K
 	nu := len(d.units)
 	// demeaned outcome
@@ -228,6 +233,11 @@ func twfeEventStudy(d *esDesign, y []float64, cl []int, G int, opts Options) (*e
 	}
 	e.lo, e.hi = e.att-crit*e.se, e.att+crit*e.se
 	e.p = pTwoSided(e.att/e.se, tc, Gu)
+	if opts.useBootstrap(tc) {
+		if err := e.setWildRestricted(ctx, d.linearDesign(y, cl), d.fullRestriction(cvec), tc, opts, rng); err != nil {
+			return nil, err
+		}
+	}
 	if len(leads) > 0 {
 		b := make([]float64, len(leads))
 		vl := mat.NewSymDense(len(leads), nil)
@@ -247,4 +257,37 @@ func twfeEventStudy(d *esDesign, y []float64, cl []int, G int, opts Options) (*e
 	e.note = fmt.Sprintf("linear two-way fixed effects event study, leads %d..-2 and lags 0..%d (ends binned, reference -1); att = mean of lags; biased under staggered timing with changing effects (Goodman-Bacon 2021)",
 		-opts.Window.Pre, opts.Window.Post-1)
 	return e, nil
+}
+
+// linearDesign returns the event study as an infer.Design for the restricted
+// wild cluster bootstrap: the event columns, then a dummy for every month but
+// the first (month effects are not nested in the clusters, so they stay in
+// X), the unit effects absorbed (each unit lies in one cluster).
+func (d *esDesign) linearDesign(y []float64, cl []int) infer.Design {
+	T := d.p.Months
+	n := len(d.units) * T
+	x := mat.NewDense(n, d.K+T-1, nil)
+	ys := make([]float64, n)
+	w := make([]float64, n)
+	cls := make([]int, n)
+	unit := make([]int, n)
+	for r, u := range d.units {
+		for t := range T {
+			i := r*T + t
+			if c := d.ev[i]; c >= 0 {
+				x.Set(i, c, 1)
+			}
+			if t > 0 {
+				x.Set(i, d.K+t-1, 1)
+			}
+			ys[i], w[i], cls[i], unit[i] = y[u*T+t], d.w[r], cl[u], r
+		}
+	}
+	return infer.Design{X: x, Y: ys, Weights: w, Cluster: cls, Absorb: unit}
+}
+
+// fullRestriction extends a restriction on the event columns with zeros for
+// the month columns of linearDesign.
+func (d *esDesign) fullRestriction(a []float64) []float64 {
+	return append(slices.Clone(a), make([]float64, d.p.Months-1)...)
 }

@@ -3,6 +3,7 @@ package did
 import (
 	"errors"
 	"fmt"
+	"slices"
 )
 
 // ErrSeparated marks an outcome whose Poisson fit has no finite estimate:
@@ -53,6 +54,16 @@ type Options struct {
 	// clusters: PoissonScoreBootstrap (default, also for "") or PoissonCR1T
 	// (also chosen by Inference = InferenceAnalytic).
 	PoissonInference string
+	// Family names the outcomes whose problems and headline pre-trend tests
+	// are warnings, Holm-adjusted among themselves (an audit's four layers);
+	// every other outcome's become notes, information that raises no alarm.
+	// Empty: every outcome is in the family.
+	Family []string
+}
+
+// inFamily reports whether outcome name's problems are warnings.
+func (o Options) inFamily(name string) bool {
+	return len(o.Family) == 0 || slices.Contains(o.Family, name)
 }
 
 // Headline inference with at least infer.MinTreatedForInterval treated
