@@ -19,7 +19,7 @@ vet:
 	$(GO) vet ./...
 
 # TESTLDFLAGS links the test binaries without symbol tables and DWARF: test
-# binaries are run once and never debugged, and linking the 25 of them is a
+# binaries are run once and never debugged, and linking them is a
 # third of the CPU time of make test; panics still print full stack traces.
 TESTLDFLAGS ?= -s -w
 
