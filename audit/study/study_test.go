@@ -32,7 +32,11 @@ func treatedByTruth(t *sim.Truth, uid int) map[string]string {
 }
 
 func TestStudyOnSimulatedWorld(t *testing.T) {
-	w := worldtest.Build(t, sim.DefaultConfig())
+	// The default world at half its activity: the same districts, imports and
+	// planted effects at half the build cost.
+	cfg := sim.DefaultConfig()
+	cfg.Scale = 0.5
+	w := worldtest.Build(t, cfg)
 
 	// Detected episodes hold exactly the planted import changesets.
 	var got []int64
@@ -76,10 +80,9 @@ func TestStudyOnSimulatedWorld(t *testing.T) {
 					t.Errorf("district %s: start %q, want %q (truth.json)", id, gotT[id], m)
 				}
 			}
-			// Matching improves balance on every covariate of levels; Austin's
-			// (2009) rule of thumb |SMD| < 0.1 holds after matching on the
-			// default world. Growth rows are not matched on and may move either
-			// way; each layer has one.
+			// Matching improves balance on every covariate of levels (Austin's
+			// 2009 standardized mean differences). Growth rows are not matched
+			// on and may move either way; each layer has one.
 			growth := 0
 			for _, b := range st.Balance {
 				if strings.HasPrefix(b.Name, study.GrowthPrefix) {
