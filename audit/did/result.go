@@ -19,7 +19,7 @@ type estimate struct {
 	rel, relLo, relHi          float64
 	hasRel                     bool
 	postMean                   float64 // treated post mean m of setRelativeLinear (0: not set)
-	noInterval                 bool // too few treated clusters: p from randomization, no interval
+	noInterval                 bool    // too few treated clusters: p from randomization, no interval
 	preP                       float64
 	hasPre                     bool
 	treatedUnits, controlUnits int
