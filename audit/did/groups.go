@@ -9,6 +9,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
 )
@@ -212,7 +213,7 @@ func interactionTest(p *panel.Panel, y []float64, g Grouping, kept []int, cl []i
 	if err := separated(st); err != nil {
 		return 0, "", err
 	}
-	pooled, err := fitStackedPoisson(st.y, [][]float64{st.d}, st.w, st.cl, G, st.blocks, st.n2)
+	pooled, err := poisson.FitStacked(st.y, [][]float64{st.d}, st.w, st.cl, G, st.blocks, st.n2)
 	if err != nil {
 		return 0, "", err
 	}
@@ -236,9 +237,9 @@ func interactionTest(p *panel.Panel, y []float64, g Grouping, kept []int, cl []i
 	}
 	fixed := make([]float64, m)
 	for j := range fixed {
-		fixed[j] = pooled.beta[0]
+		fixed[j] = pooled.Beta[0]
 	}
-	f, err := fitStackedPoissonAt(st.y, x, st.w, st.cl, G, st.blocks, st.n2, fixed)
+	f, err := poisson.FitStackedAt(st.y, x, st.w, st.cl, G, st.blocks, st.n2, fixed)
 	if err != nil {
 		return 0, "", err
 	}
@@ -257,7 +258,7 @@ func interactionTest(p *panel.Panel, y []float64, g Grouping, kept []int, cl []i
 	if infer.ChooseWeights(len(st.tClusters), len(used)) == infer.Webb {
 		so.Weights = infer.ScoreWebb
 	}
-	res, err := infer.JointScoreTest(infer.ScoreFit{Scores: f.scores, Hessian: f.hess, NObs: f.nObs, NParams: f.kParams}, R, so)
+	res, err := infer.JointScoreTest(infer.ScoreFit{Scores: f.Scores, Hessian: f.Hess, NObs: f.NObs, NParams: f.KParams}, R, so)
 	if err != nil {
 		return 0, "", err
 	}

@@ -2,7 +2,6 @@ package did
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"math"
 	"math/rand/v2"
@@ -11,6 +10,7 @@ import (
 	"gonum.org/v1/gonum/mat"
 	"gonum.org/v1/gonum/stat/distuv"
 
+	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/infer"
 )
 
@@ -45,8 +45,9 @@ import (
 // cluster-robust variances are reliable from a few dozen clusters.
 const FewTreatedClusters = 30
 
-// errSingular marks a design whose cross-product matrix cannot be inverted.
-var errSingular = errors.New("singular design")
+// errSingular marks a design whose cross-product matrix cannot be inverted;
+// the Poisson fit's sentinel, so one test catches both.
+var errSingular = poisson.ErrSingular
 
 // webbWeights are Webb's six-point wild bootstrap weights ±√(1/2), ±1, ±√(3/2),
 // each with probability 1/6 (Webb 2014, Queen's Economics Dept. WP 1315).
@@ -93,84 +94,6 @@ func bootName(clusters int) (string, bool) {
 		return "webb", true
 	}
 	return "rademacher", false
-}
-
-// olsFit is a weighted least-squares fit with classic and cluster-robust
-// variances.
-type olsFit struct {
-	beta  []float64
-	vOLS  *mat.SymDense // σ²(X'WX)⁻¹
-	vCR1  *mat.SymDense // CR1 cluster-robust
-	resid []float64
-	n, k  int
-	g     int // clusters with at least one observation of positive weight
-}
-
-// olsCR1 fits y on the columns of x (n×k, already holding any intercept) with
-// observation weights w (nil for 1) and returns CR1 variances by cluster
-// (cluster[i] in [0, G)). Observations with weight 0 are ignored.
-func olsCR1(x *mat.Dense, y, w []float64, cluster []int, G int) (*olsFit, error) {
-	n, k := x.Dims()
-	xtx := mat.NewSymDense(k, nil)
-	xty := make([]float64, k)
-	nEff := 0
-	for i := 0; i < n; i++ {
-		wi := 1.0
-		if w != nil {
-			wi = w[i]
-		}
-		if wi == 0 {
-			continue
-		}
-		nEff++
-		row := x.RawRowView(i)
-		for a := 0; a < k; a++ {
-			xty[a] += wi * row[a] * y[i]
-			for b := a; b < k; b++ {
-				xtx.SetSym(a, b, xtx.At(a, b)+wi*row[a]*row[b])
-			}
-		}
-	}
-	if nEff <= k {
-		return nil, errSingular
-	}
-	var inv mat.SymDense
-	if err := invSym(&inv, xtx); err != nil {
-		return nil, err
-	}
-	beta := make([]float64, k)
-	bv := mat.NewVecDense(k, beta)
-	bv.MulVec(&inv, mat.NewVecDense(k, xty))
-	resid := make([]float64, n)
-	ssr := 0.0
-	scores := make([]float64, G*k)
-	used := make([]bool, G)
-	for i := 0; i < n; i++ {
-		wi := 1.0
-		if w != nil {
-			wi = w[i]
-		}
-		row := x.RawRowView(i)
-		fit := 0.0
-		for a := 0; a < k; a++ {
-			fit += row[a] * beta[a]
-		}
-		resid[i] = y[i] - fit
-		if wi == 0 {
-			continue
-		}
-		ssr += wi * resid[i] * resid[i]
-		g := cluster[i]
-		used[g] = true
-		for a := 0; a < k; a++ {
-			scores[g*k+a] += wi * row[a] * resid[i]
-		}
-	}
-	f := &olsFit{beta: beta, resid: resid, n: nEff, k: k}
-	f.vOLS = mat.NewSymDense(k, nil)
-	f.vOLS.ScaleSym(ssr/float64(nEff-k), &inv)
-	f.vCR1, f.g = sandwichCR1(&inv, scores, used, k, nEff, k)
-	return f, nil
 }
 
 // sandwichCR1 returns bread·meat·bread with meat Σ_g s_g s_g' from the

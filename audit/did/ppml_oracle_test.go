@@ -1,7 +1,7 @@
 package did
 
 // The dense Poisson fixed-effects fit below is the test oracle for the fast
-// stacked fit in ppml.go: it builds the fixed effects by alternating
+// stacked fit of audit/did/poisson: it builds the fixed effects by alternating
 // projections on the full design and is itself checked against R (TestPoissonFEAgainstR).
 
 import (
@@ -10,12 +10,14 @@ import (
 	"math"
 
 	"gonum.org/v1/gonum/mat"
+
+	"github.com/loadwake/loadwake/audit/did/poisson"
 )
 
 // fitPoissonFE fits y on the columns x[j] (each length n) with fixed effects
 // fe1 (values in [0,n1)) and fe2 (in [0,n2)), prior weights w (nil: 1) and
 // clusters cl (in [0,G)).
-func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 int, w []float64, cl []int, G int) (*ppmlFit, error) {
+func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 int, w []float64, cl []int, G int) (*poisson.Fit, error) {
 	n, k := len(y), len(x)
 	if w == nil {
 		w = make([]float64, n)
@@ -27,7 +29,7 @@ func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 i
 	for i := range keep {
 		keep[i] = w[i] > 0
 	}
-	fit := &ppmlFit{keep: keep}
+	fit := &poisson.Fit{Keep: keep}
 	// drop all-zero groups until stable
 	had1, had2 := make([]bool, n1), make([]bool, n2)
 	for i := range y {
@@ -62,12 +64,12 @@ func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 i
 	}
 	for g := range n1 {
 		if had1[g] && !has1[g] {
-			fit.dropped1++
+			fit.Dropped1++
 		}
 	}
 	for g := range n2 {
 		if had2[g] && !has2[g] {
-			fit.dropped2++
+			fit.Dropped2++
 		}
 	}
 	// compact the kept observations
@@ -168,7 +170,7 @@ func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 i
 		}
 		conv := math.Abs(newDev-dev)/(math.Abs(newDev)+0.1) < 1e-13
 		dev = newDev
-		fit.iter = iter + 1
+		fit.Iter = iter + 1
 		if conv {
 			break
 		}
@@ -206,24 +208,24 @@ func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 i
 			scores[c[i]*k+j] += ww[i] * xt[j][i] * (yy[i] - mu[i])
 		}
 	}
-	fit.beta = beta
-	fit.vcov, fit.g = sandwichCR1(&h, scores, used, k, m, kParams)
-	if fit.g > 1 {
-		fit.adj = float64(fit.g) / float64(fit.g-1) * float64(m-1) / float64(m-kParams)
+	fit.Beta = beta
+	fit.Vcov, fit.G = sandwichCR1(&h, scores, used, k, m, kParams)
+	if fit.G > 1 {
+		fit.Adj = float64(fit.G) / float64(fit.G-1) * float64(m-1) / float64(m-kParams)
 	}
-	fit.a = make([][]float64, k)
+	fit.A = make([][]float64, k)
 	for j := range k {
-		fit.a[j] = make([]float64, G)
+		fit.A[j] = make([]float64, G)
 		for g := range G {
 			for l := range k {
-				fit.a[j][g] += h.At(j, l) * scores[g*k+l]
+				fit.A[j][g] += h.At(j, l) * scores[g*k+l]
 			}
 		}
 	}
-	fit.nObs = m
-	fit.mu = make([]float64, n)
+	fit.NObs = m
+	fit.Mu = make([]float64, n)
 	for r, i := range idx {
-		fit.mu[i] = mu[r]
+		fit.Mu[i] = mu[r]
 	}
 	return fit, nil
 }

@@ -6,6 +6,7 @@ import (
 	"math"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/internal/reftest"
 	"github.com/loadwake/loadwake/audit/panel/paneltest"
 )
@@ -45,10 +46,10 @@ func TestPoissonFEFatalities(t *testing.T) {
 	ref := reftest.Terms(t, "testdata/glm_fatalities_ref.csv")
 	for j, term := range []string{"beertax", "unemp"} {
 		t.Run(term, func(t *testing.T) {
-			if d := math.Abs(fit.beta[j] - ref[term]["estimate"]); d > 1e-6 {
-				t.Errorf("coefficient %.10f, R glm %.10f", fit.beta[j], ref[term]["estimate"])
+			if d := math.Abs(fit.Beta[j] - ref[term]["estimate"]); d > 1e-6 {
+				t.Errorf("coefficient %.10f, R glm %.10f", fit.Beta[j], ref[term]["estimate"])
 			}
-			se := math.Sqrt(fit.vcov.At(j, j))
+			se := math.Sqrt(fit.Vcov.At(j, j))
 			if d := math.Abs(se - ref[term]["se_state"]); d > 1e-4*ref[term]["se_state"] {
 				t.Errorf("clustered SE %.10f, R sandwich::vcovCL %.10f", se, ref[term]["se_state"])
 			}
@@ -69,23 +70,23 @@ func TestPoissonFEDropsAllZeroGroups(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if full.dropped1 != 1 {
-		t.Errorf("dropped %d unit groups, want 1", full.dropped1)
+	if full.Dropped1 != 1 {
+		t.Errorf("dropped %d unit groups, want 1", full.Dropped1)
 	}
 	small, err := fitPoissonFE(y[:8], [][]float64{d[:8]}, u[:8], 2, m[:8], 4, nil, u[:8], 2)
 	if err != nil {
 		t.Fatal(err)
 	}
-	if math.Abs(full.beta[0]-small.beta[0]) > 1e-10 {
-		t.Errorf("slope %v with the zero unit, %v without", full.beta[0], small.beta[0])
+	if math.Abs(full.Beta[0]-small.Beta[0]) > 1e-10 {
+		t.Errorf("slope %v with the zero unit, %v without", full.Beta[0], small.Beta[0])
 	}
 	// Two units, one treated block of months: the Poisson first-order
 	// conditions match unit, month and treated-block sums, which gives the
 	// log ratio of ratios log((4+3)/(1+2)) − log((5+6)/(2+2)) (derived by
 	// hand from the Poisson score equations).
 	want := math.Log(7.0/3) - math.Log(11.0/4)
-	if math.Abs(small.beta[0]-want) > 1e-9 {
-		t.Errorf("2x2 Poisson slope %v, want %v", small.beta[0], want)
+	if math.Abs(small.Beta[0]-want) > 1e-9 {
+		t.Errorf("2x2 Poisson slope %v, want %v", small.Beta[0], want)
 	}
 }
 
@@ -107,7 +108,7 @@ func TestStackedPoissonMatchesDummyFit(t *testing.T) {
 		}
 		cl, G := p.ClusterIndex()
 		st := stackPanel(p, p.Y[0], cl, Window{Pre: 4, Post: 6}, 0)
-		fast, err := fitStackedPoisson(st.y, [][]float64{st.d}, st.w, st.cl, G, st.blocks, st.n2)
+		fast, err := poisson.FitStacked(st.y, [][]float64{st.d}, st.w, st.cl, G, st.blocks, st.n2)
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -115,18 +116,18 @@ func TestStackedPoissonMatchesDummyFit(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		if math.Abs(fast.beta[0]-slow.beta[0]) > 1e-8 {
-			t.Errorf("seed %d: beta %v concentrated, %v dummy fit", seed, fast.beta[0], slow.beta[0])
+		if math.Abs(fast.Beta[0]-slow.Beta[0]) > 1e-8 {
+			t.Errorf("seed %d: beta %v concentrated, %v dummy fit", seed, fast.Beta[0], slow.Beta[0])
 		}
-		if v1, v2 := fast.vcov.At(0, 0), slow.vcov.At(0, 0); math.Abs(v1-v2) > 1e-6*v2 {
+		if v1, v2 := fast.Vcov.At(0, 0), slow.Vcov.At(0, 0); math.Abs(v1-v2) > 1e-6*v2 {
 			t.Errorf("seed %d: variance %v concentrated, %v dummy fit", seed, v1, v2)
 		}
-		if fast.dropped1 != slow.dropped1 || fast.dropped1 == 0 {
-			t.Errorf("seed %d: dropped %d and %d units", seed, fast.dropped1, slow.dropped1)
+		if fast.Dropped1 != slow.Dropped1 || fast.Dropped1 == 0 {
+			t.Errorf("seed %d: dropped %d and %d units", seed, fast.Dropped1, slow.Dropped1)
 		}
 		for g := range G {
-			if math.Abs(fast.a[0][g]-slow.a[0][g]) > 1e-7 {
-				t.Fatalf("seed %d: cluster %d contribution %v vs %v", seed, g, fast.a[0][g], slow.a[0][g])
+			if math.Abs(fast.A[0][g]-slow.A[0][g]) > 1e-7 {
+				t.Fatalf("seed %d: cluster %d contribution %v vs %v", seed, g, fast.A[0][g], slow.A[0][g])
 			}
 		}
 	}
@@ -157,7 +158,7 @@ func TestStackedPoissonEventStudyMatchesDummyFit(t *testing.T) {
 		}
 		x = append(x, col)
 	}
-	fast, err := fitStackedPoisson(st.y, x, st.w, st.cl, G, st.blocks, st.n2)
+	fast, err := poisson.FitStacked(st.y, x, st.w, st.cl, G, st.blocks, st.n2)
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -166,11 +167,11 @@ func TestStackedPoissonEventStudyMatchesDummyFit(t *testing.T) {
 		t.Fatal(err)
 	}
 	for j := range x {
-		if math.Abs(fast.beta[j]-slow.beta[j]) > 1e-8 {
-			t.Errorf("b[%d] %v concentrated, %v dummy fit", j, fast.beta[j], slow.beta[j])
+		if math.Abs(fast.Beta[j]-slow.Beta[j]) > 1e-8 {
+			t.Errorf("b[%d] %v concentrated, %v dummy fit", j, fast.Beta[j], slow.Beta[j])
 		}
 		for k := range x {
-			if v1, v2 := fast.vcov.At(j, k), slow.vcov.At(j, k); math.Abs(v1-v2) > 1e-6*math.Sqrt(slow.vcov.At(j, j)*slow.vcov.At(k, k)) {
+			if v1, v2 := fast.Vcov.At(j, k), slow.Vcov.At(j, k); math.Abs(v1-v2) > 1e-6*math.Sqrt(slow.Vcov.At(j, j)*slow.Vcov.At(k, k)) {
 				t.Errorf("V[%d,%d] %v concentrated, %v dummy fit", j, k, v1, v2)
 			}
 		}

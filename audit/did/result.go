@@ -18,7 +18,8 @@ type estimate struct {
 	att, se, lo, hi, p         float64
 	rel, relLo, relHi          float64
 	hasRel                     bool
-	noInterval                 bool // too few treated clusters: p from randomization, no interval
+	postMean                   float64 // treated post mean m of setRelativeLinear (0: not set)
+	noInterval                 bool    // too few treated clusters: p from randomization, no interval
 	preP                       float64
 	hasPre                     bool
 	treatedUnits, controlUnits int
@@ -44,6 +45,7 @@ type eventPoint struct {
 // (m held fixed).
 func (e *estimate) setRelativeLinear(m float64) {
 	f := func(a float64) float64 { return a / (m - a) }
+	e.postMean = m
 	if m-e.att <= 0 || m-e.hi <= 0 {
 		e.note += "; relative effect not given: counterfactual mean not positive"
 		return
