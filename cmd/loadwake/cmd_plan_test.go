@@ -1,0 +1,91 @@
+package main
+
+import (
+	"errors"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+
+	"github.com/paulmach/orb"
+
+	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/audit/spatial"
+)
+
+// TestPlanCommand plans the simulator's invented proposal over nine
+// districts of a small invented world and checks the files, the
+// reproducibility of the seed and the summary.
+func TestPlanCommand(t *testing.T) {
+	if testing.Short() {
+		t.Skip("simulated world: skipped with -short")
+	}
+	store, world, _ := simulatedStore(t)
+	districts := filepath.Join(world, sim.DistrictsFile)
+	units, err := spatial.Parse(districts, spatial.Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	var areas []orb.Bound
+	for i := range 9 {
+		areas = append(areas, units.Bound(i))
+	}
+	data, err := sim.Proposal(areas, 5)
+	if err != nil {
+		t.Fatal(err)
+	}
+	tmp := t.TempDir()
+	prop := filepath.Join(tmp, "proposal.geojson")
+	if err := os.WriteFile(prop, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	run := func(dir string) string {
+		t.Helper()
+		out, err := execRootOut(t, "--store", store, "plan", prop, "--units", districts, "--waves", "3", "--months-between", "2",
+			"--history", "12", "--window-before", "6", "--seed", "11", "--no-power", "--out", dir)
+		if err != nil {
+			t.Fatalf("plan: %v\n%s", err, out)
+		}
+		return out
+	}
+	a, b := filepath.Join(tmp, "a"), filepath.Join(tmp, "b")
+	out := run(a)
+	run(b)
+	for _, name := range []string{"plan.json", "plan.csv", "plan.geojson", "preregistration.md", "preregistration.wiki",
+		"waves/wave-1.osc", "waves/wave-2.osc", "waves/wave-3.osc"} {
+		if fi, err := os.Stat(filepath.Join(a, name)); err != nil || fi.Size() == 0 {
+			t.Errorf("%s: %v", name, err)
+		}
+	}
+	ca, _ := os.ReadFile(filepath.Join(a, "plan.csv"))
+	cb, _ := os.ReadFile(filepath.Join(b, "plan.csv"))
+	if string(ca) != string(cb) || strings.Count(string(ca), "\n") != 10 {
+		t.Errorf("seed 11 twice gave different plans or not 9 units:\n%s\n%s", ca, cb)
+	}
+	for _, want := range []string{"9 units", "wave 3", "comparison until the evaluation", "look 1", "community"} {
+		if !strings.Contains(out, want) {
+			t.Errorf("summary lacks %q:\n%s", want, out)
+		}
+	}
+}
+
+func TestPlanBadFlags(t *testing.T) {
+	for _, tc := range []struct {
+		name string
+		args []string
+	}{
+		{"no units", []string{"plan", "p.geojson"}},
+		{"one wave", []string{"plan", "p.geojson", "--units", "tiles:14", "--waves", "1"}},
+		{"bad start", []string{"plan", "p.geojson", "--units", "tiles:14", "--start", "2024-13"}},
+		{"pause 0", []string{"plan", "p.geojson", "--units", "tiles:14", "--pause", "0"}},
+		{"few draws", []string{"plan", "p.geojson", "--units", "tiles:14", "--draws", "10"}},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			_, err := execRootOut(t, tc.args...)
+			var u usageError
+			if !errors.As(err, &u) {
+				t.Errorf("error %v, want a usage error", err)
+			}
+		})
+	}
+}
