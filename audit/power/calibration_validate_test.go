@@ -5,7 +5,6 @@ package power
 import (
 	"context"
 	"math"
-	"math/rand/v2"
 	"os"
 	"strconv"
 	"testing"
@@ -105,7 +104,7 @@ func TestPredictedPowerMatchesSimulatedWorlds(t *testing.T) {
 		if err != nil {
 			t.Fatal(err)
 		}
-		r, err := Simulate(ctx, m, []Design{d}, uniformAssign, Options{Worlds: perWorld, Effects: []float64{-0.25}, Draws: 199, Seed: uint64(w + 1)})
+		r, err := Simulate(ctx, m, []Design{d}, plainAssign, Options{Worlds: perWorld, Effects: []float64{-0.25}, Draws: 199, Seed: uint64(w + 1)})
 		if err != nil {
 			t.Fatal(err)
 		}
@@ -119,16 +118,4 @@ func TestPredictedPowerMatchesSimulatedWorlds(t *testing.T) {
 	if math.Abs(diff) > 5 {
 		t.Errorf("predicted power %.1f%% and observed rate %.1f%% differ by %+.1f points, more than 5", 100*pre.Estimate, 100*obs.Estimate, diff)
 	}
-}
-
-// uniformAssign deals units to waves in equal shares by a seeded random
-// permutation, without regard to activity: as sim draws its treated
-// districts (LevelSelection 0) and deals them to cohorts.
-func uniformAssign(units []int, waves int, seed uint64) ([]int, error) {
-	rng := rand.New(rand.NewPCG(seed, 3))
-	out := make([]int, len(units))
-	for i, j := range rng.Perm(len(units)) {
-		out[j] = i % waves
-	}
-	return out, nil
 }
