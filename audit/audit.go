@@ -12,6 +12,7 @@ import (
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/episode"
 	"github.com/loadwake/loadwake/audit/proposal"
+	"github.com/loadwake/loadwake/audit/retention"
 	"github.com/loadwake/loadwake/audit/study"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
@@ -60,6 +61,7 @@ type BalanceJSON struct {
 // while Schema stays the same.
 type Report struct {
 	Schema     string              `json:"schema"`
+	Event      EventSummary        `json:"event"` // what the treatment is: an import, or an event from a file
 	Import     ImportSummary       `json:"import"`
 	Window     [2]string           `json:"window"` // first and last panel month, YYYY-MM
 	Before     int                 `json:"before_months"`
@@ -73,9 +75,12 @@ type Report struct {
 	Robustness []Agreement `json:"robustness"`
 	// UnitFigures are descriptive observed and expected edits per import
 	// area (UnitFigure), not per-area effects.
-	UnitFigures []UnitFigure  `json:"unit_figures"`
-	Balance     []BalanceJSON `json:"balance"`
-	Estimation  struct {
+	UnitFigures []UnitFigure `json:"unit_figures"`
+	// Splits are the headline by area traits (AddSplits); nil when none
+	// was asked for.
+	Splits     *did.Splits   `json:"splits,omitempty"`
+	Balance    []BalanceJSON `json:"balance"`
+	Estimation struct {
 		Window did.Window `json:"event_window"`
 		Draws  int        `json:"bootstrap_draws"`
 		Seed   uint64     `json:"seed"`
@@ -86,6 +91,11 @@ type Report struct {
 	Notes      []string         `json:"notes"`
 	Cautions   []string         `json:"cautions"`
 	UnitList   []study.UnitInfo `json:"unit_list"`
+	// Retention follows the accounts that started editing in the import and
+	// comparison areas (package retention); figures about groups, never about
+	// a person. Absent when the audit skipped it or it could not be computed
+	// (a note says why).
+	Retention *retention.Result `json:"retention,omitempty"`
 
 	// Study is the panel behind the report, for charts and exports; not in JSON.
 	Study *study.Study `json:"-"`
@@ -98,6 +108,9 @@ type Options struct {
 	UnitSpec string      // how the units were given, for the report
 	// Generator says what made the report, for its provenance.
 	Generator Generator
+	// NoRetention skips the newcomer retention section (one more pass over
+	// the store's events).
+	NoRetention bool
 }
 
 // Run builds the study of episode ep (its matched panel) and estimates
@@ -120,6 +133,17 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 		return nil, fmt.Errorf("estimate: %w", err)
 	}
 	r := newReport(ep, st, est, so, opts.UnitSpec)
+	r.Event = importEvent(ep)
+	if !opts.NoRetention {
+		ret, note, err := newcomerRetention(ctx, src, st, units, ep, others, so, eo)
+		if err != nil {
+			return nil, err
+		}
+		r.Retention = ret
+		if note != "" {
+			r.Notes = append(r.Notes, note)
+		}
+	}
 	r.Provenance = NewProvenance(opts.Generator)
 	r.Provenance.Window, r.Provenance.Units = st.Window, opts.UnitSpec
 	if err := r.Provenance.addImport(ctx, src, ep); err != nil {

@@ -3,7 +3,6 @@ package ingest
 import (
 	"bytes"
 	"context"
-	"encoding/binary"
 	"encoding/json"
 	"errors"
 	"fmt"
@@ -15,6 +14,8 @@ import (
 	"github.com/dgraph-io/badger/v4"
 	"github.com/dgraph-io/badger/v4/pb"
 	"github.com/dgraph-io/ristretto/v2/z"
+	"github.com/loadwake/loadwake/ingest/internal/codec"
+	"github.com/loadwake/loadwake/ingest/internal/sortrun"
 	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
@@ -53,9 +54,6 @@ const (
 	streamMeta       = 3
 )
 
-// recordOverhead bounds the bytes a record takes in a run besides its key and value.
-const recordOverhead = 1 + 6*binary.MaxVarintLen64 + binary.MaxVarintLen32
-
 // bulkFlushBytes is how many encoded entries go to the StreamWriter at once.
 const bulkFlushBytes = 4 << 20
 
@@ -87,7 +85,7 @@ func (s *Store) empty() (bool, error) {
 		defer it.Close()
 		for it.Rewind(); it.Valid(); it.Next() {
 			k := it.Item().Key()
-			if !bytes.Equal(k, metaKey(metaSchema)) && !bytes.Equal(k, metaKey(metaTotals)) {
+			if !bytes.Equal(k, codec.MetaKey(metaSchema)) && !bytes.Equal(k, codec.MetaKey(metaTotals)) {
 				empty = false
 				return nil
 			}
@@ -109,7 +107,7 @@ type bulkIngest struct {
 	opts IngestOptions
 
 	files   []FileReport
-	buf     sortBuffer
+	buf     sortrun.Buffer
 	runDir  string
 	runs    []string
 	seq     uint64
@@ -133,7 +131,7 @@ type seqConflict struct {
 
 func ingestBulk(ctx context.Context, s *Store, paths []string, opts IngestOptions) (rep Report, err error) {
 	b := &bulkIngest{s: s, opts: opts, users: make(map[osm.UserID]firstUser), files: make([]FileReport, 0, len(paths))}
-	b.buf.reset()
+	b.buf.Reset()
 	rep.Bulk = true
 	defer func() {
 		if b.runDir != "" {
@@ -207,7 +205,7 @@ func (b *bulkIngest) readFile(ctx context.Context, fi int, path string, fr *File
 	b.opts.Progress.Start(path, size)
 	defer b.opts.Progress.Finish()
 
-	rec := record{file: fi}
+	rec := sortrun.Record{File: fi}
 	for r.Scan() {
 		it := r.Item()
 		fr.Items++
@@ -217,21 +215,21 @@ func (b *bulkIngest) readFile(ctx context.Context, fi int, path string, fr *File
 			if err != nil {
 				return fmt.Errorf("ingest: %s: %s: %w", path, it.Pos, err)
 			}
-			b.scratch = appendVersionKey(b.scratch[:0], tb, id, ver)
+			b.scratch = codec.AppendVersionKey(b.scratch[:0], tb, id, ver)
 			n := len(b.scratch)
-			if b.scratch, err = appendVersionValue(b.scratch, it.Object); err != nil {
+			if b.scratch, err = codec.AppendVersionValue(b.scratch, it.Object); err != nil {
 				return fmt.Errorf("%s: %s: %w", path, it.Pos, err)
 			}
-			rec.key, rec.val = b.scratch[:n], b.scratch[n:]
+			rec.Key, rec.Val = b.scratch[:n], b.scratch[n:]
 		case it.Changeset != nil:
-			b.scratch = append(b.scratch[:0], changesetKey(int64(it.Changeset.ID))...)
+			b.scratch = append(b.scratch[:0], codec.ChangesetKey(int64(it.Changeset.ID))...)
 			n := len(b.scratch)
-			b.scratch = appendChangesetValue(b.scratch, it.Changeset)
-			rec.key, rec.val = b.scratch[:n], b.scratch[n:]
+			b.scratch = codec.AppendChangesetValue(b.scratch, it.Changeset)
+			rec.Key, rec.Val = b.scratch[:n], b.scratch[n:]
 		default:
 			continue
 		}
-		rec.seq, rec.pos = b.seq, it.Pos
+		rec.Seq, rec.Pos = b.seq, it.Pos
 		b.seq++
 		if err := b.add(&rec); err != nil {
 			return err
@@ -258,19 +256,19 @@ func (b *bulkIngest) readFile(ctx context.Context, fi int, path string, fr *File
 func versionKeyParts(o osm.Object) (tb byte, id int64, version int, err error) {
 	switch o := o.(type) {
 	case *osm.Node:
-		return typeNode, int64(o.ID), o.Version, nil
+		return codec.TypeNode, int64(o.ID), o.Version, nil
 	case *osm.Way:
-		return typeWay, int64(o.ID), o.Version, nil
+		return codec.TypeWay, int64(o.ID), o.Version, nil
 	case *osm.Relation:
-		return typeRelation, int64(o.ID), o.Version, nil
+		return codec.TypeRelation, int64(o.ID), o.Version, nil
 	}
 	return 0, 0, 0, fmt.Errorf("unexpected object %T", o)
 }
 
 // add puts a record into the sort buffer, spilling the buffer first when the
 // record would take it past its budget.
-func (b *bulkIngest) add(r *record) error {
-	if len(b.buf.data)+len(r.key)+len(r.val)+recordOverhead > b.opts.SortBufferBytes && b.buf.len() > 0 {
+func (b *bulkIngest) add(r *sortrun.Record) error {
+	if b.buf.Size()+len(r.Key)+len(r.Val)+sortrun.RecordOverhead > b.opts.SortBufferBytes && b.buf.Len() > 0 {
 		if b.runDir == "" {
 			dir, err := b.tempDir()
 			if err != nil {
@@ -278,14 +276,14 @@ func (b *bulkIngest) add(r *record) error {
 			}
 			b.runDir = dir
 		}
-		path, err := b.buf.spill(b.runDir, len(b.runs))
+		path, err := b.buf.Spill(b.runDir, len(b.runs))
 		if err != nil {
 			return fmt.Errorf("%s: %w", b.s.name(), err)
 		}
 		b.runs = append(b.runs, path)
-		b.buf.reset()
+		b.buf.Reset()
 	}
-	b.buf.add(r, b.opts.SortBufferBytes)
+	b.buf.Add(r, b.opts.SortBufferBytes)
 	return nil
 }
 
@@ -316,14 +314,14 @@ func (b *bulkIngest) write(ctx context.Context) (err error) {
 	if err := b.reduceRuns(ctx); err != nil {
 		return err
 	}
-	b.buf.sort()
-	cursors := []cursor{&memCursor{b: &b.buf}}
+	b.buf.Sort()
+	cursors := []sortrun.Cursor{b.buf.Cursor()}
 	for _, path := range b.runs {
-		c, err := openRun(path)
+		c, err := sortrun.OpenRun(path)
 		if err != nil {
 			return fmt.Errorf("%s: %w", s.name(), err)
 		}
-		defer c.close()
+		defer c.Close()
 		cursors = append(cursors, c)
 	}
 
@@ -344,7 +342,7 @@ func (b *bulkIngest) write(ctx context.Context) (err error) {
 		}
 	}()
 
-	if err := b.merge(ctx, newMerger(cursors), out); err != nil {
+	if err := b.merge(ctx, sortrun.NewMerger(cursors), out); err != nil {
 		return err
 	}
 	if err := b.writeMeta(out); err != nil {
@@ -375,7 +373,7 @@ func (b *bulkIngest) reduceRuns(ctx context.Context) error {
 		var next []string
 		for i := 0; i < len(b.runs); i += maxFanIn {
 			group := b.runs[i:min(i+maxFanIn, len(b.runs))]
-			path, err := mergeRuns(ctx, group, filepath.Join(b.runDir, fmt.Sprintf("merged-%d-%05d", len(b.runs), len(next))))
+			path, err := sortrun.MergeFiles(ctx, group, filepath.Join(b.runDir, fmt.Sprintf("merged-%d-%05d", len(b.runs), len(next))))
 			if err != nil {
 				return fmt.Errorf("%s: %w", b.s.name(), err)
 			}
@@ -487,13 +485,13 @@ func (o *streamOut) flush() error {
 // earliest read is stored and the later ones are duplicates (same bytes) or
 // conflicts (different bytes), except that a closed changeset replaces an
 // open one, as on the transactional path.
-func (b *bulkIngest) merge(ctx context.Context, m *merger, out *streamOut) error {
+func (b *bulkIngest) merge(ctx context.Context, m *sortrun.Merger, out *streamOut) error {
 	var (
-		cur      record // the record to store, copied
-		curFirst uint64 // seq of the first record under cur.key
-		curFile  int    // file of that record
+		cur      sortrun.Record // the record to store, copied
+		curFirst uint64         // seq of the first record under cur.Key
+		curFile  int            // file of that record
 		have     bool
-		lastObj  [objectPrefixLen]byte
+		lastObj  [codec.ObjectPrefixLen]byte
 		n        int
 	)
 	emit := func() error {
@@ -503,7 +501,7 @@ func (b *bulkIngest) merge(ctx context.Context, m *merger, out *streamOut) error
 		return b.store(&cur, curFirst, curFile, &lastObj, out)
 	}
 	for {
-		r, err := m.next()
+		r, err := m.Next()
 		if err != nil {
 			return fmt.Errorf("%s: %w", b.s.name(), err)
 		}
@@ -515,39 +513,39 @@ func (b *bulkIngest) merge(ctx context.Context, m *merger, out *streamOut) error
 				return err
 			}
 		}
-		if have && bytes.Equal(r.key, cur.key) {
+		if have && bytes.Equal(r.Key, cur.Key) {
 			b.later(&cur, r)
 			continue
 		}
 		if err := emit(); err != nil {
 			return err
 		}
-		cur.key = append(cur.key[:0], r.key...)
-		cur.val = append(cur.val[:0], r.val...)
-		cur.seq, cur.file, cur.pos = r.seq, r.file, r.pos
-		curFirst, curFile, have = r.seq, r.file, true
+		cur.Key = append(cur.Key[:0], r.Key...)
+		cur.Val = append(cur.Val[:0], r.Val...)
+		cur.Seq, cur.File, cur.Pos = r.Seq, r.File, r.Pos
+		curFirst, curFile, have = r.Seq, r.File, true
 	}
 	return emit()
 }
 
 // later handles a record under the same key as cur, read after it.
-func (b *bulkIngest) later(cur, r *record) {
-	fr := &b.files[r.file].FileRecord
+func (b *bulkIngest) later(cur, r *sortrun.Record) {
+	fr := &b.files[r.File].FileRecord
 	switch {
-	case bytes.Equal(r.val, cur.val):
+	case bytes.Equal(r.Val, cur.Val):
 		fr.Duplicates++
-	case cur.key[0] == prefixChangeset && len(cur.val) > 1 && cur.val[1]&flagOpen != 0 && len(r.val) > 1 && r.val[1]&flagOpen == 0:
-		cur.val = append(cur.val[:0], r.val...)
+	case cur.Key[0] == codec.PrefixChangeset && len(cur.Val) > 1 && cur.Val[1]&codec.FlagOpen != 0 && len(r.Val) > 1 && r.Val[1]&codec.FlagOpen == 0:
+		cur.Val = append(cur.Val[:0], r.Val...)
 		fr.Updated++
 	default:
 		fr.Conflicts++
 		var object string
-		if tb, id, ver, ok := parseVersionKey(r.key); ok {
-			object = fmt.Sprintf("%s/%d v%d", typeOfByte(tb), id, ver)
+		if tb, id, ver, ok := codec.ParseVersionKey(r.Key); ok {
+			object = fmt.Sprintf("%s/%d v%d", codec.TypeOfByte(tb), id, ver)
 		} else {
-			object = fmt.Sprintf("changeset/%d", getID(r.key[1:]))
+			object = fmt.Sprintf("changeset/%d", codec.GetID(r.Key[1:]))
 		}
-		b.conflict(r.seq, Conflict{File: fr.Path, Pos: r.pos, Object: object})
+		b.conflict(r.Seq, Conflict{File: fr.Path, Pos: r.Pos, Object: object})
 	}
 }
 
@@ -578,34 +576,34 @@ func (b *bulkIngest) trimConflicts() {
 }
 
 // store writes the record chosen for a key and counts it.
-func (b *bulkIngest) store(r *record, firstSeq uint64, firstFile int, lastObj *[objectPrefixLen]byte, out *streamOut) error {
+func (b *bulkIngest) store(r *sortrun.Record, firstSeq uint64, firstFile int, lastObj *[codec.ObjectPrefixLen]byte, out *streamOut) error {
 	fr := &b.files[firstFile].FileRecord
-	if r.key[0] == prefixChangeset {
-		uid, user, err := summarizeChangeset(r.val)
+	if r.Key[0] == codec.PrefixChangeset {
+		uid, user, err := codec.SummarizeChangeset(r.Val)
 		if err != nil {
-			return fmt.Errorf("%s: changeset/%d: %w", b.s.name(), getID(r.key[1:]), err)
+			return fmt.Errorf("%s: changeset/%d: %w", b.s.name(), codec.GetID(r.Key[1:]), err)
 		}
 		fr.Changesets++
 		b.totals.Changesets++
 		b.user(uid, user, firstSeq)
-		return out.put(streamChangesets, r.key, r.val)
+		return out.put(streamChangesets, r.Key, r.Val)
 	}
-	tb := r.key[1]
-	sum, err := summarizeVersion(tb, r.val)
+	tb := r.Key[1]
+	sum, err := codec.SummarizeVersion(tb, r.Val)
 	if err != nil {
-		_, id, ver, _ := parseVersionKey(r.key)
-		return fmt.Errorf("%s: %s/%d v%d: %w", b.s.name(), typeOfByte(tb), id, ver, err)
+		_, id, ver, _ := codec.ParseVersionKey(r.Key)
+		return fmt.Errorf("%s: %s/%d v%d: %w", b.s.name(), codec.TypeOfByte(tb), id, ver, err)
 	}
-	newObject := !bytes.Equal(lastObj[:], r.key[:objectPrefixLen])
-	copy(lastObj[:], r.key)
+	newObject := !bytes.Equal(lastObj[:], r.Key[:codec.ObjectPrefixLen])
+	copy(lastObj[:], r.Key)
 	fr.Versions++
 	var ts time.Time
-	if sum.ts != 0 {
-		ts = time.Unix(sum.ts, 0)
+	if sum.TS != 0 {
+		ts = time.Unix(sum.TS, 0)
 	}
-	b.totals.addVersion(tb, newObject, sum.visible, orb.Point{sum.lon, sum.lat}, ts)
-	b.user(sum.uid, sum.user, firstSeq)
-	return out.put(streamVersions, r.key, r.val)
+	b.totals.addVersion(tb, newObject, sum.Visible, orb.Point{sum.Lon, sum.Lat}, ts)
+	b.user(sum.UID, sum.User, firstSeq)
+	return out.put(streamVersions, r.Key, r.Val)
 }
 
 // user notes the name of uid when this stored item is the earliest read with it.
@@ -624,12 +622,12 @@ func (b *bulkIngest) writeMeta(out *streamOut) error {
 	b.totals.Users = int64(len(b.users))
 	type kv struct{ k, v []byte }
 	var recs []kv
-	recs = append(recs, kv{metaKey(metaSchema), fmt.Appendf(nil, "%d", SchemaVersion)})
+	recs = append(recs, kv{codec.MetaKey(metaSchema), fmt.Appendf(nil, "%d", SchemaVersion)})
 	tot, err := json.Marshal(b.totals)
 	if err != nil {
 		return err
 	}
-	recs = append(recs, kv{metaKey(metaTotals), tot})
+	recs = append(recs, kv{codec.MetaKey(metaTotals), tot})
 	for i := range b.files {
 		f := &b.files[i]
 		if f.Err != nil || f.Skipped || f.Completed.IsZero() {
@@ -639,12 +637,12 @@ func (b *bulkIngest) writeMeta(out *streamOut) error {
 		if err != nil {
 			return err
 		}
-		recs = append(recs, kv{metaKey(metaFilePrefix + f.SHA256), rec})
+		recs = append(recs, kv{codec.MetaKey(metaFilePrefix + f.SHA256), rec})
 	}
 	for uid, u := range b.users {
 		key := make([]byte, 1+len(metaUserPrefix)+8)
-		copy(key, metaKey(metaUserPrefix))
-		putID(key[1+len(metaUserPrefix):], int64(uid))
+		copy(key, codec.MetaKey(metaUserPrefix))
+		codec.PutID(key[1+len(metaUserPrefix):], int64(uid))
 		recs = append(recs, kv{key, []byte(u.name)})
 	}
 	slices.SortFunc(recs, func(x, y kv) int { return bytes.Compare(x.k, y.k) })

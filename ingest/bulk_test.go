@@ -13,6 +13,7 @@ import (
 	"time"
 
 	"github.com/dgraph-io/badger/v4"
+	"github.com/loadwake/loadwake/ingest/internal/codec"
 )
 
 // fixturePaths are real OSM files of testdata/ (see its README) in an order
@@ -47,7 +48,7 @@ func dumpStore(tb testing.TB, s *Store, sumCounts bool) string {
 			if err != nil {
 				return err
 			}
-			if bytes.HasPrefix(k, metaKey(metaFilePrefix)) {
+			if bytes.HasPrefix(k, codec.MetaKey(metaFilePrefix)) {
 				var f FileRecord
 				if err := json.Unmarshal(v, &f); err != nil {
 					return err

@@ -5,6 +5,9 @@
 //
 // # Key layout
 //
+// Package ingest/internal/codec encodes and decodes what this section and the
+// next describe.
+//
 // All keys start with one prefix byte. Integers in keys are big-endian so that
 // byte order is numeric order; 64-bit ids have their sign bit flipped
 // (id XOR 1<<63) so that negative ids sort before positive ones.
@@ -59,8 +62,9 @@
 // The bulk path reads every file first. Encoded keys and values go into a
 // sort buffer (IngestOptions.SortBufferBytes); a full buffer is sorted
 // (unless its records came in key order, as a history file's do) and
-// written to a temporary file, a sorted run. At the end the runs are merged
-// in key order, the earliest read record of each key winning, and written
+// written to a temporary file, a sorted run (package ingest/internal/sortrun).
+// At the end the runs are merged in key order, the earliest read record of
+// each key winning, and written
 // through Badger's StreamWriter, which builds the store's tables directly
 // without its write-ahead log, memtables or compactions. Memory is bounded by
 // the sort buffer and the table builders (see DefaultOptions), not by the

@@ -14,6 +14,7 @@ import (
 	"time"
 
 	"github.com/dgraph-io/badger/v4"
+	"github.com/loadwake/loadwake/ingest/internal/codec"
 	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
@@ -200,7 +201,7 @@ type writer struct {
 	// Versions written in the open transaction: the keys proven absent by
 	// maxKey, per type and ascending, and the objects of the others.
 	pendSorted [3][][]byte
-	pendObj    map[[objectPrefixLen]byte]struct{}
+	pendObj    map[[codec.ObjectPrefixLen]byte]struct{}
 	view       *badger.Txn // read view of committed data for hasObject
 	viewIt     *badger.Iterator
 
@@ -211,9 +212,9 @@ type writer struct {
 
 func typeIndex(tb byte) int {
 	switch tb {
-	case typeNode:
+	case codec.TypeNode:
 		return 0
-	case typeWay:
+	case codec.TypeWay:
 		return 1
 	}
 	return 2
@@ -232,17 +233,17 @@ func newWriter(s *Store, opts IngestOptions) (*writer, error) {
 func (w *writer) load() error {
 	w.discard()
 	w.users = make(map[osm.UserID]struct{})
-	w.pendObj = make(map[[objectPrefixLen]byte]struct{})
+	w.pendObj = make(map[[codec.ObjectPrefixLen]byte]struct{})
 	w.forgetPending()
 	err := w.s.db.View(func(txn *badger.Txn) error {
 		var err error
 		if w.totals, err = readTotals(txn); err != nil {
 			return err
 		}
-		for i, tb := range []byte{typeNode, typeWay, typeRelation} {
-			w.maxKey[i] = lastKey(txn, []byte{prefixVersion, tb})
+		for i, tb := range []byte{codec.TypeNode, codec.TypeWay, codec.TypeRelation} {
+			w.maxKey[i] = lastKey(txn, []byte{codec.PrefixVersion, tb})
 		}
-		w.maxChangeset = lastKey(txn, []byte{prefixChangeset})
+		w.maxChangeset = lastKey(txn, []byte{codec.PrefixChangeset})
 		return nil
 	})
 	if err != nil {
@@ -317,7 +318,7 @@ func (w *writer) commit(file *FileRecord) error {
 	if err != nil {
 		return err
 	}
-	if err := w.txn.Set(metaKey(metaTotals), tot); err != nil {
+	if err := w.txn.Set(codec.MetaKey(metaTotals), tot); err != nil {
 		return fmt.Errorf("%s: write totals: %w", w.s.name(), err)
 	}
 	if file != nil {
@@ -325,7 +326,7 @@ func (w *writer) commit(file *FileRecord) error {
 		if err != nil {
 			return err
 		}
-		if err := w.txn.Set(metaKey(metaFilePrefix+file.SHA256), rec); err != nil {
+		if err := w.txn.Set(codec.MetaKey(metaFilePrefix+file.SHA256), rec); err != nil {
 			return fmt.Errorf("%s: write file record: %w", w.s.name(), err)
 		}
 	}
@@ -358,7 +359,7 @@ func (w *writer) get(key []byte) ([]byte, bool, error) {
 // prefix (v|type|id) is stored or pending. It avoids iterating the write
 // transaction, which would sort its pending writes on every call.
 func (w *writer) hasObject(ti int, prefix []byte) bool {
-	if _, ok := w.pendObj[[objectPrefixLen]byte(prefix)]; ok {
+	if _, ok := w.pendObj[[codec.ObjectPrefixLen]byte(prefix)]; ok {
 		return true
 	}
 	keys := w.pendSorted[ti]
@@ -417,7 +418,7 @@ func (w *writer) file(ctx context.Context, path string) (FileReport, error) {
 		return fr, err
 	}
 	fr.Size, fr.SHA256 = size, sum
-	if _, done, err := w.get(metaKey(metaFilePrefix + sum)); err != nil {
+	if _, done, err := w.get(codec.MetaKey(metaFilePrefix + sum)); err != nil {
 		return fr, err
 	} else if done {
 		fr.Skipped = true
@@ -505,17 +506,17 @@ func (w *writer) version(it osmfile.Item, fr *FileRecord) error {
 	)
 	switch o := it.Object.(type) {
 	case *osm.Node:
-		tb, id, ver, visible, ts, uid, user = typeNode, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
+		tb, id, ver, visible, ts, uid, user = codec.TypeNode, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
 	case *osm.Way:
-		tb, id, ver, visible, ts, uid, user = typeWay, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
+		tb, id, ver, visible, ts, uid, user = codec.TypeWay, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
 	case *osm.Relation:
-		tb, id, ver, visible, ts, uid, user = typeRelation, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
+		tb, id, ver, visible, ts, uid, user = codec.TypeRelation, int64(o.ID), o.Version, o.Visible, o.Timestamp, o.UserID, o.User
 	default:
 		return fmt.Errorf("ingest: %s: %s: unexpected object %T", fr.Path, it.Pos, it.Object)
 	}
-	key := appendVersionKey(w.alloc(versionKeyLen)[:0], tb, id, ver)
+	key := codec.AppendVersionKey(w.alloc(codec.VersionKeyLen)[:0], tb, id, ver)
 	mark := len(w.arena)
-	buf, err := appendVersionValue(w.arena, it.Object)
+	buf, err := codec.AppendVersionValue(w.arena, it.Object)
 	if err != nil {
 		return fmt.Errorf("%s: %s: %w", fr.Path, it.Pos, err)
 	}
@@ -531,7 +532,7 @@ func (w *writer) version(it osmfile.Item, fr *FileRecord) error {
 	if maxk := w.maxKey[ti]; maxk == nil || bytes.Compare(key, maxk) > 0 {
 		// Larger than every key of the type: absent, and a new object
 		// unless the largest key belongs to the same id.
-		newObject = maxk == nil || !bytes.Equal(key[:objectPrefixLen], maxk[:objectPrefixLen])
+		newObject = maxk == nil || !bytes.Equal(key[:codec.ObjectPrefixLen], maxk[:codec.ObjectPrefixLen])
 		w.maxKey[ti] = key
 		fast = true
 	} else {
@@ -543,11 +544,11 @@ func (w *writer) version(it osmfile.Item, fr *FileRecord) error {
 			if bytes.Equal(old, val) {
 				fr.Duplicates++
 			} else {
-				w.conflict(fr, it.Pos, fmt.Sprintf("%s/%d v%d", typeOfByte(tb), id, ver))
+				w.conflict(fr, it.Pos, fmt.Sprintf("%s/%d v%d", codec.TypeOfByte(tb), id, ver))
 			}
 			return nil
 		}
-		newObject = !w.hasObject(ti, key[:objectPrefixLen])
+		newObject = !w.hasObject(ti, key[:codec.ObjectPrefixLen])
 	}
 	if err := w.set(key, val); err != nil {
 		return err
@@ -556,7 +557,7 @@ func (w *writer) version(it osmfile.Item, fr *FileRecord) error {
 	if fast {
 		w.pendSorted[ti] = append(w.pendSorted[ti], key)
 	} else {
-		w.pendObj[[objectPrefixLen]byte(key)] = struct{}{}
+		w.pendObj[[codec.ObjectPrefixLen]byte(key)] = struct{}{}
 	}
 	fr.Versions++
 	var p orb.Point
@@ -571,7 +572,7 @@ func (w *writer) version(it osmfile.Item, fr *FileRecord) error {
 // a node's position (used when visible), ts its time (zero for none).
 func (t *Stats) addVersion(tb byte, newObject, visible bool, p orb.Point, ts time.Time) {
 	switch tb {
-	case typeNode:
+	case codec.TypeNode:
 		t.NodeVersions++
 		if newObject {
 			t.Nodes++
@@ -583,7 +584,7 @@ func (t *Stats) addVersion(tb byte, newObject, visible bool, p orb.Point, ts tim
 				t.BBox, t.HasBBox = orb.Bound{Min: p, Max: p}, true
 			}
 		}
-	case typeWay:
+	case codec.TypeWay:
 		t.WayVersions++
 		if newObject {
 			t.Ways++
@@ -617,8 +618,8 @@ func (w *writer) user(uid osm.UserID, name string) error {
 		return nil
 	}
 	key := make([]byte, 1+len(metaUserPrefix)+8)
-	copy(key, metaKey(metaUserPrefix))
-	putID(key[1+len(metaUserPrefix):], int64(uid))
+	copy(key, codec.MetaKey(metaUserPrefix))
+	codec.PutID(key[1+len(metaUserPrefix):], int64(uid))
 	_, found, err := w.get(key)
 	if err != nil {
 		return err
@@ -638,8 +639,8 @@ func (w *writer) user(uid osm.UserID, name string) error {
 // conflicts.
 func (w *writer) changeset(it osmfile.Item, fr *FileRecord) error {
 	c := it.Changeset
-	key := changesetKey(int64(c.ID))
-	val := appendChangesetValue(nil, c)
+	key := codec.ChangesetKey(int64(c.ID))
+	val := codec.AppendChangesetValue(nil, c)
 	if w.maxChangeset == nil || bytes.Compare(key, w.maxChangeset) > 0 {
 		w.maxChangeset = key
 	} else {
@@ -651,7 +652,7 @@ func (w *writer) changeset(it osmfile.Item, fr *FileRecord) error {
 			switch {
 			case bytes.Equal(old, val):
 				fr.Duplicates++
-			case len(old) > 1 && old[1]&flagOpen != 0 && !c.Open:
+			case len(old) > 1 && old[1]&codec.FlagOpen != 0 && !c.Open:
 				if err := w.set(key, val); err != nil {
 					return err
 				}

@@ -18,6 +18,7 @@ import (
 
 	"github.com/dgraph-io/badger/v4"
 	"github.com/dgraph-io/badger/v4/options"
+	"github.com/loadwake/loadwake/ingest/internal/codec"
 	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
@@ -324,7 +325,7 @@ func (s *Store) name() string {
 
 func (s *Store) checkSchema() error {
 	return s.db.Update(func(txn *badger.Txn) error {
-		item, err := txn.Get(metaKey(metaSchema))
+		item, err := txn.Get(codec.MetaKey(metaSchema))
 		if errors.Is(err, badger.ErrKeyNotFound) {
 			it := txn.NewIterator(badger.IteratorOptions{})
 			it.Rewind()
@@ -334,7 +335,7 @@ func (s *Store) checkSchema() error {
 				return fmt.Errorf("%s: %w: %w: not a loadwake store (no schema record); give --store a new or empty folder",
 					s.name(), ErrNotStore, osmfile.ErrFormat)
 			}
-			return txn.Set(metaKey(metaSchema), []byte(strconv.Itoa(SchemaVersion)))
+			return txn.Set(codec.MetaKey(metaSchema), []byte(strconv.Itoa(SchemaVersion)))
 		}
 		if err != nil {
 			return fmt.Errorf("%s: read schema: %w", s.name(), err)
@@ -404,12 +405,12 @@ func (s *Store) scanPrefix(ctx context.Context, prefix []byte, fn func(k, v []by
 // Each object is freshly allocated and fn may keep it. An error from fn stops
 // the scan and is returned.
 func (s *Store) ScanVersions(ctx context.Context, t osm.Type, fn func(o osm.Object) error) error {
-	tb, err := typeByte(t)
+	tb, err := codec.TypeByte(t)
 	if err != nil {
 		return err
 	}
-	return s.scanPrefix(ctx, []byte{prefixVersion, tb}, func(k, v []byte) error {
-		o, err := decodeVersion(k, v)
+	return s.scanPrefix(ctx, []byte{codec.PrefixVersion, tb}, func(k, v []byte) error {
+		o, err := codec.DecodeVersion(k, v)
 		if err != nil {
 			return fmt.Errorf("%s: %w", s.name(), err)
 		}
@@ -420,13 +421,13 @@ func (s *Store) ScanVersions(ctx context.Context, t osm.Type, fn func(o osm.Obje
 // ObjectVersions returns all stored versions of one object in version order;
 // none is an empty slice and no error.
 func (s *Store) ObjectVersions(ctx context.Context, t osm.Type, id int64) ([]osm.Object, error) {
-	tb, err := typeByte(t)
+	tb, err := codec.TypeByte(t)
 	if err != nil {
 		return nil, err
 	}
 	var out []osm.Object
-	err = s.scanPrefix(ctx, objectPrefix(tb, id), func(k, v []byte) error {
-		o, err := decodeVersion(k, v)
+	err = s.scanPrefix(ctx, codec.ObjectPrefix(tb, id), func(k, v []byte) error {
+		o, err := codec.DecodeVersion(k, v)
 		if err != nil {
 			return fmt.Errorf("%s: %w", s.name(), err)
 		}
@@ -446,7 +447,7 @@ func (s *Store) NodeAt(ctx context.Context, id osm.NodeID, at time.Time) (p orb.
 	if err := s.usable(); err != nil {
 		return p, false, err
 	}
-	prefix := objectPrefix(typeNode, int64(id))
+	prefix := codec.ObjectPrefix(codec.TypeNode, int64(id))
 	err = s.db.View(func(txn *badger.Txn) error {
 		opt := badger.DefaultIteratorOptions
 		opt.Prefix = prefix
@@ -456,7 +457,7 @@ func (s *Store) NodeAt(ctx context.Context, id osm.NodeID, at time.Time) (p orb.
 		for it.Seek(prefix); it.Valid(); it.Next() {
 			item := it.Item()
 			err := item.Value(func(v []byte) error {
-				ts, visible, lat, lon, err := decodeNodePosition(v)
+				ts, visible, lat, lon, err := codec.DecodeNodePosition(v)
 				if err != nil {
 					return fmt.Errorf("%s: node/%d: %w", s.name(), id, err)
 				}
@@ -481,8 +482,8 @@ func (s *Store) NodeAt(ctx context.Context, id osm.NodeID, at time.Time) (p orb.
 // ScanChangesets calls fn with every stored changeset record in id order.
 // Each changeset is freshly allocated and fn may keep it.
 func (s *Store) ScanChangesets(ctx context.Context, fn func(c *osm.Changeset) error) error {
-	return s.scanPrefix(ctx, []byte{prefixChangeset}, func(k, v []byte) error {
-		c, err := decodeChangeset(k, v)
+	return s.scanPrefix(ctx, []byte{codec.PrefixChangeset}, func(k, v []byte) error {
+		c, err := codec.DecodeChangeset(k, v)
 		if err != nil {
 			return fmt.Errorf("%s: %w", s.name(), err)
 		}
@@ -499,7 +500,7 @@ func (s *Store) Changeset(ctx context.Context, id osm.ChangesetID) (*osm.Changes
 	if err := s.usable(); err != nil {
 		return nil, false, err
 	}
-	key := changesetKey(int64(id))
+	key := codec.ChangesetKey(int64(id))
 	var c *osm.Changeset
 	err := s.db.View(func(txn *badger.Txn) error {
 		item, err := txn.Get(key)
@@ -510,7 +511,7 @@ func (s *Store) Changeset(ctx context.Context, id osm.ChangesetID) (*osm.Changes
 			return err
 		}
 		return item.Value(func(v []byte) error {
-			c, err = decodeChangeset(key, v)
+			c, err = codec.DecodeChangeset(key, v)
 			return err
 		})
 	})
@@ -523,7 +524,7 @@ func (s *Store) Changeset(ctx context.Context, id osm.ChangesetID) (*osm.Changes
 // derivedKey prefixes an owner's key with the derived-data prefix.
 func derivedKey(key []byte) []byte {
 	k := make([]byte, 1+len(key))
-	k[0] = prefixDerived
+	k[0] = codec.PrefixDerived
 	copy(k[1:], key)
 	return k
 }
@@ -674,7 +675,7 @@ func (s *Store) Stats(ctx context.Context) (Stats, error) {
 
 func readTotals(txn *badger.Txn) (Stats, error) {
 	var st Stats
-	item, err := txn.Get(metaKey(metaTotals))
+	item, err := txn.Get(codec.MetaKey(metaTotals))
 	if errors.Is(err, badger.ErrKeyNotFound) {
 		return st, nil
 	}
@@ -696,7 +697,7 @@ func (s *Store) Meta(ctx context.Context) (Meta, error) {
 		return m, err
 	}
 	m.Totals = st
-	err = s.scanPrefix(ctx, metaKey(metaFilePrefix), func(_, v []byte) error {
+	err = s.scanPrefix(ctx, codec.MetaKey(metaFilePrefix), func(_, v []byte) error {
 		var f FileRecord
 		if err := json.Unmarshal(v, &f); err != nil {
 			return fmt.Errorf("%s: file record: %w", s.name(), err)

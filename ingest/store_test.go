@@ -12,6 +12,7 @@ import (
 	"testing"
 
 	"github.com/dgraph-io/badger/v4"
+	"github.com/loadwake/loadwake/ingest/internal/codec"
 	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
@@ -25,7 +26,7 @@ func TestOpenRefusesNewerSchema(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	err = s.db.Update(func(txn *badger.Txn) error { return txn.Set(metaKey(metaSchema), []byte("99")) })
+	err = s.db.Update(func(txn *badger.Txn) error { return txn.Set(codec.MetaKey(metaSchema), []byte("99")) })
 	if err != nil {
 		t.Fatal(err)
 	}

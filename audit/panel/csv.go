@@ -27,13 +27,27 @@ import (
 //	unit,month,first_treated,weight,cluster,geometry,attribute
 //	t-017,2031-04,2031-09,1,t-017,3,0
 //
-// ReadCSV reads the file back with the same column names.
+// ReadCSV reads the file back with the same column names. When the units
+// carry pre-period covariates (the doubly robust cs-att uses them), one
+// column per covariate follows the outcomes, named CovariatePrefix and the
+// covariate's name, so the file holds everything the estimators read.
 func WriteCSV(w io.Writer, p *Panel) error {
 	if err := p.Validate(); err != nil {
 		return err
 	}
 	cw := csv.NewWriter(w)
-	header := append([]string{"unit", "month", "first_treated", "weight", "cluster"}, p.Outcomes...)
+	header := append(append([]string{}, ExportColumns...), p.Outcomes...)
+	ncov := 0
+	if len(p.Units) > 0 {
+		ncov = len(p.Units[0].Covariates)
+	}
+	for k := range ncov {
+		name := strconv.Itoa(k + 1)
+		if k < len(p.CovariateNames) && p.CovariateNames[k] != "" {
+			name = p.CovariateNames[k]
+		}
+		header = append(header, CovariatePrefix+name)
+	}
 	if err := cw.Write(header); err != nil {
 		return fmt.Errorf("audit: write panel csv: %w", err)
 	}
@@ -52,6 +66,9 @@ func WriteCSV(w io.Writer, p *Panel) error {
 			for o := range p.Outcomes {
 				row[5+o] = strconv.FormatFloat(p.Y[o][u*p.Months+t], 'g', -1, 64)
 			}
+			for k, c := range un.Covariates {
+				row[5+len(p.Outcomes)+k] = strconv.FormatFloat(c, 'g', -1, 64)
+			}
 			if err := cw.Write(row); err != nil {
 				return fmt.Errorf("audit: write panel csv: %w", err)
 			}
@@ -62,6 +79,32 @@ func WriteCSV(w io.Writer, p *Panel) error {
 		return fmt.Errorf("audit: write panel csv: %w", err)
 	}
 	return nil
+}
+
+// ExportColumns are the leading columns of every file WriteCSV writes; the
+// outcome columns follow them, then the covariate columns.
+var ExportColumns = []string{"unit", "month", "first_treated", "weight", "cluster"}
+
+// CovariatePrefix starts the name of each covariate column WriteCSV writes.
+const CovariatePrefix = "covariate:"
+
+// ExportDefaults recognises a header written by WriteCSV and returns the
+// columns to read it back with: every outcome, the weight and cluster
+// columns, and every covariate. ok is false for any other header.
+func ExportDefaults(header []string) (cols Columns, ok bool) {
+	n := len(ExportColumns)
+	if len(header) < n || !slices.Equal(header[:n], ExportColumns) {
+		return Columns{}, false
+	}
+	cols = Columns{Unit: "unit", Time: "month", FirstTreated: "first_treated", Weight: "weight", Cluster: "cluster"}
+	for _, h := range header[n:] {
+		if strings.HasPrefix(h, CovariatePrefix) {
+			cols.Covariates = append(cols.Covariates, h)
+		} else {
+			cols.Outcomes = append(cols.Outcomes, h)
+		}
+	}
+	return cols, true
 }
 
 // Columns names the columns ReadCSV takes from a bring-your-own

@@ -17,6 +17,9 @@ type Panel struct {
 	Units    []Unit      // spatial units, treated and control
 	Outcomes []string    // outcome names: layers ("geometry", ...) or finer ("attribute:names", "newcomers")
 	Y        [][]float64 // Y[o][u*Months+t]: count of outcome o in unit u, month t (>= 0)
+	// CovariateNames names the units' Covariates, in order (optional; the CSV
+	// export numbers unnamed ones).
+	CovariateNames []string
 }
 
 // Unit is one spatial unit of a Panel.

@@ -2,6 +2,7 @@ package report
 
 import (
 	"bytes"
+	"cmp"
 	"fmt"
 	"html"
 	"image/color"
@@ -12,6 +13,8 @@ import (
 	"strings"
 
 	"github.com/paulmach/orb"
+	"github.com/paulmach/orb/planar"
+	xfont "golang.org/x/image/font"
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/font"
 	"gonum.org/v1/plot/plotter"
@@ -246,70 +249,111 @@ func eventStudyChart(rows []did.EventStudyRow, layer string, render renderFunc) 
 	return svg, err == nil, err
 }
 
-// BalanceSVG draws the standardized mean difference of each covariate before
-// and after matching, with the ±0.1 lines (Austin 2009's rule of thumb).
-// ok is false when there are no balance rows.
+// BalanceSVG draws how matching moved each covariate: one arrow per trait
+// from its standardized mean difference before matching (a short bar) to
+// the difference after (the arrowhead), over a shaded zone where the groups
+// count as alike (within ±0.1, Austin 2009's rule of thumb). Arrows that end
+// inside the zone are blue, those still outside it vermilion. ok is false
+// when there are no balance rows.
 func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
 	return balanceChart(rows, renderSVG)
 }
+
+// Colours of the balance chart: the alike zone (opaque, so that it reads the
+// same on any background) and the arrows by where they end.
+var (
+	balanceZone     = color.NRGBA{0x9c, 0xc9, 0xb4, 0xff} // sage green
+	balanceAlike    = okBlue
+	balanceDiffers  = okVermilion
+	balanceStartBar = okDarkGrey
+)
 
 func balanceChart(rows []audit.BalanceJSON, render renderFunc) (svg []byte, ok bool, err error) {
 	if len(rows) == 0 {
 		return nil, false, nil
 	}
-	p := newPlot("Balance of the comparison areas")
-	p.X.Label.Text = "standardized mean difference (import areas minus comparison)"
+	p := newPlot("How matching moved each trait")
+	p.X.Label.Text = "difference in standard deviations (import areas minus comparison)"
 	names := make([]string, len(rows))
-	before := make(plotter.XYs, len(rows))
-	after := make(plotter.XYs, len(rows))
+	arrows := make([]balanceArrow, len(rows))
 	lim := 0.25
 	for i, r := range rows {
 		y := float64(len(rows) - 1 - i)
 		names[len(rows)-1-i] = r.Covariate
-		before[i] = plotter.XY{X: clampSMD(r.SMDBefore), Y: y}
-		after[i] = plotter.XY{X: clampSMD(r.SMDAfter), Y: y}
-		lim = math.Max(lim, math.Max(math.Abs(before[i].X), math.Abs(after[i].X)))
+		a := balanceArrow{Y: y, From: clampSMD(r.SMDBefore), To: clampSMD(r.SMDAfter)}
+		a.Colour = balanceAlike
+		if math.Abs(a.To) > match.BalanceThreshold {
+			a.Colour = balanceDiffers
+		}
+		arrows[i] = a
+		lim = math.Max(lim, math.Max(math.Abs(a.From), math.Abs(a.To)))
 	}
 	lim *= 1.1
-	top := float64(len(rows)) - 0.5 + 1.2 // room for the legend
-	for _, x := range []float64{-match.BalanceThreshold, match.BalanceThreshold} {
-		l, _ := plotter.NewLine(plotter.XYs{{X: x, Y: -0.5}, {X: x, Y: top}})
-		l.Color = okDarkGrey
-		l.Dashes = []vg.Length{vg.Points(4), vg.Points(3)}
-		l.Width = vg.Points(1)
-		p.Add(l)
-		if x > 0 {
-			p.Legend.Add("±0.1 (rule of thumb)", l)
-		}
+	top := float64(len(rows)) - 0.5 + 1.4 // room for the legend
+	zone, err := plotter.NewPolygon(plotter.XYs{{X: -match.BalanceThreshold, Y: -0.5}, {X: match.BalanceThreshold, Y: -0.5},
+		{X: match.BalanceThreshold, Y: top}, {X: -match.BalanceThreshold, Y: top}})
+	if err != nil {
+		return nil, false, err
 	}
+	zone.Color = balanceZone
+	zone.LineStyle.Width = 0
+	p.Add(zone)
+	p.Legend.Add("alike: within ±0.1", zone)
 	zero, _ := plotter.NewLine(plotter.XYs{{X: 0, Y: -0.5}, {X: 0, Y: top}})
 	zero.Color = okBlack
 	zero.Width = vg.Points(0.6)
 	p.Add(zero)
-	// Thin connectors show each covariate's move.
-	for i := range rows {
-		c, _ := plotter.NewLine(plotter.XYs{before[i], after[i]})
-		c.Color = okGrey
-		c.Width = vg.Points(1)
-		p.Add(c)
+	for _, a := range arrows {
+		p.Add(a)
 	}
-	sb, _ := plotter.NewScatter(before)
-	sb.Shape = draw.RingGlyph{}
-	sb.Radius = vg.Points(3.5)
-	sb.Color = okOrange
-	sa, _ := plotter.NewScatter(after)
-	sa.Shape = draw.CircleGlyph{}
-	sa.Radius = vg.Points(3.5)
-	sa.Color = okBlue
-	p.Add(sb, sa)
-	p.Legend.Add("before matching", sb)
-	p.Legend.Add("after matching", sa)
+	p.Legend.Add("before matching → after, now alike", balanceArrow{Colour: balanceAlike})
+	p.Legend.Add("before matching → after, still apart", balanceArrow{Colour: balanceDiffers})
 	p.NominalY(names...)
 	p.Y.Min, p.Y.Max = -0.5, top
 	p.X.Min, p.X.Max = -lim, lim
-	h := vg.Length(3+0.7*float64(len(rows))) * vg.Centimeter
-	svg, err = render(p, 16*vg.Centimeter, h, "Standardized mean differences before and after matching")
+	h := vg.Length(3.2+0.8*float64(len(rows))) * vg.Centimeter
+	svg, err = render(p, 16*vg.Centimeter, h, "How matching moved each trait: standardized mean differences before and after matching")
 	return svg, err == nil, err
+}
+
+// balanceArrow is one trait's move from its difference before matching
+// (From, a short upright bar) to after (To, an arrowhead) at row Y.
+type balanceArrow struct {
+	Y, From, To float64
+	Colour      color.Color
+}
+
+// Plot draws the arrow; one that barely moves is drawn as its head alone.
+func (a balanceArrow) Plot(c draw.Canvas, plt *plot.Plot) {
+	tx, ty := plt.Transforms(&c)
+	x0, x1, y := tx(a.From), tx(a.To), ty(a.Y)
+	drawArrow(&c, x0, x1, y, a.Colour)
+}
+
+// Thumbnail draws the arrow in the legend.
+func (a balanceArrow) Thumbnail(c *draw.Canvas) {
+	y := (c.Min.Y + c.Max.Y) / 2
+	drawArrow(c, c.Min.X, c.Max.X, y, a.Colour)
+}
+
+// drawArrow draws a start bar at x0 and an arrow to x1 at height y.
+func drawArrow(c *draw.Canvas, x0, x1, y vg.Length, col color.Color) {
+	head, half := vg.Points(7), vg.Points(4.5)
+	c.StrokeLine2(draw.LineStyle{Color: balanceStartBar, Width: vg.Points(2)}, x0, y-vg.Points(5), x0, y+vg.Points(5))
+	dir := vg.Length(1)
+	if x1 < x0 {
+		dir = -1
+	}
+	if math.Abs(float64(x1-x0)) > float64(head) {
+		c.StrokeLine2(draw.LineStyle{Color: col, Width: vg.Points(2.2)}, x0, y, x1-dir*head, y)
+	}
+	var tri vg.Path
+	tri.Move(vg.Point{X: x1, Y: y})
+	tri.Line(vg.Point{X: x1 - dir*head, Y: y + half})
+	tri.Line(vg.Point{X: x1 - dir*head, Y: y - half})
+	tri.Close()
+	c.SetColor(col)
+	c.Fill(tri)
 }
 
 // clampSMD keeps an infinite or NaN SMD (a covariate constant in one group)
@@ -401,8 +445,10 @@ func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []by
 		return nil, false, nil
 	}
 	status := make(map[string]study.UnitStatus, len(list))
+	names := make(map[string]string, len(list))
 	for _, u := range list {
 		status[u.ID] = u.Status
+		names[u.ID] = u.Name
 	}
 	var b orb.Bound
 	first := true
@@ -451,16 +497,51 @@ func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []by
 			poly.Color = statusColour(s)
 			poly.LineStyle = draw.LineStyle{Color: color.White, Width: vg.Points(0.6)}
 			p.Add(poly)
-			if !seen[s] {
-				seen[s] = true
+			seen[s] = true
+		}
+	}
+	// Import areas are outlined on top of every fill, so that their edges
+	// show whatever their neighbours' colours.
+	var outlines []plot.Plotter
+	var labels mapLabels
+	for _, i := range order {
+		id := shapes.ID(i)
+		s := status[id]
+		if s == study.StatusTreated {
+			for _, rings := range polygonRings(shapes.Geometry(i)) {
+				xy := make(plotter.XYs, len(rings[0]))
+				for k, pt := range rings[0] {
+					xy[k] = pr.xy(pt)
+				}
+				line, err := plotter.NewLine(xy)
+				if err != nil {
+					return nil, false, fmt.Errorf("report: map of unit %q: %w", id, err)
+				}
+				line.LineStyle = importOutline
+				outlines = append(outlines, line)
+			}
+		}
+		if s == study.StatusTreated || s == study.StatusControl {
+			if c, ok := labelPoint(shapes.Geometry(i)); ok {
+				labels = append(labels, mapLabel{At: pr.xy(c), Text: cmp.Or(names[id], id), Treated: s == study.StatusTreated})
 			}
 		}
 	}
+	p.Add(outlines...)
+	if len(labels) > maxMapLabels { // too many to read: import areas only
+		labels = slices.DeleteFunc(labels, func(l mapLabel) bool { return !l.Treated })
+	}
+	if len(labels) <= maxMapLabels {
+		p.Add(labels)
+	}
 	for _, s := range []study.UnitStatus{study.StatusTreated, study.StatusControl, study.StatusCandidate, study.StatusExcluded, study.StatusDropped} {
 		if seen[s] {
-			th, _ := plotter.NewPolygon(plotter.XYs{{X: 0, Y: 0}, {X: 1, Y: 0}, {X: 1, Y: 1}})
+			th, _ := plotter.NewPolygon(plotter.XYs{{X: 0, Y: 0}, {X: 1, Y: 0}, {X: 1, Y: 1}, {X: 0, Y: 1}})
 			th.Color = statusColour(s)
 			th.LineStyle.Width = 0
+			if s == study.StatusTreated {
+				th.LineStyle = importOutline
+			}
 			p.Legend.Add(statusLabel(s), th)
 		}
 	}
@@ -479,6 +560,79 @@ func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []by
 	height := vg.Length(math.Min(math.Max(aspect, 0.3), 1.6)) * width
 	svg, err = render(p, width, height+vg.Centimeter, "Map of the study areas by role")
 	return svg, err == nil, err
+}
+
+// importOutline is the edge drawn around every import area on the map.
+var importOutline = draw.LineStyle{Color: okBlack, Width: vg.Points(1.6)}
+
+// maxMapLabels is the most unit names a map shows: beyond it only import
+// areas are named, and beyond it again none (the names are in units.geojson).
+const maxMapLabels = 40
+
+// mapLabel is a unit's name at its centroid, on a white box so that it reads
+// on any fill.
+type mapLabel struct {
+	At      plotter.XY
+	Text    string
+	Treated bool // import areas' names are bold
+}
+
+type mapLabels []mapLabel
+
+// Plot draws import areas' names first, then the others; a name that would
+// overlap one already drawn is left out (every name is in units.geojson).
+func (ls mapLabels) Plot(c draw.Canvas, plt *plot.Plot) {
+	tx, ty := plt.Transforms(&c)
+	var placed []vg.Rectangle
+	ordered := slices.Clone(ls)
+	slices.SortStableFunc(ordered, func(a, b mapLabel) int {
+		switch {
+		case a.Treated == b.Treated:
+			return 0
+		case a.Treated:
+			return -1
+		}
+		return 1
+	})
+	for _, l := range ordered {
+		ts := draw.TextStyle{Color: okBlack, Font: chartFont(9), Handler: plt.Title.TextStyle.Handler, XAlign: draw.XCenter, YAlign: draw.YCenter}
+		if l.Treated {
+			ts.Font.Weight = xfont.WeightBold
+		}
+		pt := vg.Point{X: tx(l.At.X), Y: ty(l.At.Y)}
+		w, h := ts.Width(l.Text), ts.Height(l.Text)
+		pad := vg.Points(1.5)
+		box := vg.Rectangle{Min: vg.Point{X: pt.X - w/2 - pad, Y: pt.Y - h/2 - pad}, Max: vg.Point{X: pt.X + w/2 + pad, Y: pt.Y + h/2 + pad}}
+		if slices.ContainsFunc(placed, func(r vg.Rectangle) bool { return overlaps(r, box) }) {
+			continue
+		}
+		placed = append(placed, box)
+		c.SetColor(color.NRGBA{0xff, 0xff, 0xff, 0xd8})
+		c.Fill(box.Path())
+		c.FillText(ts, pt, l.Text)
+	}
+}
+
+func overlaps(a, b vg.Rectangle) bool {
+	return a.Min.X < b.Max.X && b.Min.X < a.Max.X && a.Min.Y < b.Max.Y && b.Min.Y < a.Max.Y
+}
+
+// labelPoint is where a unit's name goes: the area centroid of its
+// largest polygon (orb/planar).
+func labelPoint(g orb.Geometry) (orb.Point, bool) {
+	var best orb.Polygon
+	bestArea := -1.0
+	for _, rings := range polygonRings(g) {
+		poly := orb.Polygon(rings)
+		if a := math.Abs(planar.Area(poly)); a > bestArea {
+			best, bestArea = poly, a
+		}
+	}
+	if best == nil || bestArea <= 0 {
+		return orb.Point{}, false
+	}
+	c, _ := planar.CentroidArea(best)
+	return c, true
 }
 
 // polygonRings returns the rings of each polygon of a polygonal geometry,

@@ -74,9 +74,11 @@ func chartColourPairs() []colourPair {
 		colourPair{"event study", "estimate", "import arrives", okBlue, okVermilion},
 		colourPair{"event study", "95% band", "import arrives", okBand, okVermilion},
 		colourPair{"event study", "95% band", "page", okBand, white},
-		colourPair{"balance", "before matching", "after matching", okOrange, okBlue},
-		colourPair{"balance", "before matching", "±0.1 lines", okOrange, okDarkGrey},
-		colourPair{"balance", "after matching", "±0.1 lines", okBlue, okDarkGrey},
+		colourPair{"balance", "arrow now alike", "arrow still apart", balanceAlike, balanceDiffers},
+		colourPair{"balance", "arrow now alike", "alike zone", balanceAlike, balanceZone},
+		colourPair{"balance", "arrow still apart", "alike zone", balanceDiffers, balanceZone},
+		colourPair{"balance", "start bar", "alike zone", balanceStartBar, balanceZone},
+		colourPair{"balance", "alike zone", "page", balanceZone, white},
 	)
 }
 

@@ -9,8 +9,20 @@
 // account names, changeset comments, unit ids) is escaped for the format it
 // lands in: html/template escaping for HTML, backslash escapes for Markdown.
 //
-// Charts are drawn with gonum.org/v1/plot and rendered to SVG: an event-study
-// chart per layer, a balance dot chart and a map of the units. Their colours
-// come from the Okabe–Ito palette, which stays distinct for the common forms
-// of colour blindness.
+// Every report opens with its answer: one plain sentence per layer, then at
+// most three warnings (the rest folded or listed further down), then the
+// import and the months actually compared; a glossary defines the terms.
+//
+// Charts are drawn with gonum.org/v1/plot and rendered to SVG and PNG: an
+// event-study chart per layer, a balance chart (one arrow per trait from its
+// difference before matching to after, over the zone where the groups count
+// as alike) and a map of the units (import areas outlined, areas named where
+// a name fits, a scale bar). Their colours come from the Okabe–Ito palette;
+// every pair a chart contrasts is checked under simulated colour-vision
+// deficiencies (cvd_test.go).
+//
+// WriteOverview writes the overview of every import in a store
+// (audit.AuditAll) as overview.html (one table that sorts by any column
+// with radio buttons and CSS grid order, no script), overview.md,
+// overview.csv and overview.json.
 package report

@@ -16,13 +16,12 @@ import (
 // htmlPage is the data of the HTML template.
 type htmlPage struct {
 	view
-	MainWarnings  []string // general and per-layer warnings, shown open
-	OtherWarnings []string // about finer outcomes (key families, contributor groups), folded
-	Charts        []htmlChart
-	Checklist     *htmlChecklist
-	Assessment    *htmlAssessment
-	Invented      bool      // the invented-data banner
-	Provenance    []provRow // where the figures come from
+	Charts     []htmlChart
+	Checklist  *htmlChecklist
+	Assessment *htmlAssessment
+	Invented   bool          // the invented-data banner
+	Provenance []provRow     // where the figures come from
+	Retention  template.HTML // the newcomer retention section (retention.go)
 }
 
 type htmlChart struct {
@@ -54,6 +53,7 @@ type htmlAssessment struct {
 
 var pageFuncs = template.FuncMap{
 	"inventedBanner": func() string { return InventedBanner },
+	"baseCSS":        func() template.CSS { return template.CSS(baseCSS) },
 	"safeURL":        safeURL,
 	"pct":            func(x float64) string { return fmt.Sprintf("%.1f%%", 100*x) },
 	"pp":             func(x float64) string { return fmt.Sprintf("%+.1f", 100*x) },
@@ -67,17 +67,9 @@ var pageFuncs = template.FuncMap{
 	},
 }
 
-// page is the report's HTML: inline CSS, inline SVG, no scripts, and nothing
-// that loads from elsewhere. Its look is the project's own.
-var page = template.Must(template.New("report").Funcs(pageFuncs).Parse(`<!DOCTYPE html>
-<html lang="en">
-<head>
-<meta charset="utf-8">
-<meta name="viewport" content="width=device-width, initial-scale=1">
-<meta name="generator" content="loadwake">
-<title>{{.Title}}</title>
-<style>
-:root { --ink: #1d232b; --muted: #5a6470; --rule: #d9dde2; --paper: #fbfaf7; --warn: #d55e00; --calm: #0072b2; }
+// baseCSS is the style every loadwake page shares: the report and the
+// overview of all imports. It loads nothing from elsewhere.
+const baseCSS = `:root { --ink: #1d232b; --muted: #5a6470; --rule: #d9dde2; --paper: #fbfaf7; --warn: #d55e00; --calm: #0072b2; }
 * { box-sizing: border-box; }
 body { margin: 0; background: var(--paper); color: var(--ink);
   font: 16px/1.55 "Liberation Sans", Arial, Helvetica, sans-serif; }
@@ -89,6 +81,9 @@ p.lead { font-size: 1.05rem; }
 .warnings { border-left: 6px solid var(--warn); background: #fff4ea; padding: .6rem 1rem; margin: 1.25rem 0; }
 .warnings h2 { margin-top: .2rem; color: #8a3c00; }
 details summary { cursor: pointer; color: #8a3c00; margin: .3rem 0; }
+.answer { border-left: 6px solid var(--calm); background: #eef5fb; padding: .4rem 1rem; margin: 1rem 0; }
+.answer h2 { margin-top: .3rem; }
+.answer li { margin: .25rem 0; }
 .ok { border-left: 6px solid #009e73; background: #eef8f4; padding: .6rem 1rem; }
 table { border-collapse: collapse; width: 100%; margin: .6rem 0 1rem; font-size: .92rem; background: #fff; }
 @media (max-width: 48rem) { table { display: block; overflow-x: auto; } main { padding: 1.25rem .75rem 3rem; } }
@@ -113,29 +108,66 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 .cautions { border-top: 3px solid var(--ink); margin-top: 2.5rem; padding-top: .5rem; }
 .muted { color: var(--muted); }
 @media print { body { background: #fff; } figure { break-inside: avoid; } }
-</style>
+`
+
+// sharedTemplates are the parts every loadwake page shares: its head up to
+// the page's own style rules (given the title), and the sections it ends
+// with: where the figures come from (a list of provRow) and the cautions
+// (strings).
+const sharedTemplates = `{{define "head"}}<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<meta name="viewport" content="width=device-width, initial-scale=1">
+<meta name="generator" content="loadwake">
+<title>{{.}}</title>
+<style>
+{{baseCSS}}{{end}}{{define "provenance"}}{{if .}}<section class="provenance" id="provenance">
+<h2>Where these figures come from</h2>
+<dl>{{range .}}
+<dt>{{.Label}}</dt><dd>{{.Text}}{{if .Links}}{{if .Text}}: {{end}}{{range $i, $l := .Links}}{{if $i}}, {{end}}{{if safeURL $l.URL}}<a href="{{$l.URL}}">{{$l.Text}}</a>{{else}}{{$l.Text}}{{end}}{{end}}{{end}}</dd>{{end}}
+</dl>
+</section>
+{{end}}{{end}}{{define "cautions"}}<section class="cautions" id="cautions">
+<h2>Cautions</h2>
+<ul>{{range .}}
+<li>{{.}}</li>{{end}}
+</ul>
+</section>
+{{end}}`
+
+// page is the report's HTML: inline CSS, inline SVG, no scripts, and nothing
+// that loads from elsewhere. Its look is the project's own.
+var page = template.Must(template.Must(template.New("report").Funcs(pageFuncs).Parse(sharedTemplates)).Parse(`{{template "head" .Title}}</style>
 </head>
 <body>
 <main>
 <h1>{{.Title}}</h1>
 {{if .Invented}}<p class="invented" role="note"><strong>{{inventedBanner}}</strong></p>
-{{end}}{{range .Lead}}<p class="lead">{{.}}</p>
-{{end}}
-{{if .HasAudit}}{{if .Warnings}}<section class="warnings" id="warnings">
+{{end}}{{if .HasAudit}}<section id="answer" class="answer">
+<h2>In short</h2>
+{{if .Answers}}<ul>{{range .Answers}}
+<li><strong>{{.Label}}</strong> <span class="muted">({{.Layer}})</span>: {{.Text}}</li>{{end}}
+</ul>
+{{else}}<p>No layer could be estimated; see the warnings and the table of all estimates.</p>
+{{end}}<p class="muted">Compared with matched areas the import did not touch, in the import's own areas. Terms are explained under <a href="#glossary">What the numbers mean</a>.</p>
+</section>
+{{if .Warnings}}<section class="warnings" id="warnings">
 <h2>Warnings</h2>
-<ul>{{range .MainWarnings}}
+{{if .TopWarnings}}<ul>{{range .TopWarnings}}
 <li>{{.}}</li>{{end}}
 </ul>
-{{if .OtherWarnings}}<details>
-<summary>{{len .OtherWarnings}} more about finer outcomes (key families, contributor groups)</summary>
-<ul>{{range .OtherWarnings}}
+{{end}}{{if .MoreWarnings}}<details>
+<summary>{{len .MoreWarnings}} more warning(s), including finer outcomes (key families, contributor groups)</summary>
+<ul>{{range .MoreWarnings}}
 <li>{{.}}</li>{{end}}
 </ul>
 </details>
 {{end}}</section>
 {{else}}<p class="ok" id="warnings">No warnings: the checks that run with every audit raised nothing.</p>
+{{end}}{{end}}{{range .Lead}}<p class="lead">{{.}}</p>
 {{end}}
-<section id="headline">
+{{if .HasAudit}}<section id="headline">
 <h2>How follow-on editing changed</h2>
 {{if .Headline}}<table class="headline">
 <thead><tr><th>Layer</th><th class="n">Relative effect ({{.Estimator}})</th><th class="n">95% interval</th><th>Pre-import test</th></tr></thead>
@@ -200,7 +232,7 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 </tbody>
 </table>
 {{end}}</section>
-{{end}}{{with .Checklist}}<section id="checklist">
+{{end}}{{.Retention}}{{with .Checklist}}<section id="checklist">
 <h2>Neglected tags</h2>
 <p>Imported features compared with {{.Reference}}. Each row is a key the imported features carry markedly less often.</p>
 {{if .Rows}}<table>
@@ -249,19 +281,7 @@ figcaption { color: var(--muted); font-size: .9rem; margin-top: .4rem; }
 <li>{{.}}</li>{{end}}
 </ul>
 </section>
-{{end}}{{if .Provenance}}<section class="provenance" id="provenance">
-<h2>Where these figures come from</h2>
-<dl>{{range .Provenance}}
-<dt>{{.Label}}</dt><dd>{{.Text}}{{if .Links}}{{if .Text}}: {{end}}{{range $i, $l := .Links}}{{if $i}}, {{end}}{{if safeURL $l.URL}}<a href="{{$l.URL}}">{{$l.Text}}</a>{{else}}{{$l.Text}}{{end}}{{end}}{{end}}</dd>{{end}}
-</dl>
-</section>
-{{end}}<section class="cautions" id="cautions">
-<h2>Cautions</h2>
-<ul>{{range .Cautions}}
-<li>{{.}}</li>{{end}}
-</ul>
-</section>
-</main>
+{{end}}{{template "provenance" .Provenance}}{{template "cautions" .Cautions}}</main>
 </body>
 </html>
 `))
@@ -285,11 +305,14 @@ func writeHTML(w io.Writer, in Input, charts []Chart) error {
 	if p := in.provenance(); p != nil {
 		pg.Invented, pg.Provenance = p.Invented, provenanceRows(p)
 	}
-	if in.Audit != nil {
-		pg.MainWarnings, pg.OtherWarnings = splitWarnings(pg.Warnings, in.Audit.Effects)
-	}
 	for _, c := range charts {
 		pg.Charts = append(pg.Charts, htmlChart{Name: c.Name, Caption: c.Caption, SVG: template.HTML(c.SVG)})
+	}
+	if in.Audit != nil {
+		var err error
+		if pg.Retention, err = retentionHTML(newRetentionView(in.Audit.Retention)); err != nil {
+			return err
+		}
 	}
 	if in.Checklist != nil {
 		pg.Checklist = newHTMLChecklist(in.Checklist)

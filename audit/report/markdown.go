@@ -24,17 +24,31 @@ func WriteMarkdown(w io.Writer, in Input) error {
 	if prov != nil && prov.Invented {
 		fmt.Fprintf(&b, "> **%s**\n\n", e(InventedBanner))
 	}
-	for _, s := range v.Lead {
-		fmt.Fprintf(&b, "%s\n", e(s))
-	}
 	if v.HasAudit {
+		b.WriteString("## In short\n\n")
+		if len(v.Answers) == 0 {
+			b.WriteString("No layer could be estimated; see the warnings and the table of all estimates.\n")
+		}
+		for _, a := range v.Answers {
+			fmt.Fprintf(&b, "- **%s** (%s): %s\n", e(a.Label), e(a.Layer), e(a.Text))
+		}
+		b.WriteString("\nCompared with matched areas the import did not touch. Terms are explained under \"What the numbers mean\".\n")
 		b.WriteString("\n## Warnings\n\n")
 		if len(v.Warnings) == 0 {
 			b.WriteString("None.\n")
 		}
-		for _, s := range v.Warnings {
+		for _, s := range v.TopWarnings {
 			fmt.Fprintf(&b, "- %s\n", e(s))
 		}
+		if len(v.MoreWarnings) > 0 {
+			fmt.Fprintf(&b, "\n%d more warning(s) are listed under \"More warnings\" below.\n", len(v.MoreWarnings))
+		}
+		b.WriteString("\n")
+	}
+	for _, s := range v.Lead {
+		fmt.Fprintf(&b, "%s\n", e(s))
+	}
+	if v.HasAudit {
 
 		b.WriteString("\n## How follow-on editing changed\n\n")
 		if len(v.Headline) == 0 {
@@ -89,6 +103,9 @@ func WriteMarkdown(w io.Writer, in Input) error {
 			}
 		}
 	}
+	if in.Audit != nil {
+		writeRetentionMarkdown(&b, newRetentionView(in.Audit.Retention), e)
+	}
 	if in.Checklist != nil {
 		b.WriteString("\n")
 		if err := in.Checklist.WriteMarkdown(&b); err != nil {
@@ -102,6 +119,12 @@ func WriteMarkdown(w io.Writer, in Input) error {
 		}
 	}
 
+	if len(v.MoreWarnings) > 0 {
+		b.WriteString("\n## More warnings\n\n")
+		for _, s := range v.MoreWarnings {
+			fmt.Fprintf(&b, "- %s\n", e(s))
+		}
+	}
 	if len(v.Notes) > 0 {
 		b.WriteString("\n## Notes\n\n")
 		for _, s := range v.Notes {

@@ -181,7 +181,12 @@ func MakeCharts(in Input) ([]Chart, error) {
 		return nil, err
 	} else if ok {
 		out = append(out, Chart{Name: "balance", SVG: svg,
-			Caption: "How far the import areas differed from the comparison areas before the import, for each trait used in matching, in standard deviations: open rings before matching, filled dots after. Dots inside the dashed ±0.1 lines count as well balanced."})
+			Caption: "How far the import areas differed from the comparison areas before the import, for each trait used in matching, in standard deviations (the SMD). Each arrow starts at the difference against all untouched areas (grey bar) and ends at the difference against the matched comparison areas; arrows ending in the shaded zone (within ±0.1) count as alike, vermilion arrows ending outside it did not get there."})
+	}
+	if svg, ok, err := retentionChart(in.Audit.Retention, renderSVG); err != nil {
+		return nil, err
+	} else if ok {
+		out = append(out, Chart{Name: retentionChartName, SVG: svg, Caption: retentionCaption})
 	}
 	if in.Units != nil {
 		svg, ok, err := MapSVG(in.Units, in.Audit.UnitList)
@@ -190,23 +195,41 @@ func MakeCharts(in Input) ([]Chart, error) {
 		}
 		if ok {
 			out = append(out, Chart{Name: "map", SVG: svg,
-				Caption: "The study areas by role. Import areas are compared with the matched comparison areas only; unused, excluded and left-out areas do not enter the estimates."})
+				Caption: "The study areas by role, with the import areas outlined in black and named in bold, and the comparison areas named where there is room (every name is in units.geojson). Import areas are compared with the matched comparison areas only; unused, excluded and left-out areas do not enter the estimates. The bar gives the scale."})
 		}
+	}
+	forest, err := forestCharts(in.Audit)
+	if err != nil {
+		return nil, err
+	}
+	out = append(out, forest...)
+	if isEvent(in) {
+		out = eventCharts(out)
 	}
 	return out, nil
 }
 
+// layerNames are each layer's edits in plain words: a short label for the
+// first screen and a phrase for sentences.
+var layerNames = map[string]struct{ label, words string }{
+	layers.Geometry.String():   {"Moving or reshaping features", "edits that move or reshape existing features"},
+	layers.Attribute.String():  {"Changing tags", "edits that change the tags of existing features"},
+	layers.NewFeature.String(): {"Mapping new features", "newly mapped features"},
+	layers.Deletion.String():   {"Deleting features", "deleted features"},
+}
+
 // layerWords describes a layer's edits in plain words.
 func layerWords(layer string) string {
-	switch layer {
-	case layers.Geometry.String():
-		return "edits that move or reshape existing features"
-	case layers.Attribute.String():
-		return "edits that change the tags of existing features"
-	case layers.NewFeature.String():
-		return "newly mapped features"
-	case layers.Deletion.String():
-		return "deleted features"
+	if n, ok := layerNames[layer]; ok {
+		return n.words
 	}
 	return layer + " counts"
+}
+
+// layerLabel names a layer's edits in a few plain words.
+func layerLabel(layer string) string {
+	if n, ok := layerNames[layer]; ok {
+		return n.label
+	}
+	return layer
 }

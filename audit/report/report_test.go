@@ -477,7 +477,9 @@ func TestChartContent(t *testing.T) {
 		// The fixture spans 100–103°E at 0–3°N: 3° of longitude × cos(1.5°)
 		// is 333.8 km, a quarter of it 83 km, so the bar is 50 km.
 		{"map", m, []string{"Areas in the study", "import area (treated)", "matched comparison area", "50 km", "#D55E00", "#0072B2"}},
-		{"balance", bal, []string{"before matching", "after matching", "±0.1 (rule of thumb)", "features_at_start", "edits_per_month", "#E69F00"}},
+		// features_at_start ends within ±0.1 (blue arrow), edits_per_month outside it (vermilion).
+		{"balance", bal, []string{"How matching moved each trait", "before matching → after, now alike", "before matching → after, still apart", "alike: within ±0.1",
+			"features_at_start", "edits_per_month", "#0072B2", "#D55E00", "#9CC9B4"}},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {

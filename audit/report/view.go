@@ -3,6 +3,7 @@ package report
 import (
 	"fmt"
 	"math"
+	"slices"
 	"strings"
 
 	"github.com/loadwake/loadwake/audit"
@@ -18,16 +19,21 @@ type view struct {
 	Estimator string // the headline estimator
 	Title     string
 	Lead      []string // sentences describing the import and the panel
+	Answers   []answer // one plain sentence per layer, the first thing a reader sees
 	Warnings  []string
-	Headline  []headline
-	Glossary  []term
-	Areas     []string
-	Balance   []balanceRow
-	Estimates []estimateRow
-	Robust    []robustRow
-	Placebo   []placeboRow
-	Notes     []string
-	Cautions  []string
+	// TopWarnings are the first maxTopWarnings general and per-layer
+	// warnings, shown on the first screen; MoreWarnings the rest, folded.
+	TopWarnings  []string
+	MoreWarnings []string
+	Headline     []headline
+	Glossary     []term
+	Areas        []string
+	Balance      []balanceRow
+	Estimates    []estimateRow
+	Robust       []robustRow
+	Placebo      []placeboRow
+	Notes        []string
+	Cautions     []string
 }
 
 type headline struct {
@@ -35,6 +41,63 @@ type headline struct {
 }
 
 type term struct{ Name, Text string }
+
+// answer is one layer's result in a sentence: Label names the kind of edit
+// in plain words, Layer is its name in the tables.
+type answer struct{ Label, Layer, Text string }
+
+// maxTopWarnings is how many warnings the first screen shows.
+const maxTopWarnings = 3
+
+// wholeAbs formats |x| as a whole percentage without a sign.
+func wholeAbs(x float64) string { return fmt.Sprintf("%.0f%%", math.Abs(math.Round(100*x))) }
+
+// rangeWords says where an interval of shares lies in words: "between 17%
+// and 36% fewer", "between 7% fewer and 13% more".
+func rangeWords(lo, hi float64) string {
+	switch {
+	case hi < 0:
+		return "between " + wholeAbs(hi) + " and " + wholeAbs(lo) + " fewer"
+	case lo > 0:
+		return "between " + wholeAbs(lo) + " and " + wholeAbs(hi) + " more"
+	}
+	return "between " + wholeAbs(lo) + " fewer and " + wholeAbs(hi) + " more"
+}
+
+// Answer returns one plain sentence on a layer's headline effect, for the
+// first screen of a report: the direction and size of the change against
+// the comparison areas and the range the data support.
+func Answer(e did.Effect) string {
+	var s string
+	switch {
+	case e.RelativeEffect == nil:
+		dir := "more"
+		if e.ATT < 0 {
+			dir = "fewer"
+		}
+		s = fmt.Sprintf("about %.2f %s per area and month than the comparison areas suggest (range %s to %s).", math.Abs(e.ATT), dir, num(e.CI95[0]), num(e.CI95[1]))
+	case e.NoInterval:
+		r := *e.RelativeEffect
+		dir := "more"
+		if r < 0 {
+			dir = "fewer"
+		}
+		s = fmt.Sprintf("about %s %s than expected, but %d import area(s) are too few to give a range; re-dealing the import to other areas gives differences this large with p = %s.", wholeAbs(r), dir, e.TreatedUnits, pval(e.PValue))
+	case e.CI95[0] > 0 || e.CI95[1] < 0:
+		r := *e.RelativeEffect
+		dir := "more"
+		if r < 0 {
+			dir = "fewer"
+		}
+		s = fmt.Sprintf("about %s %s than expected without the import (likely %s).", wholeAbs(r), dir, rangeWords(e.CI95[0], e.CI95[1]))
+	default:
+		s = fmt.Sprintf("no clear change (the data allow anything %s).", rangeWords(e.CI95[0], e.CI95[1]))
+	}
+	if e.PreTrendP != nil && *e.PreTrendP < 0.05 {
+		s += " Doubtful: these areas were already changing differently before the import."
+	}
+	return s
+}
 
 type balanceRow struct {
 	Covariate, Treated, Control, Before, After, Flag string
@@ -164,11 +227,18 @@ func newView(in Input) view {
 	v.Lead = append(v.Lead,
 		fmt.Sprintf("Import %s was uploaded by %s in %d changesets from %s to %s: %d objects created, %d modified, %d deleted.",
 			r.Import.ID, acc, r.Import.Changesets, r.Import.FirstMonth, r.Import.LastMonth, r.Import.Created, r.Import.Modified, r.Import.Deleted),
-		fmt.Sprintf("Follow-on editing by other mappers is counted per area and month from %s to %s (%d months before the import, %d after), and compared between the areas the import reached and matched areas it did not touch.",
-			r.Window[0], r.Window[1], r.Before, r.After))
+		windowSentence(r))
 	v.Warnings = append([]string{}, r.Warnings...)
 	if in.Assessment == nil && len(v.Warnings) == 0 {
 		v.Warnings = nil
+	}
+	main, other := splitWarnings(v.Warnings, r.Effects)
+	v.TopWarnings = main[:min(maxTopWarnings, len(main))]
+	v.MoreWarnings = append(slices.Clone(main[len(v.TopWarnings):]), other...)
+	for _, l := range layers.Layers {
+		if e, ok := r.Headline(l.String()); ok {
+			v.Answers = append(v.Answers, answer{Label: layerLabel(l.String()), Layer: l.String(), Text: Answer(e)})
+		}
 	}
 
 	for _, l := range layers.Layers {
@@ -188,6 +258,12 @@ func newView(in Input) view {
 		{"95% interval", "The range of effects the data support. Read it as the figure's uncertainty: an interval from -40% to -5% says 'fewer, by somewhere between 5% and 40%'. An interval that includes 0% means no change cannot be ruled out."},
 		{"Pre-import test (pre-trend)", "Checks whether import areas and comparison areas already moved differently before the import. If it fails (p below 0.05), the comparison is doubtful and the effect may reflect that earlier difference rather than the import."},
 		{"p-value", "How often a difference this large would show up by chance if the import had no effect. Small values (below 0.05) are conventionally called significant; they are not proof."},
+		{"Intensity", "The import's objects in an area as a share of the area's features (the features already there plus the imported ones). An area becomes an import area when its intensity reaches the chosen threshold; lighter touches are excluded from both groups."},
+		{"ATT (average effect on the treated)", "The change the import made in the import areas themselves, in edits per area and month: what they saw minus what the comparison areas say they would have seen. The relative effect expresses it as a share."},
+		{"SMD (standardized mean difference)", "How far apart the import areas and the comparison areas were on a trait before the import, in standard deviations of that trait. Within ±0.1 counts as alike."},
+		{"q-value", "A p-value adjusted for testing many tags at once (Benjamini–Hochberg): among keys flagged with q below 0.05, at most about 5% are expected to be false alarms."},
+		{"Event study", "The effect month by month, from the months before the import reached an area (where it should be near zero) to the months after."},
+		{"Placebo", "The same comparison with the start dates moved back into the time before the import. An 'effect' there points to differences that were not caused by the import."},
 		{"Estimators", "Every headline figure, chart and per-area figure comes from one model, " + headlineEstimator + ": it fits the counts with a Poisson model, comparing each wave of import areas only with clean comparison areas, and reads the change as a ratio, which suits edit counts that grow and shrink in proportion. The other estimators are robustness checks: cs-att compares each wave with never-imported comparison areas (Callaway and Sant'Anna's method) in edit counts; twfe-linear is the linear month-by-month regression; did-2x2 is the simple before/after, import/comparison difference. The robustness section says, layer by layer, whether they agree."},
 	}
 
@@ -231,7 +307,45 @@ func newView(in Input) view {
 	v.Cautions = append([]string{
 		"These estimates are evidence, not proof: areas differ in ways no matching captures, and a change after an import can have other causes.",
 	}, r.Cautions...)
+	v.Notes = append(splitNotes(r), v.Notes...)
+	if !r.IsImport() {
+		v = eventView(v, r)
+	}
 	return v
+}
+
+// windowSentence says which months were counted and compared: the panel's
+// months actually used (the store's history may start later than asked)
+// and the event window the estimates read around each area's import.
+func windowSentence(r *audit.Report) string {
+	before, after := monthsBetween(r.Window[0], r.Import.FirstMonth), monthsBetween(r.Import.LastMonth, r.Window[1])
+	s := fmt.Sprintf("Follow-on editing by other mappers is counted per area and month from %s to %s", r.Window[0], r.Window[1])
+	if before >= 0 && after >= 0 {
+		s += fmt.Sprintf(" (%d months before the import's first month, %d after its last", before, after)
+		if before < r.Before {
+			s += fmt.Sprintf("; %d were asked for before, but the store's history starts later", r.Before)
+		}
+		s += ")"
+	}
+	s += ", and compared between the areas the import reached and matched areas it did not touch."
+	if w := r.Estimation.Window; w.Pre > 0 {
+		pre := w.Pre
+		if before >= 0 {
+			pre = min(pre, before)
+		}
+		s += fmt.Sprintf(" The estimates compare up to %d months before each area's import with up to %d months after it.", pre, w.Post)
+	}
+	return s
+}
+
+// monthsBetween is the number of months from a to b (YYYY-MM); -1 when
+// either does not parse.
+func monthsBetween(a, b string) int {
+	x, y := monthNumber(a), monthNumber(b)
+	if math.IsNaN(x) || math.IsNaN(y) {
+		return -1
+	}
+	return int(y - x)
 }
 
 // partView is the view of a report without an audit: a checklist or an

@@ -122,17 +122,37 @@ func WriteWiki(w io.Writer, in Input) error {
 	if prov != nil && prov.Invented {
 		fmt.Fprintf(&b, "<div style=\"border:3px solid #d55e00;padding:0.5em\">'''%s'''</div>\n\n", e(InventedBanner))
 	}
+	if v.HasAudit {
+		heading(2, "In short")
+		for _, a := range v.Answers {
+			fmt.Fprintf(&b, "* '''%s''' (%s): %s\n", e(a.Label), e(a.Layer), e(a.Text))
+		}
+		heading(2, "Warnings")
+		if len(v.Warnings) == 0 {
+			b.WriteString("None.\n")
+		}
+		list(v.TopWarnings)
+		if len(v.MoreWarnings) > 0 {
+			b.WriteString(e(fmt.Sprintf("%d more warning(s) are listed under \"More warnings\" below.", len(v.MoreWarnings))) + "\n")
+		}
+		b.WriteString("\n")
+	}
 	for _, s := range v.Lead {
 		fmt.Fprintf(&b, "%s\n\n", e(s))
 	}
 	if v.HasAudit {
 		writeWikiAudit(&b, v, heading, list)
+		writeRetentionWiki(&b, newRetentionView(in.Audit.Retention), heading, list)
 	}
 	if in.Checklist != nil {
 		writeWikiChecklist(&b, in.Checklist.Import, newHTMLChecklist(in.Checklist), heading, list)
 	}
 	if in.Assessment != nil {
 		writeWikiAssessment(&b, newHTMLAssessment(in.Assessment), heading, list)
+	}
+	if len(v.MoreWarnings) > 0 {
+		heading(2, "More warnings")
+		list(v.MoreWarnings)
 	}
 	if len(v.Notes) > 0 {
 		heading(2, "Notes")
@@ -164,12 +184,6 @@ func WriteWiki(w io.Writer, in Input) error {
 // writeWikiAudit writes the audit's sections of the wiki page.
 func writeWikiAudit(b *bytes.Buffer, v view, heading func(int, string), list func([]string)) {
 	e := wikiText
-	heading(2, "Warnings")
-	if len(v.Warnings) == 0 {
-		b.WriteString("None.\n")
-	}
-	list(v.Warnings)
-
 	heading(2, "How follow-on editing changed")
 	if len(v.Headline) == 0 {
 		b.WriteString("No layer had a headline estimate; see the warnings and the table of all estimates.\n")

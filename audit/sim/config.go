@@ -90,6 +90,10 @@ type Config struct {
 	ChangesetLimit  int       `json:"changeset_limit"`  // changes per import changeset (OSM API 0.6 allows 10,000)
 	Keys            []KeyRate `json:"keys"`
 
+	// Retention, when set, adds newcomers who keep to one district, with a
+	// planted difference in how long they stay after imports (newcomers.go).
+	Retention *Retention `json:"retention,omitempty"`
+
 	// Scale multiplies activity, baseline stock and import sizes.
 	Scale float64 `json:"scale"`
 
@@ -237,6 +241,11 @@ func (c Config) Validate() error {
 	}
 	if sum := s.Geometry + s.Attribute + s.NewFeature + s.Deletion + s.Bookkeeping; math.Abs(sum-1) > 1e-9 {
 		return bad("layer shares must sum to 1, got %v", sum)
+	}
+	if c.Retention != nil {
+		if err := c.Retention.validate(); err != nil {
+			return err
+		}
 	}
 	seen := map[[2]string]bool{}
 	for _, k := range c.Keys {

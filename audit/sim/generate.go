@@ -155,7 +155,8 @@ type gen struct {
 		imported       bool
 		tags           osm.Tags
 	}
-	month int // study-month index being generated, -1 for baseline
+	month int             // study-month index being generated, -1 for baseline
+	ret   *retentionState // the Retention plan's newcomers (newcomers.go)
 }
 
 // Generate writes a simulated world for cfg into dir (created if missing) and
@@ -571,6 +572,7 @@ func (g *gen) runMonth(ctx context.Context, m int) error {
 			at += 600
 		}
 	}
+	sessions = append(sessions, g.retentionSessions(m, len(sessions))...)
 	slices.SortFunc(sessions, func(a, b session) int {
 		if a.start != b.start {
 			if a.start < b.start {

@@ -1,6 +1,7 @@
 package spatial
 
 import (
+	"cmp"
 	"context"
 	"encoding/json"
 	"errors"
@@ -49,6 +50,10 @@ type Options struct {
 	// "id"). String and integer values are accepted. When the property is
 	// absent and IDProperty is "id", the feature's own "id" member is used.
 	IDProperty string
+	// NameProperty is the GeoJSON property holding each unit's name
+	// (default "name"), shown on maps and in tables; a unit without it, or
+	// whose value is not a string, has no name.
+	NameProperty string
 	// Bound is the study area, required for tiles:Z: the units are the tiles
 	// of zoom Z that meet it. For unit files it is the store's area, when
 	// set: a file whose units all miss it is refused (with a hint when
@@ -192,7 +197,7 @@ func tileUnits(spec, zs string, opts Options) (*Units, error) {
 // ogr2ogr command that fixes them; with opts.Bound set, so are units that
 // all miss it (naming swapped axes when swapping them would help).
 func FromGeoJSON(name string, data []byte, opts Options) (*Units, error) {
-	prop := opts.IDProperty
+	prop, nameProp := opts.IDProperty, cmp.Or(opts.NameProperty, "name")
 	if prop == "" {
 		prop = "id"
 	}
@@ -251,7 +256,7 @@ func FromGeoJSON(name string, data []byte, opts Options) (*Units, error) {
 		if err := validMultiPolygon(mp); err != nil {
 			return nil, &FileError{File: name, Feature: i, Err: fmt.Errorf("unit %q: %w", id, err)}
 		}
-		nm, _ := f.Properties["name"].(string)
+		nm, _ := f.Properties[nameProp].(string)
 		u.byID[id] = len(u.ids)
 		u.ids = append(u.ids, id)
 		u.names = append(u.names, nm)

@@ -120,7 +120,10 @@ func (o Options) WithDefaults() Options {
 
 // Study is an import's panel with matched controls, ready for Estimate.
 type Study struct {
-	Import     ImportRef
+	Import ImportRef
+	// Assignment is the treatment the study was built from when it came
+	// as data (BuildAssigned); nil for an import's study.
+	Assignment *Assignment
 	Panel      *panel.Panel // treated and matched control units, weights set
 	All        *panel.Panel // every unit not excluded, unweighted (for naive comparisons and exports)
 	Units      []UnitInfo
@@ -189,10 +192,15 @@ func monthDiff(a, b time.Time) int { // months from b to a
 
 // builder accumulates one study in a single pass over the events.
 type builder struct {
-	ref     ImportRef
-	units   UnitIndex
-	opts    Options
-	start   time.Time // first panel month
+	ref   ImportRef
+	units UnitIndex
+	opts  Options
+	start time.Time // first panel month
+	// cutoff is the first day of the import's first month: features by
+	// class are counted before it, as the other matching traits are counted
+	// over the months before that month (whole months, so that an
+	// assignment of months gives the same traits as the import's edits).
+	cutoff  time.Time
 	months  int
 	ownCS   map[osm.ChangesetID]bool
 	otherCS map[osm.ChangesetID]bool
@@ -209,6 +217,7 @@ type builder struct {
 	y          map[string][]float64
 	fam        map[string][]float64 // y's attribute family arrays by bare family name
 	contrib    map[[2]int64]bool    // (unit*months+t, uid) seen
+	assigned   map[int]time.Time    // per unit: first treated month of an Assignment (nil: treatment from the import)
 	minData    time.Time
 	maxData    time.Time
 	unlocated  int64
@@ -235,6 +244,12 @@ func Build(ctx context.Context, src layers.DerivedReader, ref ImportRef, units U
 	if len(ref.Changesets) == 0 || ref.First.IsZero() {
 		return nil, fmt.Errorf("%w: import %q has no changesets", ErrStudy, ref.ID)
 	}
+	return build(ctx, src, ref, units, opts, nil)
+}
+
+// build is Build with, when assigned is not nil, the treatment of each unit
+// given (BuildAssigned) instead of found from ref's changesets.
+func build(ctx context.Context, src layers.DerivedReader, ref ImportRef, units UnitIndex, opts Options, assigned map[int]time.Time) (*Study, error) {
 	if err := checkEstimable(ctx, src); err != nil {
 		return nil, err
 	}
@@ -247,6 +262,7 @@ func Build(ctx context.Context, src layers.DerivedReader, ref ImportRef, units U
 		units:   units,
 		opts:    opts,
 		start:   monthOf(ref.First).AddDate(0, -opts.Before, 0),
+		cutoff:  monthOf(ref.First),
 		ownCS:   make(map[osm.ChangesetID]bool, len(ref.Changesets)),
 		otherCS: make(map[osm.ChangesetID]bool, len(opts.OtherImports)),
 		ownUID:  make(map[osm.UserID]bool, len(ref.UIDs)),
@@ -255,6 +271,8 @@ func Build(ctx context.Context, src layers.DerivedReader, ref ImportRef, units U
 		y:       make(map[string][]float64),
 		fam:     make(map[string][]float64),
 		contrib: make(map[[2]int64]bool),
+
+		assigned: assigned,
 	}
 	b.months = monthDiff(monthOf(ref.Last), b.start) + opts.After + 1
 	for _, c := range ref.Changesets {
@@ -313,6 +331,9 @@ func (b *builder) add(e *layers.Event) error {
 	}
 	t := monthDiff(monthOf(e.Time), b.start)
 	own := b.ownCS[e.Changeset]
+	if m, ok := b.assigned[u]; ok && b.liveAtImp[u] < 0 && !e.Time.Before(m) {
+		b.liveAtImp[u] = b.live[u] // features present when the assigned treatment began
+	}
 	switch {
 	case own:
 		if b.impObjects[u] == nil {
@@ -321,7 +342,9 @@ func (b *builder) add(e *layers.Event) error {
 		b.impObjects[u][e.Feature()] = true
 		if b.firstImp[u].IsZero() {
 			b.firstImp[u] = e.Time
-			b.liveAtImp[u] = b.live[u]
+			if b.assigned == nil {
+				b.liveAtImp[u] = b.live[u]
+			}
 		}
 	case b.otherCS[e.Changeset]:
 		if t >= 0 {
@@ -332,7 +355,7 @@ func (b *builder) add(e *layers.Event) error {
 	switch e.Layer {
 	case layers.NewFeature:
 		b.live[u]++
-		if e.Time.Before(b.ref.First) && e.Class != "" {
+		if e.Time.Before(b.cutoff) && e.Class != "" {
 			if b.classLive[u] == nil {
 				b.classLive[u] = make(map[string]int)
 			}
@@ -342,7 +365,7 @@ func (b *builder) add(e *layers.Event) error {
 		if b.live[u] > 0 {
 			b.live[u]--
 		}
-		if e.Time.Before(b.ref.First) && e.Class != "" && b.classLive[u][e.Class] > 0 {
+		if e.Time.Before(b.cutoff) && e.Class != "" && b.classLive[u][e.Class] > 0 {
 			b.classLive[u][e.Class]--
 		}
 	}
@@ -473,9 +496,20 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 			info.Intensity = float64(n) / float64(at+n)
 			info.FirstMonth = monthOf(b.firstImp[u]).Format("2006-01")
 		}
+		am, isAssigned := b.assigned[u]
+		if b.assigned != nil {
+			info.Intensity, info.FirstMonth = 0, ""
+			if isAssigned {
+				info.FirstMonth = am.Format("2006-01")
+				info.FeaturesAtStart = max(b.liveAtImp[u], 0)
+				if b.liveAtImp[u] < 0 {
+					info.FeaturesAtStart = b.live[u]
+				}
+			}
+		}
 		switch {
-		case n > 0 && info.Intensity >= b.opts.MinIntensity:
-			ft := monthDiff(monthOf(b.firstImp[u]), start)
+		case isAssigned || (b.assigned == nil && n > 0 && info.Intensity >= b.opts.MinIntensity):
+			ft := monthDiff(b.startOf(u), start)
 			switch {
 			case ft < 1:
 				info.Status, info.Reason = StatusDropped, "the import arrived before the panel's second month: no pre-period"
@@ -485,6 +519,11 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 				info.Status = StatusTreated
 				treated = append(treated, u)
 			}
+			if isAssigned && info.Status == StatusDropped {
+				info.Reason = strings.ReplaceAll(info.Reason, "the import arrived", "the treatment began")
+			}
+		case b.assigned != nil && n > 0:
+			info.Status, info.Reason = StatusExcluded, "edited by the event's own changesets but not listed as treated"
 		case n > 0:
 			info.Status, info.Reason = StatusExcluded, fmt.Sprintf("touched by the import below the minimum intensity (%.3f < %.3f)", info.Intensity, b.opts.MinIntensity)
 		case b.touched[u]:
@@ -493,6 +532,9 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 			candidates = append(candidates, u)
 		}
 		st.Units[u] = info
+	}
+	if len(treated) == 0 && b.assigned != nil {
+		return nil, fmt.Errorf("%w: no listed unit has a month of data before its first treated month inside the panel %s to %s", ErrStudy, st.Window[0], st.Window[1])
 	}
 	if len(treated) == 0 {
 		return nil, fmt.Errorf("%w: no unit reached the minimum intensity %.3f", ErrStudy, b.opts.MinIntensity)
@@ -508,6 +550,9 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	// worlds. The balance table also checks the per-layer means and the
 	// features of the import's three most common classes.
 	covNames := []string{"log1p mean monthly events", "log1p mean monthly contributors", "log1p features before import"}
+	if b.assigned != nil {
+		covNames[2] = "log1p features before the event"
+	}
 	st.Covariates = covNames
 	preMean := func(name string, u int) float64 { return mean(clip(b.y[name], u)[:epMonth]) }
 	features := func(u int) int {
@@ -595,11 +640,11 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 
 	// The matched panel and the full panel.
 	mk := func(members []int, weight func(u int) float64) *panel.Panel {
-		p := &panel.Panel{Start: start, Months: months, Outcomes: names, Y: make([][]float64, len(names))}
+		p := &panel.Panel{Start: start, Months: months, Outcomes: names, Y: make([][]float64, len(names)), CovariateNames: st.Covariates}
 		for _, u := range members {
 			ft := -1
 			if st.Units[u].Status == StatusTreated {
-				ft = monthDiff(monthOf(b.firstImp[u]), start)
+				ft = monthDiff(b.startOf(u), start)
 			}
 			p.Units = append(p.Units, panel.Unit{ID: st.Units[u].ID, FirstTreated: ft, Weight: weight(u),
 				Covariates: cov(u), Intensity: st.Units[u].Intensity})
@@ -640,6 +685,15 @@ func (b *builder) finish(ctx context.Context) (*Study, error) {
 	sort.Ints(all)
 	st.All = mk(all, func(int) float64 { return 1 })
 	return st, nil
+}
+
+// startOf is the first treated month of unit u: the assigned one, else the
+// month of the import's first edit there.
+func (b *builder) startOf(u int) time.Time {
+	if m, ok := b.assigned[u]; ok {
+		return m
+	}
+	return monthOf(b.firstImp[u])
 }
 
 func mean(v []float64) float64 {

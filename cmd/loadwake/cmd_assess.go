@@ -15,6 +15,7 @@ import (
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/report"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/loadwake/loadwake/rules"
 )
@@ -24,6 +25,7 @@ type assessOptions struct {
 	rules    string
 	units    string
 	unitID   string
+	unitName string
 	distance float64
 	nearest  int
 	noAudit  bool
@@ -33,7 +35,7 @@ type assessOptions struct {
 	out      string // write the report folder here
 }
 
-func newAssessCommand(g *globalOptions) *cobra.Command {
+func newAssessCommand(g *cli.Globals) *cobra.Command {
 	var o assessOptions
 	cmd := &cobra.Command{
 		Use:   "assess PROPOSAL [--units SPEC] [--distance 15] [--json FILE] [--md FILE] [--out DIR]",
@@ -55,49 +57,40 @@ properties) and reports:
 
 It ends with the review points of the community's import guidelines. The
 figures are a first screen for local review, not a conflation or a decision.`,
-		Args:        exactArgs(1),
-		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
+		Args:        cli.ExactArgs(1),
+		Annotations: map[string]string{cli.AnnInterrupted: cli.InterruptedReadOnly},
 		RunE:        func(cmd *cobra.Command, args []string) error { return runAssess(cmd, g, &o, args[0]) },
 	}
 	f := cmd.Flags()
 	f.StringVar(&o.rules, "rules", "", "rule `FILE` (default: the built-in rules; see loadwake rules show)")
 	f.StringVar(&o.units, "units", "tiles:14", `spatial units: "tiles:Z" or a GeoJSON file of polygons`)
 	f.StringVar(&o.unitID, "unit-id", "id", "GeoJSON property holding each unit's id")
+	f.StringVar(&o.unitName, "unit-name", "name", "GeoJSON property `PROP` holding each unit's name")
 	f.Float64Var(&o.distance, "distance", proposal.DefaultDuplicateDistance, "metres within which an existing feature of the same class is a likely duplicate")
 	f.IntVar(&o.nearest, "nearest", proposal.DefaultNearestImports, "past imports to compare with")
 	f.BoolVar(&o.noAudit, "no-audit", false, "do not audit the nearest past imports (faster; no expected effects or neglected keys)")
 	f.IntVar(&o.draws, "draws", 999, "bootstrap draws of the past imports' audits")
-	addFileFlag(f, &o.json, "json", "the assessment as JSON")
-	addFileFlag(f, &o.md, "md", "the assessment as Markdown")
-	addOutFlag(f, &o.out, "the report (Markdown and HTML to post)")
+	cli.AddFileFlag(f, &o.json, "json", "the assessment as JSON")
+	cli.AddFileFlag(f, &o.md, "md", "the assessment as Markdown")
+	cli.AddOutFlag(f, &o.out, "the report (Markdown and HTML to post)")
 	return cmd
 }
 
-// exactArgs is cobra.ExactArgs with a usage error.
-func exactArgs(n int) cobra.PositionalArgs {
-	return func(_ *cobra.Command, args []string) error {
-		if len(args) != n {
-			return usagef("want %d argument(s), got %d", n, len(args))
-		}
-		return nil
-	}
-}
-
-func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path string) error {
+func runAssess(cmd *cobra.Command, g *cli.Globals, o *assessOptions, path string) error {
 	switch {
 	case o.distance <= 0:
-		return usagef("--distance must be positive")
+		return cli.Usagef("--distance must be positive")
 	case o.nearest < 1:
-		return usagef("--nearest must be at least 1")
+		return cli.Usagef("--nearest must be at least 1")
 	case o.draws < 99:
-		return usagef("--draws must be at least 99")
+		return cli.Usagef("--draws must be at least 99")
 	}
-	outs, err := newOutputs(cmd, o.json, o.md)
+	outs, err := cli.NewOutputs(cmd, o.json, o.md)
 	if err != nil {
 		return err
 	}
-	ctx, out := cmd.Context(), outs.text
-	r, err := loadRules(o.rules)
+	ctx, out := cmd.Context(), outs.Text
+	r, err := cli.LoadRules(o.rules)
 	if err != nil {
 		return err
 	}
@@ -106,18 +99,18 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 		printPartialProfile(out, p)
 		return err
 	}
-	st, err := openStore(g)
+	st, err := cli.OpenStore(g)
 	if err != nil {
 		return err
 	}
 	defer st.Close()
-	units, err := storeUnits(ctx, st, o.units, o.unitID, p.Bound, time.Time{})
+	units, err := cli.StoreUnits(ctx, st, o.units, o.unitID, o.unitName, p.Bound, time.Time{})
 	if err != nil {
 		return err
 	}
 	eo := did.DefaultOptions()
 	eo.Draws = o.draws
-	done := newProgress(cmd, g).step("assess " + filepath.Base(path) + " against past imports")
+	done := cli.NewProgress(cmd, g).Step("assess " + filepath.Base(path) + " against past imports")
 	a, err := audit.Assess(ctx, st, r, p, audit.AssessOptions{SkipPast: o.noAudit,
 		Proposal: proposal.AssessOptions{Distance: o.distance, Units: units, Nearest: o.nearest},
 		Audit:    audit.Options{Estimate: eo, UnitSpec: o.units}})
@@ -128,14 +121,14 @@ func runAssess(cmd *cobra.Command, g *globalOptions, o *assessOptions, path stri
 	if err := a.WriteMarkdown(out); err != nil {
 		return err
 	}
-	if err := outs.write(o.json, a.WriteJSON); err != nil {
+	if err := outs.Write(o.json, a.WriteJSON); err != nil {
 		return err
 	}
-	if err := outs.write(o.md, a.WriteMarkdown); err != nil {
+	if err := outs.Write(o.md, a.WriteMarkdown); err != nil {
 		return err
 	}
 	if o.out != "" {
-		return writeReports(out, o.out, report.Input{Assessment: a, Provenance: audit.NewProvenance(generator(ctx, st, false))})
+		return cli.WriteReports(out, o.out, report.Input{Assessment: a, Provenance: audit.NewProvenance(cli.Generator(ctx, st, false))})
 	}
 	return nil
 }

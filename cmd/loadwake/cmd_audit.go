@@ -8,18 +8,20 @@ import (
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/report"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // auditOptions holds the flags of `loadwake audit`.
 type auditOptions struct {
-	study studyFlags
+	study cli.StudyFlags
 	json  string // write the audit JSON here
 	out   string // write the report folder here
 	md    string // write the report's Markdown here
-	est   estimatorFlags
+	est   cli.EstimatorFlags
+	by    []string // --by traits
 }
 
-func newAuditCommand(g *globalOptions) *cobra.Command {
+func newAuditCommand(g *cli.Globals) *cobra.Command {
 	var o auditOptions
 	cmd := &cobra.Command{
 		Use:   "audit --units SPEC [--import ID] [--json FILE] [--md FILE] [--out DIR]",
@@ -44,39 +46,48 @@ without it. The JSON contract is described in the README ("The audit JSON").
 The figures are evidence for the community's review, not a verdict.`,
 		Example: `  loadwake audit --units tiles:14 --import imp-6143 --json audit.json --out review
   loadwake audit --units districts.geojson --json - | jq .effects`,
-		Args:              noArgs,
-		Annotations:       map[string]string{annInterrupted: interruptedReadOnly},
+		Args:              cli.NoArgs,
+		Annotations:       map[string]string{cli.AnnInterrupted: cli.InterruptedReadOnly},
 		ValidArgsFunction: cobra.NoFileCompletions,
 		RunE:              func(cmd *cobra.Command, _ []string) error { return runAudit(cmd, g, &o) },
 	}
-	o.study.addFlags(cmd, g)
+	o.study.AddFlags(cmd, g)
+	o.study.AddTreatmentFlags(cmd)
 	f := cmd.Flags()
-	addFileFlag(f, &o.json, "json", "the audit as JSON")
-	addFileFlag(f, &o.md, "md", "the report's Markdown")
-	addOutFlag(f, &o.out, "the report (Markdown, HTML with charts, JSON, GeoJSON, panel CSV)")
-	addEstimatorFlags(f, &o.est)
+	cli.AddFileFlag(f, &o.json, "json", "the audit as JSON")
+	cli.AddFileFlag(f, &o.md, "md", "the report's Markdown")
+	cli.AddOutFlag(f, &o.out, "the report (Markdown, HTML with charts, JSON, GeoJSON, panel CSV)")
+	cli.AddEstimatorFlags(f, &o.est)
+	addByFlag(cmd, &o.by)
 	return cmd
 }
 
-func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
-	if err := o.est.validate(&o.study, cmd.Flags()); err != nil {
+func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
+	if err := o.est.Validate(&o.study, cmd.Flags()); err != nil {
 		return err
 	}
-	outs, err := newOutputs(cmd, o.json, o.md)
+	outs, err := cli.NewOutputs(cmd, o.json, o.md)
 	if err != nil {
 		return err
 	}
-	in, err := o.study.open(cmd, g)
+	in, err := o.study.Open(cmd, g)
 	if err != nil {
 		return err
 	}
-	defer in.store.Close()
-	rep, err := runStudyAudit(cmd, g, in, &o.study, &o.est)
+	defer in.Store.Close()
+	rep, err := cli.RunStudyAudit(cmd, g, in, &o.study, &o.est)
 	if err != nil {
 		return err
 	}
-	out := outs.text
-	fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, joinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
+	out := outs.Text
+	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, out); err != nil {
+		return err
+	}
+	if rep.IsImport() {
+		fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, cli.JoinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
+	} else {
+		fmt.Fprintf(out, "event %s (%s), panel %s to %s\n", rep.Event.Name, rep.Event.Source, rep.Window[0], rep.Window[1])
+	}
 	if err := audit.WriteUnitSummary(out, rep.Study); err != nil {
 		return err
 	}
@@ -91,26 +102,15 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 	for _, c := range rep.Cautions {
 		fmt.Fprintln(out, "caution:", c)
 	}
-	md := func(w io.Writer) error { return report.WriteMarkdown(w, reportInput(rep, in.units, nil, nil)) }
-	if err := outs.write(o.json, rep.WriteJSON); err != nil {
+	md := func(w io.Writer) error { return report.WriteMarkdown(w, cli.ReportInput(rep, in.Units, nil, nil)) }
+	if err := outs.Write(o.json, rep.WriteJSON); err != nil {
 		return err
 	}
-	if err := outs.write(o.md, md); err != nil {
+	if err := outs.Write(o.md, md); err != nil {
 		return err
 	}
 	if o.out != "" {
-		return writeReports(out, o.out, reportInput(rep, in.units, nil, nil))
+		return cli.WriteReports(out, o.out, cli.ReportInput(rep, in.Units, nil, nil))
 	}
 	return nil
-}
-
-func joinOr(s []string, none string) string {
-	if len(s) == 0 {
-		return none
-	}
-	out := s[0]
-	for _, x := range s[1:] {
-		out += ", " + x
-	}
-	return out
 }

@@ -11,11 +11,12 @@ import (
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/checklist"
 	"github.com/loadwake/loadwake/audit/report"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // checklistOptions holds the flags of `loadwake checklist`.
 type checklistOptions struct {
-	study       studyFlags
+	study       cli.StudyFlags
 	provenance  string // snapshot mode: the tag that marks the import's features
 	types       string // snapshot mode: object types, e.g. "w" or "n,w"
 	minShare    float64
@@ -25,7 +26,7 @@ type checklistOptions struct {
 	out         string // write the report folder here
 }
 
-func newChecklistCommand(g *globalOptions) *cobra.Command {
+func newChecklistCommand(g *cli.Globals) *cobra.Command {
 	var o checklistOptions
 	cmd := &cobra.Command{
 		Use:   "checklist (--units SPEC [--import ID] | --provenance TAG) [--json FILE] [--md FILE] [--out DIR]",
@@ -52,30 +53,30 @@ or key~regex; they are compared with features of the same class without it.
 The Markdown (--md) is a checklist to paste into a review, closing with the
 cautions: the figures are evidence for local review; follow the community's
 import guidelines before any follow-up edit.`,
-		Args:        noArgs,
-		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
+		Args:        cli.NoArgs,
+		Annotations: map[string]string{cli.AnnInterrupted: cli.InterruptedReadOnly},
 		RunE:        func(cmd *cobra.Command, _ []string) error { return runChecklist(cmd, g, &o) },
 	}
-	o.study.addFlags(cmd, g)
+	o.study.AddFlags(cmd, g)
 	f := cmd.Flags()
 	f.StringVar(&o.provenance, "provenance", "", "snapshot mode: tag marking the import's features (prefix:*, key, key=value or key~regex)")
 	f.StringVar(&o.types, "types", "", "snapshot mode: object types to count, any of n,w,r (default all)")
 	f.Float64Var(&o.minShare, "min-share", checklist.DefaultMinShare, "least share of reference features carrying a key for it to be considered")
 	f.IntVar(&o.minFeatures, "min-features", checklist.DefaultMinFeatures, "least number of reference features carrying a key (and of reference features per class)")
-	addFileFlag(f, &o.json, "json", "the checklist as JSON")
-	addFileFlag(f, &o.md, "md", "the checklist as Markdown")
-	addOutFlag(f, &o.out, "the report (Markdown and HTML to post)")
+	cli.AddFileFlag(f, &o.json, "json", "the checklist as JSON")
+	cli.AddFileFlag(f, &o.md, "md", "the checklist as Markdown")
+	cli.AddOutFlag(f, &o.out, "the report (Markdown and HTML to post)")
 	return cmd
 }
 
-func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) error {
+func runChecklist(cmd *cobra.Command, g *cli.Globals, o *checklistOptions) error {
 	if o.minShare < 0 || o.minShare > 1 {
-		return usagef("--min-share must lie between 0 and 1")
+		return cli.Usagef("--min-share must lie between 0 and 1")
 	}
 	if o.minFeatures < 1 {
-		return usagef("--min-features must be at least 1")
+		return cli.Usagef("--min-features must be at least 1")
 	}
-	outs, err := newOutputs(cmd, o.json, o.md)
+	outs, err := cli.NewOutputs(cmd, o.json, o.md)
 	if err != nil {
 		return err
 	}
@@ -89,60 +90,60 @@ func runChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions) err
 	if err != nil {
 		return err
 	}
-	writeChecklistText(outs.text, cl)
-	if err := outs.write(o.json, cl.WriteJSON); err != nil {
+	writeChecklistText(outs.Text, cl)
+	if err := outs.Write(o.json, cl.WriteJSON); err != nil {
 		return err
 	}
-	if err := outs.write(o.md, cl.WriteMarkdown); err != nil {
+	if err := outs.Write(o.md, cl.WriteMarkdown); err != nil {
 		return err
 	}
 	if o.out != "" {
-		return writeReports(outs.text, o.out, report.Input{Checklist: cl, Provenance: audit.NewProvenance(generator(cmd.Context(), nil, false))})
+		return cli.WriteReports(outs.Text, o.out, report.Input{Checklist: cl, Provenance: audit.NewProvenance(cli.Generator(cmd.Context(), nil, false))})
 	}
 	return nil
 }
 
 // snapshotChecklist is the checklist of features marked by --provenance, on
 // a store from a current extract.
-func snapshotChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
-	if o.study.importID != "" || o.study.changesets != "" || o.study.account != "" {
-		return nil, usagef("--provenance selects the import's features by a tag; leave out --import, --changesets and --account")
+func snapshotChecklist(cmd *cobra.Command, g *cli.Globals, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
+	if o.study.ImportID != "" || o.study.Changesets != "" || o.study.Account != "" {
+		return nil, cli.Usagef("--provenance selects the import's features by a tag; leave out --import, --changesets and --account")
 	}
-	if o.study.units != "" {
-		return nil, usagef("--provenance compares features across the whole store, without units; leave out --units")
+	if o.study.Units != "" {
+		return nil, cli.Usagef("--provenance compares features across the whole store, without units; leave out --units")
 	}
 	prov, err := checklist.ParseProvenance(o.provenance)
 	if err != nil {
-		return nil, usagef("--provenance: %v", err)
+		return nil, cli.Usagef("--provenance: %v", err)
 	}
 	if co.Types, err = parseTypes(o.types); err != nil {
 		return nil, err
 	}
-	r, err := loadRules(o.study.rules)
+	r, err := cli.LoadRules(o.study.Rules)
 	if err != nil {
 		return nil, err
 	}
-	st, err := openStore(g)
+	st, err := cli.OpenStore(g)
 	if err != nil {
 		return nil, err
 	}
 	defer st.Close()
-	defer newProgress(cmd, g).step("checklist of " + o.provenance)()
+	defer cli.NewProgress(cmd, g).Step("checklist of " + o.provenance)()
 	return checklist.Snapshot(cmd.Context(), st, r, prov, co)
 }
 
 // studyChecklist is the checklist of one import's study over the units.
-func studyChecklist(cmd *cobra.Command, g *globalOptions, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
+func studyChecklist(cmd *cobra.Command, g *cli.Globals, o *checklistOptions, co checklist.Options) (*checklist.Checklist, error) {
 	if o.types != "" {
-		return nil, usagef("--types applies to --provenance (snapshot mode) only")
+		return nil, cli.Usagef("--types applies to --provenance (snapshot mode) only")
 	}
-	in, err := o.study.open(cmd, g)
+	in, err := o.study.Open(cmd, g)
 	if err != nil {
 		return nil, err
 	}
-	defer in.store.Close()
-	defer newProgress(cmd, g).step("checklist " + in.episode.ID)()
-	return audit.ChecklistOf(cmd.Context(), in.store, in.rules, in.episode, in.all, in.units, o.study.studyOptions(), co)
+	defer in.Store.Close()
+	defer cli.NewProgress(cmd, g).Step("checklist " + in.Episode.ID)()
+	return audit.ChecklistOf(cmd.Context(), in.Store, in.Rules, in.Episode, in.All, in.Units, o.study.StudyOptions(), co)
 }
 
 // parseTypes reads --types: a comma-separated list of n, w and r.
@@ -160,7 +161,7 @@ func parseTypes(s string) ([]osm.Type, error) {
 		case "r", "relation":
 			out = append(out, osm.TypeRelation)
 		default:
-			return nil, usagef("--types: %q is not n, w or r", p)
+			return nil, cli.Usagef("--types: %q is not n, w or r", p)
 		}
 	}
 	return out, nil

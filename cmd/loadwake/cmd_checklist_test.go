@@ -11,6 +11,7 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
@@ -107,7 +108,7 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 	t.Run("checklist to stdout", func(t *testing.T) {
 		t.Chdir(t.TempDir())
 		code, out, stderr := execMain(t, nil, "--store", store, "checklist", "--units", districts, "--changesets", csList, "--md", "-")
-		if code != exitOK || !strings.HasPrefix(out, "## Neglected tags") || !strings.Contains(stderr, "caution:") {
+		if code != cli.ExitOK || !strings.HasPrefix(out, "## Neglected tags") || !strings.Contains(stderr, "caution:") {
 			t.Errorf("--md -: exit %d; want the Markdown on stdout and the text on stderr\nstdout:\n%s\nstderr:\n%s", code, out, stderr)
 		}
 		if _, err := os.Stat("-"); err == nil {
@@ -150,6 +151,47 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 		}
 	})
 
+	t.Run("imports --audit", func(t *testing.T) {
+		dir := filepath.Join(tmp, "overview")
+		csvPath := filepath.Join(tmp, "overview.csv")
+		out, err := execRootOut(t, "--store", store, "imports", "--audit", "--units", districts, "--draws", "99", "--out", dir, "--csv", csvPath)
+		if err != nil {
+			t.Fatalf("imports --audit: %v\n%s", err, out)
+		}
+		var ov struct {
+			Schema  string `json:"schema"`
+			Imports []struct {
+				Import  string `json:"import"`
+				Effects []struct {
+					Layer string `json:"layer"`
+				} `json:"effects"`
+				TopKeys []struct {
+					Key string `json:"key"`
+				} `json:"top_keys"`
+				Error string `json:"error"`
+			} `json:"imports"`
+		}
+		data, err := os.ReadFile(filepath.Join(dir, "overview.json"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := json.Unmarshal(data, &ov); err != nil || ov.Schema != "loadwake-overview/1" || len(ov.Imports) == 0 {
+			t.Fatalf("overview.json: %v, schema %q, %d imports", err, ov.Schema, len(ov.Imports))
+		}
+		// building:levels is planted as neglected (sim.DefaultConfig).
+		if r := ov.Imports[0]; r.Error != "" || len(r.Effects) == 0 || len(r.TopKeys) == 0 || r.TopKeys[0].Key != "building:levels" {
+			t.Errorf("first row %+v", r)
+		}
+		for _, name := range []string{"overview.html", "overview.md", "overview.csv"} {
+			if fi, err := os.Stat(filepath.Join(dir, name)); err != nil || fi.Size() == 0 {
+				t.Errorf("%s: %v", name, err)
+			}
+		}
+		if !strings.Contains(out, "every import audited over") || !strings.Contains(out, "wrote "+csvPath) {
+			t.Errorf("output:\n%s", out)
+		}
+	})
+
 	t.Run("errors", func(t *testing.T) {
 		empty := filepath.Join(tmp, "empty.geojson")
 		os.WriteFile(empty, []byte(`{"type":"FeatureCollection","features":[]}`), 0o644)
@@ -171,12 +213,15 @@ func TestChecklistAndAssessCommands(t *testing.T) {
 			{"checklist without units", []string{"checklist", "--changesets", csList}, true, "--units"},
 			{"bad provenance", []string{"checklist", "--provenance", "source~("}, true, "--provenance"},
 			{"bad types", []string{"checklist", "--provenance", "tiger:*", "--types", "x"}, true, "--types"},
+			{"imports study flag without --audit", []string{"imports", "--units", districts}, true, "add --audit"},
+			{"imports --audit without units", []string{"imports", "--audit", "--out", tmp}, true, "--units"},
+			{"imports --audit without output", []string{"imports", "--audit", "--units", districts}, true, "--out DIR"},
 		}
 		for _, c := range cases {
 			t.Run(c.name, func(t *testing.T) {
 				_, err := execRootOut(t, append([]string{"--store", store}, c.args...)...)
-				if err == nil || errors.As(err, new(usageError)) != c.usage || !strings.Contains(err.Error(), c.has) {
-					t.Errorf("err %v (usage %v); want usage=%v containing %q", err, errors.As(err, new(usageError)), c.usage, c.has)
+				if err == nil || errors.As(err, new(cli.UsageError)) != c.usage || !strings.Contains(err.Error(), c.has) {
+					t.Errorf("err %v (usage %v); want usage=%v containing %q", err, errors.As(err, new(cli.UsageError)), c.usage, c.has)
 				}
 			})
 		}

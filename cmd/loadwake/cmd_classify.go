@@ -1,6 +1,7 @@
 package main
 
 import (
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
@@ -13,7 +14,7 @@ type classifyOptions struct {
 	force bool   // re-classify even when rules and data are unchanged
 }
 
-func newClassifyCommand(g *globalOptions) *cobra.Command {
+func newClassifyCommand(g *cli.Globals) *cobra.Command {
 	var o classifyOptions
 	cmd := &cobra.Command{
 		Use:   "classify",
@@ -24,8 +25,8 @@ that touched only provenance keys such as source or created_by are counted
 apart as bookkeeping). The events are kept in the store for the later steps.
 It does nothing when the rules and the stored data are unchanged since the last
 run, unless --force.`,
-		Args:        noArgs,
-		Annotations: map[string]string{annInterrupted: "classification stopped: the events of finished batches are kept; rerun classify to complete it"},
+		Args:        cli.NoArgs,
+		Annotations: map[string]string{cli.AnnInterrupted: "classification stopped: the events of finished batches are kept; rerun classify to complete it"},
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runClassify(cmd, g, &o)
 		},
@@ -35,12 +36,12 @@ run, unless --force.`,
 	return cmd
 }
 
-func runClassify(cmd *cobra.Command, g *globalOptions, o *classifyOptions) error {
-	r, err := loadRules(o.rules)
+func runClassify(cmd *cobra.Command, g *cli.Globals, o *classifyOptions) error {
+	r, err := cli.LoadRules(o.rules)
 	if err != nil {
 		return err
 	}
-	st, err := openStore(g)
+	st, err := cli.OpenStore(g)
 	if err != nil {
 		return err
 	}
@@ -52,13 +53,13 @@ func runClassify(cmd *cobra.Command, g *globalOptions, o *classifyOptions) error
 }
 
 // classifyStore runs the classification pass over st and prints its summary.
-func classifyStore(cmd *cobra.Command, g *globalOptions, st *ingest.Store, r *rules.RuleSet, force bool) error {
+func classifyStore(cmd *cobra.Command, g *cli.Globals, st *ingest.Store, r *rules.RuleSet, force bool) error {
 	stats, err := st.Stats(cmd.Context())
 	if err != nil {
 		return err
 	}
 	opts := layers.Options{Force: force}
-	hook, done := newProgress(cmd, g).classify(stats.Versions())
+	hook, done := cli.NewProgress(cmd, g).Classify(stats.Versions())
 	opts.Progress = hook
 	sum, err := layers.Run(cmd.Context(), st, r, opts)
 	done()

@@ -7,6 +7,8 @@ import (
 	"regexp"
 	"strings"
 	"testing"
+
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // TestClassifyCommand ingests a real way history (way 6394949 with all its
@@ -46,7 +48,7 @@ func TestClassifyCommand(t *testing.T) {
 	if _, _, err := execRoot(t, "--store", filepath.Join(t.TempDir(), "none"), "classify"); err == nil || !strings.Contains(err.Error(), "no store") {
 		t.Errorf("missing store: err %v", err)
 	}
-	if _, _, err := execRoot(t, "--store", store, "classify", "extra"); !errors.As(err, new(usageError)) {
+	if _, _, err := execRoot(t, "--store", store, "classify", "extra"); !errors.As(err, new(cli.UsageError)) {
 		t.Errorf("extra argument: err %v, want a usage error", err)
 	}
 }

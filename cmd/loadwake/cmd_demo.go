@@ -22,6 +22,7 @@ import (
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/audit/spatial"
 	"github.com/loadwake/loadwake/audit/study"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/loadwake/loadwake/rules"
@@ -35,9 +36,12 @@ type demoOptions struct {
 	grid  int     // districts per side (0: the simulator's default)
 	scale float64 // activity and stock multiplier (0: the simulator's default)
 	draws int
+	// newcomerHR plants newcomers who keep to one district (sim.Retention)
+	// with this hazard ratio of stopping after the import; 0 leaves them out.
+	newcomerHR float64
 }
 
-func newDemoCommand(g *globalOptions) *cobra.Command {
+func newDemoCommand(g *cli.Globals) *cobra.Command {
 	o := demoOptions{out: "demo-out", seed: 1, draws: 199}
 	cmd := &cobra.Command{
 		Use:   "demo [--out DIR] [--force] [--seed N]",
@@ -53,8 +57,8 @@ reports into DIR/report/.
 All data are invented: never upload them to OpenStreetMap.`,
 		Example: `  loadwake demo
   loadwake demo --out /tmp/demo --force --seed 7`,
-		Args:        noArgs,
-		Annotations: map[string]string{annInterrupted: "the demo stopped before its report; rerun it with --force"},
+		Args:        cli.NoArgs,
+		Annotations: map[string]string{cli.AnnInterrupted: "the demo stopped before its report; rerun it with --force"},
 		RunE:        func(cmd *cobra.Command, _ []string) error { return runDemo(cmd, g, &o) },
 	}
 	f := cmd.Flags()
@@ -64,6 +68,7 @@ All data are invented: never upload them to OpenStreetMap.`,
 	f.IntVar(&o.grid, "grid", 0, "districts per side of the world (default: the simulator's 8)")
 	f.Float64Var(&o.scale, "scale", 0, "multiplier on activity and map size (default: the simulator's 1)")
 	f.IntVar(&o.draws, "draws", o.draws, "bootstrap draws of the estimators")
+	f.Float64Var(&o.newcomerHR, "newcomer-hazard-ratio", 0, "plant newcomers who keep to one district and stop this many times as often after the import in import areas (0: none; changes the whole world)")
 	return cmd
 }
 
@@ -78,13 +83,15 @@ func newDemoPaths(dir string) demoPaths {
 func (o *demoOptions) validate() error {
 	switch {
 	case o.out == "":
-		return usagef("--out must name a folder")
+		return cli.Usagef("--out must name a folder")
 	case o.grid != 0 && o.grid < 4:
-		return usagef("--grid must be at least 4")
+		return cli.Usagef("--grid must be at least 4")
 	case o.scale < 0:
-		return usagef("--scale must not be negative")
+		return cli.Usagef("--scale must not be negative")
 	case o.draws < 99:
-		return usagef("--draws must be at least 99")
+		return cli.Usagef("--draws must be at least 99")
+	case o.newcomerHR < 0:
+		return cli.Usagef("--newcomer-hazard-ratio must not be negative")
 	}
 	return nil
 }
@@ -100,11 +107,16 @@ func (o *demoOptions) config() sim.Config {
 	if o.scale > 0 {
 		cfg.Scale = o.scale
 	}
+	if o.newcomerHR > 0 {
+		r := sim.DefaultRetention()
+		r.HazardRatio = o.newcomerHR
+		cfg.Retention = &r
+	}
 	return cfg
 }
 
-func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
-	ctx, out, prog := cmd.Context(), cmd.OutOrStdout(), newProgress(cmd, g)
+func runDemo(cmd *cobra.Command, g *cli.Globals, o *demoOptions) error {
+	ctx, out, prog := cmd.Context(), cmd.OutOrStdout(), cli.NewProgress(cmd, g)
 	if err := o.validate(); err != nil {
 		return err
 	}
@@ -126,8 +138,8 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 	if err != nil {
 		return err
 	}
-	done := prog.step("demo: write the report")
-	err = writeReports(io.Discard, p.report, in)
+	done := prog.Step("demo: write the report")
+	err = cli.WriteReports(io.Discard, p.report, in)
 	done()
 	if err != nil {
 		return err
@@ -141,8 +153,8 @@ func runDemo(cmd *cobra.Command, g *globalOptions, o *demoOptions) error {
 
 // demoStore invents the world of cfg and returns its store, ingested and
 // classified.
-func demoStore(ctx context.Context, prog *progress, cfg sim.Config, p demoPaths) (*ingest.Store, error) {
-	done := prog.step("demo: invent the world")
+func demoStore(ctx context.Context, prog *cli.Progress, cfg sim.Config, p demoPaths) (*ingest.Store, error) {
+	done := prog.Step("demo: invent the world")
 	_, err := sim.Generate(ctx, cfg, p.world, true)
 	done()
 	if err != nil {
@@ -153,7 +165,7 @@ func demoStore(ctx context.Context, prog *progress, cfg sim.Config, p demoPaths)
 		return nil, err
 	}
 	paths := []string{filepath.Join(p.world, sim.HistoryFile), filepath.Join(p.world, sim.ChangesetsFile)}
-	_, err = ingest.Ingest(ctx, st, paths, ingest.IngestOptions{Progress: prog.ingest()})
+	_, err = ingest.Ingest(ctx, st, paths, ingest.IngestOptions{Progress: prog.Ingest()})
 	if err == nil {
 		err = demoClassify(ctx, prog, st)
 	}
@@ -165,12 +177,12 @@ func demoStore(ctx context.Context, prog *progress, cfg sim.Config, p demoPaths)
 }
 
 // demoClassify runs the classification pass with a progress bar.
-func demoClassify(ctx context.Context, prog *progress, st *ingest.Store) error {
+func demoClassify(ctx context.Context, prog *cli.Progress, st *ingest.Store) error {
 	stats, err := st.Stats(ctx)
 	if err != nil {
 		return err
 	}
-	hook, done := prog.classify(stats.Versions())
+	hook, done := prog.Classify(stats.Versions())
 	defer done()
 	_, err = layers.Run(ctx, st, rules.Default(), layers.Options{Progress: hook})
 	return err
@@ -179,9 +191,9 @@ func demoClassify(ctx context.Context, prog *progress, st *ingest.Store) error {
 // demoStudy audits the largest import over the districts, builds its
 // checklist and assesses the invented follow-up proposal: what the reports
 // show.
-func demoStudy(ctx context.Context, prog *progress, st *ingest.Store, o *demoOptions, p demoPaths) (report.Input, error) {
+func demoStudy(ctx context.Context, prog *cli.Progress, st *ingest.Store, o *demoOptions, p demoPaths) (report.Input, error) {
 	r := rules.Default()
-	done := prog.step("demo: find imports")
+	done := prog.Step("demo: find imports")
 	eps, err := episode.Detect(ctx, st, r, episode.Options{})
 	done()
 	if err != nil {
@@ -197,26 +209,26 @@ func demoStudy(ctx context.Context, prog *progress, st *ingest.Store, o *demoOpt
 	}
 	eo := did.DefaultOptions()
 	eo.Draws = o.draws
-	ao := audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile, Generator: generator(ctx, st, true)}
-	done = prog.step("demo: audit " + ep.ID)
+	ao := audit.Options{Estimate: eo, UnitSpec: sim.DistrictsFile, Generator: cli.Generator(ctx, st, true)}
+	done = prog.Step("demo: audit " + ep.ID)
 	rep, err := audit.Run(ctx, st, ep, eps, units, ao)
 	done()
 	if err != nil {
 		return report.Input{}, err
 	}
-	done = prog.step("demo: checklist " + ep.ID)
+	done = prog.Step("demo: checklist " + ep.ID)
 	cl, err := audit.ChecklistOf(ctx, st, r, ep, eps, units, study.Options{}, checklist.Options{})
 	done()
 	if err != nil {
 		return report.Input{}, fmt.Errorf("checklist: %w", err)
 	}
-	done = prog.step("demo: assess the invented proposal")
+	done = prog.Step("demo: assess the invented proposal")
 	a, err := demoAssessment(ctx, st, r, p.proposal, units, rep, eps, ao, o.seed)
 	done()
 	if err != nil {
 		return report.Input{}, fmt.Errorf("assessment: %w", err)
 	}
-	return reportInput(rep, units, cl, a), nil
+	return cli.ReportInput(rep, units, cl, a), nil
 }
 
 // largestEpisode picks the episode with the most changesets, then the most
@@ -239,7 +251,7 @@ func largestEpisode(eps []episode.Episode) *episode.Episode {
 func demoSummary(rep *audit.Report, cl *checklist.Checklist, dir string) []string {
 	lines := []string{
 		fmt.Sprintf("import:    %s by %s, %d changesets, %s to %s, %d objects created", rep.Import.ID,
-			joinOr(rep.Import.Accounts, "no account"), rep.Import.Changesets, rep.Import.FirstMonth, rep.Import.LastMonth, rep.Import.Created),
+			cli.JoinOr(rep.Import.Accounts, "no account"), rep.Import.Changesets, rep.Import.FirstMonth, rep.Import.LastMonth, rep.Import.Created),
 		fmt.Sprintf("units:     %d districts: %d import areas, %d matched comparison areas, %d excluded, %d left out",
 			rep.Units.Total, rep.Units.Treated, rep.Units.Controls, rep.Units.Excluded, rep.Units.Dropped),
 	}

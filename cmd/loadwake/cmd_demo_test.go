@@ -10,6 +10,7 @@ import (
 
 	"github.com/loadwake/loadwake/audit/report"
 	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // TestDemoAndReport runs the demo on a small invented world, checks the files
@@ -124,7 +125,7 @@ func TestReportUsage(t *testing.T) {
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
 			_, err := execRootOut(t, c.args...)
-			if _, ok := err.(usageError); !ok {
+			if _, ok := err.(cli.UsageError); !ok {
 				t.Errorf("%v: err = %v, want a usage error", c.args, err)
 			}
 		})

@@ -13,7 +13,9 @@ import (
 	"testing"
 	"time"
 
+	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/panel"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // writeInventedPanel writes an invented panel (40 treated units in two
@@ -117,7 +119,7 @@ func TestEstimateCommandErrors(t *testing.T) {
 		want  string
 	}{
 		{"no panel", []string{"estimate", "--outcome", "geometry"}, true, "--panel"},
-		{"no outcome", []string{"estimate", "--panel", panel}, true, "--outcome"},
+		{"no outcome, not an export", []string{"estimate", "--panel", bad}, true, "--outcome"},
 		{"bad inference", []string{"estimate", "--panel", panel, "--outcome", "geometry", "--inference", "magic"}, true, "inference"},
 		{"missing column", []string{"estimate", "--panel", panel, "--outcome", "trees"}, false, `column "trees"`},
 		{"bad value", []string{"estimate", "--panel", bad, "--outcome", "geometry"}, false, `bad.csv:3: column "geometry": count "oops"`},
@@ -128,9 +130,70 @@ func TestEstimateCommandErrors(t *testing.T) {
 			if err == nil || !strings.Contains(err.Error(), c.want) {
 				t.Fatalf("error %v, want %q", err, c.want)
 			}
-			if got := errors.As(err, new(usageError)); got != c.usage {
+			if got := errors.As(err, new(cli.UsageError)); got != c.usage {
 				t.Errorf("usage error %v, want %v", got, c.usage)
 			}
 		})
+	}
+}
+
+// TestEstimateReproducesAudit runs `loadwake audit --out` on a small invented
+// world and then `loadwake estimate --panel` on the report folder's panel.csv
+// with no other flags: every effect of report.json (each layer, key family and
+// contributor group, each estimator) comes back with the same ATT, interval
+// and p-value, so a reader can reproduce the report from the CSV alone. The
+// check is against the audit's own figures (the estimators themselves are
+// checked against R in audit/did).
+func TestEstimateReproducesAudit(t *testing.T) {
+	if testing.Short() {
+		t.Skip("builds and audits a simulated world")
+	}
+	store, world, truth := simulatedStore(t)
+	out := filepath.Join(t.TempDir(), "review")
+	if msg, err := execRootOut(t, "--store", store, "audit", "--units", filepath.Join(world, "districts.geojson"),
+		"--account", truth.ImportAccounts[0].User, "--out", out); err != nil {
+		t.Fatalf("audit: %v\n%s", err, msg)
+	}
+	var rep struct {
+		Effects []did.Effect `json:"effects"`
+	}
+	readJSON(t, filepath.Join(out, "report.json"), &rep)
+	if len(rep.Effects) == 0 {
+		t.Fatal("report.json has no effects")
+	}
+	got := filepath.Join(t.TempDir(), "estimates.json")
+	if msg, err := execRootOut(t, "estimate", "--panel", filepath.Join(out, "panel.csv"), "--json", got); err != nil {
+		t.Fatalf("estimate: %v\n%s", err, msg)
+	}
+	var es did.Estimates
+	readJSON(t, got, &es)
+	type key struct{ layer, est string }
+	byKey := map[key]int{}
+	for i, e := range es.Effects {
+		byKey[key{e.Layer, e.Estimator}] = i
+	}
+	near := func(a, b float64) bool { return math.Abs(a-b) <= 1e-9*math.Max(1, math.Abs(a)) }
+	for _, w := range rep.Effects {
+		i, ok := byKey[key{w.Layer, w.Estimator}]
+		if !ok {
+			t.Errorf("%s %s: in report.json, not in the estimates from panel.csv", w.Layer, w.Estimator)
+			continue
+		}
+		g := es.Effects[i]
+		if !near(g.ATT, w.ATT) || !near(g.CI95[0], w.CI95[0]) || !near(g.CI95[1], w.CI95[1]) || !near(g.PValue, w.PValue) {
+			t.Errorf("%s %s: from panel.csv att %.10g %v p %.6g, report.json att %.10g %v p %.6g",
+				w.Layer, w.Estimator, g.ATT, g.CI95, g.PValue, w.ATT, w.CI95, w.PValue)
+		}
+	}
+}
+
+func readJSON(t testing.TB, path string, v any) {
+	t.Helper()
+	b, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if err := json.Unmarshal(b, v); err != nil {
+		t.Fatalf("%s: %v", path, err)
 	}
 }

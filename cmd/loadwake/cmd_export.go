@@ -7,6 +7,7 @@ import (
 	"regexp"
 	"time"
 
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers/export"
 	"github.com/spf13/cobra"
@@ -19,7 +20,7 @@ type exportOptions struct {
 	rowsPerFile int64
 }
 
-func newExportCommand(g *globalOptions) *cobra.Command {
+func newExportCommand(g *cli.Globals) *cobra.Command {
 	var o exportOptions
 	cmd := &cobra.Command{
 		Use:   "export",
@@ -48,8 +49,8 @@ the licence's attribution and share-alike terms when you share them.`,
 		return func(cmd *cobra.Command, _ []string) error { return runExport(cmd, g, &o, kind) }
 	}
 	cmd.AddCommand(
-		&cobra.Command{Use: "events", Short: "Write the classified events (run classify first)", Args: noArgs, RunE: run("events")},
-		&cobra.Command{Use: "changesets", Short: "Write the changeset records", Args: noArgs, RunE: run("changesets")},
+		&cobra.Command{Use: "events", Short: "Write the classified events (run classify first)", Args: cli.NoArgs, RunE: run("events")},
+		&cobra.Command{Use: "changesets", Short: "Write the changeset records", Args: cli.NoArgs, RunE: run("changesets")},
 	)
 	return cmd
 }
@@ -57,22 +58,22 @@ the licence's attribution and share-alike terms when you share them.`,
 // nonIDChars are the characters a folder name may hold that a store id may not.
 var nonIDChars = regexp.MustCompile(`[^A-Za-z0-9_.]+`)
 
-func runExport(cmd *cobra.Command, g *globalOptions, o *exportOptions, kind string) error {
+func runExport(cmd *cobra.Command, g *cli.Globals, o *exportOptions, kind string) error {
 	if o.out == "" {
-		return usagef("export %s: --out is required", kind)
+		return cli.Usagef("export %s: --out is required", kind)
 	}
 	if o.rowsPerFile <= 0 {
-		return usagef("export %s: --rows-per-file must be positive", kind)
+		return cli.Usagef("export %s: --rows-per-file must be positive", kind)
 	}
 	id := o.storeID
 	if id == "" {
-		abs, err := filepath.Abs(g.store)
+		abs, err := filepath.Abs(g.Store)
 		if err != nil {
 			return err
 		}
 		id = nonIDChars.ReplaceAllString(filepath.Base(abs), "_")
 	}
-	st, err := openStore(g)
+	st, err := cli.OpenStore(g)
 	if err != nil {
 		return err
 	}

@@ -6,6 +6,8 @@ import (
 	"path/filepath"
 	"regexp"
 	"testing"
+
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // TestExportCommand exports the real way history of way 6394949 (the osm
@@ -40,7 +42,7 @@ func TestExportCommand(t *testing.T) {
 		"extra":    {"--store", store, "export", "events", "--out", out, "x"},
 	} {
 		t.Run(name, func(t *testing.T) {
-			if _, _, err := execRoot(t, args...); !errors.As(err, new(usageError)) {
+			if _, _, err := execRoot(t, args...); !errors.As(err, new(cli.UsageError)) {
 				t.Errorf("err %v, want a usage error", err)
 			}
 		})

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/paulmach/osm"
 )
 
@@ -96,7 +97,7 @@ func TestImportsCommand(t *testing.T) {
 	if _, _, err := execRoot(t, "--store", filepath.Join(dir, "none"), "imports"); err == nil || !strings.Contains(err.Error(), "no store") {
 		t.Errorf("missing store: err %v", err)
 	}
-	if _, _, err := execRoot(t, "--store", store, "imports", "extra"); !errors.As(err, new(usageError)) {
+	if _, _, err := execRoot(t, "--store", store, "imports", "extra"); !errors.As(err, new(cli.UsageError)) {
 		t.Errorf("extra argument: err %v, want a usage error", err)
 	}
 }

@@ -9,6 +9,7 @@ import (
 	"path/filepath"
 
 	"github.com/dustin/go-humanize"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/spf13/cobra"
 )
@@ -19,7 +20,7 @@ type ingestOptions struct {
 	rules      string // rule file for the classification pass
 }
 
-func newIngestCommand(g *globalOptions) *cobra.Command {
+func newIngestCommand(g *cli.Globals) *cobra.Command {
 	var o ingestOptions
 	cmd := &cobra.Command{
 		Use:   "ingest FILE...",
@@ -42,11 +43,11 @@ leaves that for a later loadwake classify.
 
 OpenStreetMap data is licensed under the ODbL: keep its attribution in
 whatever you derive from the store.`,
-		Annotations: map[string]string{annInterrupted: "ingest stopped between batches: what was stored is kept and consistent; " +
+		Annotations: map[string]string{cli.AnnInterrupted: "ingest stopped between batches: what was stored is kept and consistent; " +
 			"rerun the same command to continue (files ingested completely are skipped, nothing is stored twice)"},
 		Args: func(_ *cobra.Command, args []string) error {
 			if len(args) == 0 {
-				return usagef("ingest needs at least one FILE")
+				return cli.Usagef("ingest needs at least one FILE")
 			}
 			return nil
 		},
@@ -59,8 +60,8 @@ whatever you derive from the store.`,
 	return cmd
 }
 
-func runIngest(cmd *cobra.Command, g *globalOptions, o *ingestOptions, paths []string) error {
-	r, err := loadRules(o.rules)
+func runIngest(cmd *cobra.Command, g *cli.Globals, o *ingestOptions, paths []string) error {
+	r, err := cli.LoadRules(o.rules)
 	if err != nil {
 		return err
 	}
@@ -68,20 +69,20 @@ func runIngest(cmd *cobra.Command, g *globalOptions, o *ingestOptions, paths []s
 		if st, err := os.Stat(p); err != nil {
 			return fmt.Errorf("input file: %w", err)
 		} else if st.IsDir() {
-			return fmt.Errorf("input file %s: %w", p, errIsDir)
+			return fmt.Errorf("input file %s: %w", p, cli.ErrIsDir)
 		}
 	}
-	s, err := ingest.Open(g.store, ingest.DefaultOptions())
+	s, err := ingest.Open(g.Store, ingest.DefaultOptions())
 	if err != nil {
 		return err
 	}
-	opts := ingest.IngestOptions{Progress: newProgress(cmd, g).ingest()}
+	opts := ingest.IngestOptions{Progress: cli.NewProgress(cmd, g).Ingest()}
 	errw := cmd.ErrOrStderr()
 	rep, err := ingest.Ingest(cmd.Context(), s, paths, opts)
 	printIngestReport(cmd.OutOrStdout(), errw, rep)
 	switch {
 	case err != nil && cmd.Context().Err() != nil:
-		// exitCode says what an interruption leaves behind.
+		// cli.ExitCode says what an interruption leaves behind.
 	case err != nil && !o.noClassify:
 		fmt.Fprintln(cmd.OutOrStdout(), "not classified: fix the file the error names and rerun ingest (what was stored is kept)")
 	case err == nil && !o.noClassify:

@@ -10,6 +10,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/paulmach/osm"
 	"github.com/paulmach/osm/osmxml"
 )
@@ -128,7 +129,7 @@ func TestIngestCommandErrors(t *testing.T) {
 			if err == nil {
 				t.Fatal("no error")
 			}
-			if errors.As(err, new(usageError)) != tc.usage {
+			if errors.As(err, new(cli.UsageError)) != tc.usage {
 				t.Errorf("usage error %v, want %v: %v", !tc.usage, tc.usage, err)
 			}
 			if !strings.Contains(err.Error(), tc.want) {

@@ -8,17 +8,17 @@ import (
 
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/panel"
-	"github.com/loadwake/loadwake/audit/study"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // panelOptions holds the flags of `loadwake panel`.
 type panelOptions struct {
-	study studyFlags
+	study cli.StudyFlags
 	csv   string // output CSV
 	all   bool   // every clean unit instead of the matched set
 }
 
-func newPanelCommand(g *globalOptions) *cobra.Command {
+func newPanelCommand(g *cli.Globals) *cobra.Command {
 	var o panelOptions
 	cmd := &cobra.Command{
 		Use:   "panel --units SPEC --csv FILE [--import ID]",
@@ -35,36 +35,42 @@ treated from the month the import arrived; units any import touched otherwise
 are excluded; each treated unit is matched with --k untouched units on its
 pre-import activity (Mahalanobis distance, or --propensity). It prints the
 balance table and writes the panel as CSV (one row per unit and month; columns
-unit, month, first_treated, weight, cluster, then one per outcome), the format
-loadwake estimate reads.`,
-		Args:        noArgs,
-		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
+unit, month, first_treated, weight, cluster, then one per outcome, then one per
+pre-period covariate named covariate:NAME), the format loadwake estimate reads
+with no further flags.`,
+		Args:        cli.NoArgs,
+		Annotations: map[string]string{cli.AnnInterrupted: cli.InterruptedReadOnly},
 		RunE:        func(cmd *cobra.Command, _ []string) error { return runPanel(cmd, g, &o) },
 	}
-	o.study.addFlags(cmd, g)
-	addFileFlag(cmd.Flags(), &o.csv, "csv", "the panel as CSV")
+	o.study.AddFlags(cmd, g)
+	o.study.AddTreatmentFlags(cmd)
+	cli.AddFileFlag(cmd.Flags(), &o.csv, "csv", "the panel as CSV")
 	cmd.Flags().BoolVar(&o.all, "all", false, "write every clean unit (unweighted) instead of the matched set")
 	return cmd
 }
 
-func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
-	outs, err := newOutputs(cmd, o.csv)
+func runPanel(cmd *cobra.Command, g *cli.Globals, o *panelOptions) error {
+	outs, err := cli.NewOutputs(cmd, o.csv)
 	if err != nil {
 		return err
 	}
-	in, err := o.study.open(cmd, g)
+	in, err := o.study.Open(cmd, g)
 	if err != nil {
 		return err
 	}
-	defer in.store.Close()
-	done := newProgress(cmd, g).step("panel " + in.episode.ID + ": build the study")
-	st, err := study.ForEpisode(cmd.Context(), in.store, in.episode, in.all, in.units, o.study.studyOptions())
+	defer in.Store.Close()
+	done := cli.NewProgress(cmd, g).Step("panel " + in.Label() + ": build the study")
+	st, err := in.BuildStudy(cmd.Context(), o.study.StudyOptions())
 	done()
 	if err != nil {
 		return err
 	}
-	out := outs.text
-	fmt.Fprintf(out, "import %s, panel %s to %s, %d outcomes\n", in.episode.ID, st.Window[0], st.Window[1], len(st.Panel.Outcomes))
+	out := outs.Text
+	what := "import " + in.Label()
+	if in.Assignment != nil {
+		what = "event " + in.Label() + " (" + o.study.Treatment + ")"
+	}
+	fmt.Fprintf(out, "%s, panel %s to %s, %d outcomes\n", what, st.Window[0], st.Window[1], len(st.Panel.Outcomes))
 	if err := audit.WriteUnitSummary(out, st); err != nil {
 		return err
 	}
@@ -81,5 +87,5 @@ func runPanel(cmd *cobra.Command, g *globalOptions, o *panelOptions) error {
 	if o.csv != "" {
 		fmt.Fprintf(out, "panel: %d units x %d months\n", len(p.Units), p.Months)
 	}
-	return outs.write(o.csv, func(w io.Writer) error { return panel.WriteCSV(w, p) })
+	return outs.Write(o.csv, func(w io.Writer) error { return panel.WriteCSV(w, p) })
 }

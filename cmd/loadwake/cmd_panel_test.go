@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // TestPanelCommand runs `loadwake panel` on a small invented world as a user
@@ -57,7 +58,7 @@ func TestPanelCommand(t *testing.T) {
 	}
 
 	_, err = execRootOut(t, "--store", store, "panel", "--csv", csvPath)
-	if !errors.As(err, new(usageError)) {
+	if !errors.As(err, new(cli.UsageError)) {
 		t.Errorf("panel without --units: %v, want a usage error", err)
 	}
 	_, err = execRootOut(t, "--store", store, "panel", "--units", units, "--import", "imp-0")

@@ -12,6 +12,7 @@ import (
 	"github.com/loadwake/loadwake/audit/episode"
 	"github.com/loadwake/loadwake/audit/power"
 	"github.com/loadwake/loadwake/audit/rollout"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // planOptions holds the flags of `loadwake plan`.
@@ -27,7 +28,7 @@ type planOptions struct {
 	out                           string
 }
 
-func newPlanCommand(g *globalOptions) *cobra.Command {
+func newPlanCommand(g *cli.Globals) *cobra.Command {
 	o := planOptions{}
 	cmd := &cobra.Command{
 		Use:   "plan PROPOSAL --units SPEC [--waves 3] [--months-between 3] [--seed S] [--out DIR]",
@@ -54,8 +55,8 @@ gives the same plan. A plan is for the community's review: community
 approval, the import guidelines and local review come first.`,
 		Example: `  loadwake plan proposal.geojson --units tiles:17 --waves 3 --months-between 3 --seed 2026 --out plan
   loadwake plan proposal.osc --units districts.geojson --block-by region --waves 4 --json plan.json`,
-		Args:        exactArgs(1),
-		Annotations: map[string]string{annInterrupted: interruptedReadOnly},
+		Args:        cli.ExactArgs(1),
+		Annotations: map[string]string{cli.AnnInterrupted: cli.InterruptedReadOnly},
 		RunE:        func(cmd *cobra.Command, args []string) error { return runPlan(cmd, g, &o, args[0]) },
 	}
 	f := cmd.Flags()
@@ -75,50 +76,50 @@ approval, the import guidelines and local review come first.`,
 	f.IntVar(&o.worlds, "worlds", 20, "simulated evaluations per design for the power (more: smaller Monte Carlo error, slower)")
 	f.IntVar(&o.draws, "draws", 199, "bootstrap draws of each simulated evaluation (at least 99)")
 	f.BoolVar(&o.noPower, "no-power", false, "do not simulate the power (fast; no minimum detectable effects)")
-	addFileFlag(f, &o.json, "json", "the plan as JSON")
-	addFileFlag(f, &o.csv, "csv", "the plan's units as CSV (unit, wave, start month)")
-	addFileFlag(f, &o.geojson, "geojson", "the plan's units as GeoJSON")
-	addFileFlag(f, &o.md, "md", "the pre-registration as Markdown")
-	addOutFlag(f, &o.out, "the plan, the per-wave OsmChange files, the power charts and the pre-registration")
+	cli.AddFileFlag(f, &o.json, "json", "the plan as JSON")
+	cli.AddFileFlag(f, &o.csv, "csv", "the plan's units as CSV (unit, wave, start month)")
+	cli.AddFileFlag(f, &o.geojson, "geojson", "the plan's units as GeoJSON")
+	cli.AddFileFlag(f, &o.md, "md", "the pre-registration as Markdown")
+	cli.AddOutFlag(f, &o.out, "the plan, the per-wave OsmChange files, the power charts and the pre-registration")
 	return cmd
 }
 
 func (o *planOptions) validate() (time.Time, error) {
 	switch {
 	case o.units == "":
-		return time.Time{}, usagef("--units is required: tiles:Z or a GeoJSON file of polygons")
+		return time.Time{}, cli.Usagef("--units is required: tiles:Z or a GeoJSON file of polygons")
 	case o.waves < 2:
-		return time.Time{}, usagef("--waves must be at least 2 (the last is the comparison)")
+		return time.Time{}, cli.Usagef("--waves must be at least 2 (the last is the comparison)")
 	case o.between < 1 || o.after < 0 || o.before < 2 || o.history < 2:
-		return time.Time{}, usagef("--months-between must be at least 1, --window-before and --history at least 2, --window-after not negative")
+		return time.Time{}, cli.Usagef("--months-between must be at least 1, --window-before and --history at least 2, --window-after not negative")
 	case o.worlds < 1:
-		return time.Time{}, usagef("--worlds must be at least 1")
+		return time.Time{}, cli.Usagef("--worlds must be at least 1")
 	case o.draws < 99:
-		return time.Time{}, usagef("--draws must be at least 99")
+		return time.Time{}, cli.Usagef("--draws must be at least 99")
 	case !(o.pause > 0 && o.pause < 100):
-		return time.Time{}, usagef("--pause must lie between 0 and 100 percent")
+		return time.Time{}, cli.Usagef("--pause must lie between 0 and 100 percent")
 	}
 	if o.start == "" {
 		return time.Time{}, nil
 	}
 	t, err := time.Parse("2006-01", o.start)
 	if err != nil {
-		return time.Time{}, usagef("--start %q: want YYYY-MM", o.start)
+		return time.Time{}, cli.Usagef("--start %q: want YYYY-MM", o.start)
 	}
 	return t, nil
 }
 
-func runPlan(cmd *cobra.Command, g *globalOptions, o *planOptions, path string) error {
+func runPlan(cmd *cobra.Command, g *cli.Globals, o *planOptions, path string) error {
 	start, err := o.validate()
 	if err != nil {
 		return err
 	}
-	outs, err := newOutputs(cmd, o.json, o.csv, o.geojson, o.md)
+	outs, err := cli.NewOutputs(cmd, o.json, o.csv, o.geojson, o.md)
 	if err != nil {
 		return err
 	}
-	ctx, out := cmd.Context(), outs.text
-	r, err := loadRules(o.rules)
+	ctx, out := cmd.Context(), outs.Text
+	r, err := cli.LoadRules(o.rules)
 	if err != nil {
 		return err
 	}
@@ -126,12 +127,12 @@ func runPlan(cmd *cobra.Command, g *globalOptions, o *planOptions, path string) 
 	if err != nil {
 		return err
 	}
-	st, err := openStore(g)
+	st, err := cli.OpenStore(g)
 	if err != nil {
 		return err
 	}
 	defer st.Close()
-	units, err := storeUnits(ctx, st, o.units, o.unitID, p.Bound, time.Time{})
+	units, err := cli.StoreUnits(ctx, st, o.units, o.unitID, "name", p.Bound, time.Time{})
 	if err != nil {
 		return err
 	}
@@ -150,7 +151,7 @@ func runPlan(cmd *cobra.Command, g *globalOptions, o *planOptions, path string) 
 	for _, e := range eps {
 		opts.Exclude = append(opts.Exclude, e.Changesets...)
 	}
-	done := newProgress(cmd, g).step("plan " + filepath.Base(path) + ": assignment and power")
+	done := cli.NewProgress(cmd, g).Step("plan " + filepath.Base(path) + ": assignment and power")
 	pl, err := rollout.Make(ctx, st, p, units, o.units, opts)
 	done()
 	if err != nil {
@@ -160,7 +161,7 @@ func runPlan(cmd *cobra.Command, g *globalOptions, o *planOptions, path string) 
 }
 
 // writePlan writes the plan's files and prints its summary.
-func writePlan(out io.Writer, outs *outputs, o *planOptions, pl *rollout.Plan) error {
+func writePlan(out io.Writer, outs *cli.Outputs, o *planOptions, pl *rollout.Plan) error {
 	if o.out != "" {
 		if err := os.MkdirAll(o.out, 0o755); err != nil {
 			return fmt.Errorf("create output folder: %w", err)
@@ -182,7 +183,7 @@ func writePlan(out io.Writer, outs *outputs, o *planOptions, pl *rollout.Plan) e
 		}{{"plan.json", pl.WriteJSON}, {"plan.csv", pl.WriteCSV}, {"plan.geojson", pl.WriteGeoJSON},
 			{"preregistration.md", pl.WritePreregistration}, {"preregistration.wiki", pl.WritePreregistrationWiki}} {
 			p := filepath.Join(o.out, f.name)
-			if err := writeFile(p, f.fill); err != nil {
+			if err := cli.WriteFile(p, f.fill); err != nil {
 				return err
 			}
 			paths = append(paths, p)
@@ -193,7 +194,7 @@ func writePlan(out io.Writer, outs *outputs, o *planOptions, pl *rollout.Plan) e
 		path string
 		fill func(w io.Writer) error
 	}{{o.json, pl.WriteJSON}, {o.csv, pl.WriteCSV}, {o.geojson, pl.WriteGeoJSON}, {o.md, pl.WritePreregistration}} {
-		if err := outs.write(f.path, f.fill); err != nil {
+		if err := outs.Write(f.path, f.fill); err != nil {
 			return err
 		}
 	}

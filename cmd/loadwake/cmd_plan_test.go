@@ -11,6 +11,7 @@ import (
 
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/audit/spatial"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // TestPlanCommand plans the simulator's invented proposal over nine
@@ -82,8 +83,7 @@ func TestPlanBadFlags(t *testing.T) {
 	} {
 		t.Run(tc.name, func(t *testing.T) {
 			_, err := execRootOut(t, tc.args...)
-			var u usageError
-			if !errors.As(err, &u) {
+			if !errors.As(err, new(cli.UsageError)) {
 				t.Errorf("error %v, want a usage error", err)
 			}
 		})

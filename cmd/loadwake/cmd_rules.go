@@ -4,6 +4,7 @@ import (
 	"errors"
 	"fmt"
 
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/rules"
 	"github.com/spf13/cobra"
 )
@@ -13,7 +14,7 @@ type rulesOptions struct {
 	rules string // rule file to show instead of the built-in rules
 }
 
-func newRulesCommand(g *globalOptions) *cobra.Command {
+func newRulesCommand(g *cli.Globals) *cobra.Command {
 	var o rulesOptions
 	cmd := &cobra.Command{
 		Use:   "rules",
@@ -24,7 +25,7 @@ with "rules show", edit a copy, check it with "rules check FILE" and pass it to
 other commands with --rules FILE.`,
 		Args: func(cmd *cobra.Command, args []string) error {
 			if len(args) > 0 {
-				return usagef("unknown command %q: the commands of %s are show and check", args[0], cmd.CommandPath())
+				return cli.Usagef("unknown command %q: the commands of %s are show and check", args[0], cmd.CommandPath())
 			}
 			return nil
 		},
@@ -33,7 +34,7 @@ other commands with --rules FILE.`,
 	show := &cobra.Command{
 		Use:   "show",
 		Short: "Print the built-in rules, or the effective rules of --rules FILE",
-		Args:  noArgs,
+		Args:  cli.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runRulesShow(cmd, &o)
 		},
@@ -44,7 +45,7 @@ other commands with --rules FILE.`,
 		Short: "Check a rule file and print every problem as file:line:col: message",
 		Args: func(_ *cobra.Command, args []string) error {
 			if len(args) != 1 {
-				return usagef("rules check takes one rule file, got %d arguments", len(args))
+				return cli.Usagef("rules check takes one rule file, got %d arguments", len(args))
 			}
 			return nil
 		},
@@ -54,14 +55,6 @@ other commands with --rules FILE.`,
 	}
 	cmd.AddCommand(show, check)
 	return cmd
-}
-
-// noArgs rejects positional arguments as a usage error.
-func noArgs(cmd *cobra.Command, args []string) error {
-	if len(args) > 0 {
-		return usagef("%s takes no arguments, got %q", cmd.CommandPath(), args[0])
-	}
-	return nil
 }
 
 func runRulesShow(cmd *cobra.Command, o *rulesOptions) error {

@@ -7,6 +7,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/rules"
 )
 
@@ -68,7 +69,7 @@ func TestRulesCheck(t *testing.T) {
 			if tt.wantErr == "" && err != nil || tt.wantErr != "" && (err == nil || !strings.Contains(err.Error(), tt.wantErr)) {
 				t.Fatalf("err = %v, want %q", err, tt.wantErr)
 			}
-			if isUsage := errors.As(err, new(usageError)); isUsage != tt.usage {
+			if isUsage := errors.As(err, new(cli.UsageError)); isUsage != tt.usage {
 				t.Errorf("usage error = %v, want %v", isUsage, tt.usage)
 			}
 			got := strings.Split(strings.TrimSpace(out), "\n")

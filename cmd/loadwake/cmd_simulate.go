@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/spf13/cobra"
 )
 
@@ -21,7 +22,7 @@ type simulateOptions struct {
 	cfg       sim.Config
 }
 
-func newSimulateCommand(_ *globalOptions) *cobra.Command {
+func newSimulateCommand(_ *cli.Globals) *cobra.Command {
 	o := simulateOptions{cfg: sim.DefaultConfig()}
 	o.start = o.cfg.Start.Format("2006-01")
 	c := &o.cfg
@@ -49,11 +50,11 @@ them to OpenStreetMap.`,
   loadwake simulate --out null-world --null --diverging-pretrend --force`,
 		Args: func(cmd *cobra.Command, args []string) error {
 			if len(args) > 0 {
-				return usagef("%s takes no arguments, got %q", cmd.CommandPath(), args[0])
+				return cli.Usagef("%s takes no arguments, got %q", cmd.CommandPath(), args[0])
 			}
 			return nil
 		},
-		Annotations: map[string]string{annInterrupted: "the files in the folder may be incomplete; rerun the same command with --force"},
+		Annotations: map[string]string{cli.AnnInterrupted: "the files in the folder may be incomplete; rerun the same command with --force"},
 		PreRunE: func(cmd *cobra.Command, _ []string) error {
 			for _, name := range []string{"effect-geometry", "effect-attribute", "effect-new-feature", "effect-deletion"} {
 				o.effectSet = o.effectSet || cmd.Flags().Changed(name)
@@ -90,17 +91,17 @@ them to OpenStreetMap.`,
 
 func runSimulate(cmd *cobra.Command, o *simulateOptions) error {
 	if o.out == "" {
-		return usagef("simulate needs --out DIR")
+		return cli.Usagef("simulate needs --out DIR")
 	}
 	if o.null && o.effectSet {
-		return usagef("--null sets every effect to 1; leave out the --effect-* flags")
+		return cli.Usagef("--null sets every effect to 1; leave out the --effect-* flags")
 	}
 	if o.null {
 		o.cfg.Effects = sim.Effects{Geometry: 1, Attribute: 1, NewFeature: 1, Deletion: 1}
 	}
 	start, err := time.Parse("2006-01", o.start)
 	if err != nil {
-		return usagef("--start %q is not a month like 2019-01", o.start)
+		return cli.Usagef("--start %q is not a month like 2019-01", o.start)
 	}
 	o.cfg.Start = start.UTC()
 	if o.cfg.Treated == 0 && !cmd.Flags().Changed("cohorts") {
@@ -113,7 +114,7 @@ func runSimulate(cmd *cobra.Command, o *simulateOptions) error {
 	tr, err := sim.Generate(cmd.Context(), o.cfg, o.out, o.force)
 	switch {
 	case errors.Is(err, sim.ErrConfig):
-		return usagef("%s", strings.TrimPrefix(err.Error(), "sim: invalid configuration: "))
+		return cli.Usagef("%s", strings.TrimPrefix(err.Error(), "sim: invalid configuration: "))
 	case err != nil:
 		return err
 	}

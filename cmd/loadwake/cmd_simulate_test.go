@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/sim"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 func TestSimulateCommand(t *testing.T) {
@@ -48,8 +49,8 @@ func TestSimulateCommand(t *testing.T) {
 		}
 	}
 	// Second run into the same folder: refused without --force, done with it.
-	if code, _, stderr := execMain(t, nil, "simulate", "--out", dir, "--months", "3", "--treated", "1"); code != exitFailure || !strings.Contains(stderr, "pass --force") {
-		t.Errorf("rerun without --force: exit %d, %q; want %d and a hint to pass --force", code, stderr, exitFailure)
+	if code, _, stderr := execMain(t, nil, "simulate", "--out", dir, "--months", "3", "--treated", "1"); code != cli.ExitFailure || !strings.Contains(stderr, "pass --force") {
+		t.Errorf("rerun without --force: exit %d, %q; want %d and a hint to pass --force", code, stderr, cli.ExitFailure)
 	}
 	if _, err := execRootOut(t, "simulate", "--out", dir, "--months", "3", "--treated", "1", "--force"); err != nil {
 		t.Errorf("rerun with --force: %v", err)
@@ -79,7 +80,7 @@ func TestSimulateBadFlags(t *testing.T) {
 				args = append([]string{"--out", dir}, args...)
 			}
 			_, err := execRootOut(t, append([]string{"simulate"}, args...)...)
-			if !errors.As(err, new(usageError)) {
+			if !errors.As(err, new(cli.UsageError)) {
 				t.Fatalf("err = %v, want a usage error", err)
 			}
 			if !strings.Contains(err.Error(), c.want) {

@@ -10,6 +10,7 @@ import (
 	"time"
 
 	"github.com/dustin/go-humanize"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/layers"
 	"github.com/spf13/cobra"
@@ -20,7 +21,7 @@ type statsOptions struct {
 	json string
 }
 
-func newStatsCommand(g *globalOptions) *cobra.Command {
+func newStatsCommand(g *cli.Globals) *cobra.Command {
 	var o statsOptions
 	cmd := &cobra.Command{
 		Use:   "stats",
@@ -30,12 +31,12 @@ versions, changesets, users, the time range of the edits, the bounding box of
 the nodes and the files ingested. --json FILE writes the same as one JSON
 object (bbox as [west, south, east, north], as in GeoJSON, RFC 7946); with
 --json - the JSON goes to stdout and the table to stderr.`,
-		Args: noArgs,
+		Args: cli.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			return runStats(cmd, g, &o)
 		},
 	}
-	addFileFlag(cmd.Flags(), &o.json, "json", "the totals as JSON")
+	cli.AddFileFlag(cmd.Flags(), &o.json, "json", "the totals as JSON")
 	return cmd
 }
 
@@ -60,8 +61,8 @@ type statsJSON struct {
 	Layers           *layers.Summary     `json:"classification"` // null before classification
 }
 
-func runStats(cmd *cobra.Command, g *globalOptions, o *statsOptions) error {
-	s, err := openStore(g)
+func runStats(cmd *cobra.Command, g *cli.Globals, o *statsOptions) error {
+	s, err := cli.OpenStore(g)
 	if err != nil {
 		return err
 	}
@@ -82,18 +83,18 @@ func runStats(cmd *cobra.Command, g *globalOptions, o *statsOptions) error {
 	if err != nil {
 		return err
 	}
-	outs, err := newOutputs(cmd, o.json)
+	outs, err := cli.NewOutputs(cmd, o.json)
 	if err != nil {
 		return err
 	}
-	out := outs.text
-	printStats(out, g.store, m)
+	out := outs.Text
+	printStats(out, g.Store, m)
 	if sum == nil {
 		fmt.Fprintln(out, "not classified yet: run loadwake classify")
 	} else if err := layers.WriteSummary(out, *sum); err != nil {
 		return err
 	}
-	return outs.write(o.json, func(w io.Writer) error { return printStatsJSON(w, g.store, m, sum) })
+	return outs.Write(o.json, func(w io.Writer) error { return printStatsJSON(w, g.Store, m, sum) })
 }
 
 func printStatsJSON(w io.Writer, store string, m ingest.Meta, sum *layers.Summary) error {

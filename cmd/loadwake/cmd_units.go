@@ -12,6 +12,7 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit/spatial"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 )
 
@@ -20,13 +21,14 @@ var _ spatial.VersionReader = (*ingest.Store)(nil)
 
 // unitsOptions holds the flags of `loadwake units`.
 type unitsOptions struct {
-	units   string // unit specification
-	unitID  string // id property of a GeoJSON unit file
-	at      string // YYYY-MM-DD the boundaries are taken at; empty for the latest
-	geojson string // output file; "-" for stdout
+	units    string // unit specification
+	unitID   string // id property of a GeoJSON unit file
+	unitName string // name property of a GeoJSON unit file
+	at       string // YYYY-MM-DD the boundaries are taken at; empty for the latest
+	geojson  string // output file; "-" for stdout
 }
 
-func newUnitsCommand(g *globalOptions) *cobra.Command {
+func newUnitsCommand(g *cli.Globals) *cobra.Command {
 	var o unitsOptions
 	cmd := &cobra.Command{
 		Use:   "units --units SPEC --geojson FILE",
@@ -46,19 +48,19 @@ id); name= filters by name tag (glob, case-insensitive).
 
 Administrative boundaries are not always the areas an import affects; check
 the units against the community's import guidelines and local knowledge.`,
-		Args: noArgs,
+		Args: cli.NoArgs,
 		RunE: func(cmd *cobra.Command, _ []string) error {
 			if o.units == "" || o.geojson == "" {
-				return usagef("units: --units and --geojson are required")
+				return cli.Usagef("units: --units and --geojson are required")
 			}
 			var at time.Time
 			if o.at != "" {
 				var err error
 				if at, err = time.Parse(time.DateOnly, o.at); err != nil {
-					return usagef("units: --at %q: want YYYY-MM-DD", o.at)
+					return cli.Usagef("units: --at %q: want YYYY-MM-DD", o.at)
 				}
 			}
-			st, err := openStore(g)
+			st, err := cli.OpenStore(g)
 			if err != nil {
 				return err
 			}
@@ -68,6 +70,7 @@ the units against the community's import guidelines and local knowledge.`,
 	}
 	cmd.Flags().StringVar(&o.units, "units", "", `units: "tiles:Z", a GeoJSON file, or "admin:LEVEL[,name=GLOB][,within=NAME]"`)
 	cmd.Flags().StringVar(&o.unitID, "unit-id", "id", "property of a GeoJSON unit file holding each unit's id")
+	cmd.Flags().StringVar(&o.unitName, "unit-name", "name", "property of a GeoJSON unit file holding each unit's name")
 	cmd.Flags().StringVar(&o.at, "at", "", "date (YYYY-MM-DD) admin boundaries are taken at (default: latest)")
 	cmd.Flags().StringVar(&o.geojson, "geojson", "", `output GeoJSON file ("-" for stdout)`)
 	return cmd
@@ -79,7 +82,7 @@ func runUnits(ctx context.Context, st *ingest.Store, o *unitsOptions, at time.Ti
 	if err != nil {
 		return err
 	}
-	uo := spatial.Options{IDProperty: o.unitID, Store: st, At: at}
+	uo := spatial.Options{IDProperty: o.unitID, NameProperty: o.unitName, Store: st, At: at}
 	if stats.HasBBox {
 		uo.Bound = stats.BBox
 	}

@@ -9,6 +9,8 @@ import (
 	"runtime/debug"
 	"strings"
 	"testing"
+
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // TestExitCodes runs command lines as main does and checks the exit code of
@@ -30,33 +32,33 @@ func TestExitCodes(t *testing.T) {
 		prefix string // stderr starts with it
 		todo   string // the second line holds it
 	}{
-		{"version", []string{"version"}, exitOK, "", ""},
-		{"version flag", []string{"--version"}, exitOK, "", ""},
-		{"stats", []string{"--store", store, "stats"}, exitOK, "", ""},
-		{"unknown command", []string{"frobnicate"}, exitUsage, `loadwake: unknown command "frobnicate"`, "loadwake --help"},
-		{"unknown flag", []string{"stats", "--frobnicate"}, exitUsage, "loadwake stats: unknown flag: --frobnicate", "loadwake stats --help"},
-		{"unknown subcommand", []string{"rules", "frobnicate"}, exitUsage, "loadwake rules: ", "loadwake rules --help"},
-		{"missing argument", []string{"ingest"}, exitUsage, "loadwake ingest: ingest needs at least one FILE", "--help"},
-		{"bad flag value", []string{"--store", store, "audit", "--units", "tiles:12", "--draws", "5"}, exitUsage, "loadwake audit: --draws must be at least 99", "--help"},
-		{"import and account", []string{"--store", store, "audit", "--units", "tiles:12", "--import", "imp-1", "--account", "x"}, exitUsage,
+		{"version", []string{"version"}, cli.ExitOK, "", ""},
+		{"version flag", []string{"--version"}, cli.ExitOK, "", ""},
+		{"stats", []string{"--store", store, "stats"}, cli.ExitOK, "", ""},
+		{"unknown command", []string{"frobnicate"}, cli.ExitUsage, `loadwake: unknown command "frobnicate"`, "loadwake --help"},
+		{"unknown flag", []string{"stats", "--frobnicate"}, cli.ExitUsage, "loadwake stats: unknown flag: --frobnicate", "loadwake stats --help"},
+		{"unknown subcommand", []string{"rules", "frobnicate"}, cli.ExitUsage, "loadwake rules: ", "loadwake rules --help"},
+		{"missing argument", []string{"ingest"}, cli.ExitUsage, "loadwake ingest: ingest needs at least one FILE", "--help"},
+		{"bad flag value", []string{"--store", store, "audit", "--units", "tiles:12", "--draws", "5"}, cli.ExitUsage, "loadwake audit: --draws must be at least 99", "--help"},
+		{"import and account", []string{"--store", store, "audit", "--units", "tiles:12", "--import", "imp-1", "--account", "x"}, cli.ExitUsage,
 			"loadwake audit: --import, --account name the import in different ways", "--help"},
-		{"changesets and account", []string{"--store", store, "imports", "--changesets", "ids.txt", "--account", "x"}, exitUsage,
+		{"changesets and account", []string{"--store", store, "imports", "--changesets", "ids.txt", "--account", "x"}, cli.ExitUsage,
 			"loadwake imports: --changesets, --account name the import", "--help"},
-		{"provenance and units", []string{"--store", store, "checklist", "--provenance", "source", "--units", "tiles:12"}, exitUsage,
+		{"provenance and units", []string{"--store", store, "checklist", "--provenance", "source", "--units", "tiles:12"}, cli.ExitUsage,
 			"loadwake checklist: --provenance compares features across the whole store, without units", "--help"},
-		{"estimator window beyond the panel", []string{"--store", store, "report", "--units", "tiles:12", "--out", dir, "--before", "6", "--window-before", "12"}, exitUsage,
+		{"estimator window beyond the panel", []string{"--store", store, "report", "--units", "tiles:12", "--out", dir, "--before", "6", "--window-before", "12"}, cli.ExitUsage,
 			"loadwake report: --window-before 12 is longer than the panel's --before 6", "--help"},
-		{"bad units", []string{"--store", store, "audit", "--units", "tiles:99", "--account", "7168"}, exitFailure, "loadwake audit: ", "check --units"},
-		{"two outputs to stdout", []string{"--store", store, "checklist", "--units", "tiles:12", "--json", "-", "--md", "-"}, exitUsage,
+		{"bad units", []string{"--store", store, "audit", "--units", "tiles:99", "--account", "7168"}, cli.ExitFailure, "loadwake audit: ", "check --units"},
+		{"two outputs to stdout", []string{"--store", store, "checklist", "--units", "tiles:12", "--json", "-", "--md", "-"}, cli.ExitUsage,
 			"loadwake checklist: only one of --json, --md and --csv can be -", "--help"},
-		{"missing input file", []string{"--store", filepath.Join(dir, "new.db"), "ingest", missing}, exitFailure, "loadwake ingest: input file: ", "check the path"},
-		{"folder as input file", []string{"--store", filepath.Join(dir, "new.db"), "ingest", dir}, exitFailure, "loadwake ingest: input file " + dir + ": is a folder", "name the files inside"},
-		{"malformed input file", []string{"--store", filepath.Join(dir, "bad.db"), "ingest", bad}, exitFailure, "loadwake ingest: ", "fix or replace the file"},
-		{"missing panel", []string{"estimate", "--panel", missing, "--outcome", "x"}, exitFailure, "loadwake estimate: panel: ", "check the path"},
-		{"folder as panel", []string{"estimate", "--panel", dir, "--outcome", "x"}, exitFailure, "loadwake estimate: ", "name the files inside"},
-		{"no store", []string{"--store", filepath.Join(dir, "none"), "stats"}, exitFailure, "loadwake stats: no store at", "loadwake ingest FILE"},
-		{"bad rule file", []string{"rules", "check", badRules}, exitFailure, "loadwake rules check: " + badRules + ": ", "loadwake rules check FILE"},
-		{"no such import", []string{"--store", store, "audit", "--units", "tiles:12", "--import", "imp-1"}, exitFailure, "loadwake audit: ", "loadwake imports"},
+		{"missing input file", []string{"--store", filepath.Join(dir, "new.db"), "ingest", missing}, cli.ExitFailure, "loadwake ingest: input file: ", "check the path"},
+		{"folder as input file", []string{"--store", filepath.Join(dir, "new.db"), "ingest", dir}, cli.ExitFailure, "loadwake ingest: input file " + dir + ": is a folder", "name the files inside"},
+		{"malformed input file", []string{"--store", filepath.Join(dir, "bad.db"), "ingest", bad}, cli.ExitFailure, "loadwake ingest: ", "fix or replace the file"},
+		{"missing panel", []string{"estimate", "--panel", missing, "--outcome", "x"}, cli.ExitFailure, "loadwake estimate: panel: ", "check the path"},
+		{"folder as panel", []string{"estimate", "--panel", dir, "--outcome", "x"}, cli.ExitFailure, "loadwake estimate: ", "name the files inside"},
+		{"no store", []string{"--store", filepath.Join(dir, "none"), "stats"}, cli.ExitFailure, "loadwake stats: no store at", "loadwake ingest FILE"},
+		{"bad rule file", []string{"rules", "check", badRules}, cli.ExitFailure, "loadwake rules check: " + badRules + ": ", "loadwake rules check FILE"},
+		{"no such import", []string{"--store", store, "audit", "--units", "tiles:12", "--import", "imp-1"}, cli.ExitFailure, "loadwake audit: ", "loadwake imports"},
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
@@ -97,8 +99,8 @@ func TestInterrupted(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			var out, errb bytes.Buffer
 			code := run(ctx, c.args, noEnv, &out, &errb)
-			if code != exitInterrupted {
-				t.Fatalf("exit %d, want %d; stderr %s", code, exitInterrupted, errb.String())
+			if code != cli.ExitInterrupted {
+				t.Fatalf("exit %d, want %d; stderr %s", code, cli.ExitInterrupted, errb.String())
 			}
 			msg := errb.String()
 			if !strings.HasPrefix(msg, "loadwake "+c.name+": interrupted\n") || !strings.Contains(msg, c.want) || strings.Contains(out.String()+msg, "fix the file") {
@@ -126,8 +128,8 @@ func TestVersionOf(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			if got := versionOf(&c.info); got != c.want {
-				t.Errorf("versionOf = %q, want %q", got, c.want)
+			if got := cli.VersionOf(&c.info); got != c.want {
+				t.Errorf("cli.VersionOf = %q, want %q", got, c.want)
 			}
 		})
 	}
@@ -141,15 +143,15 @@ func TestVersionOf(t *testing.T) {
 // TestStoreFromEnvironment: LOADWAKE_STORE is the default store, --store wins.
 func TestStoreFromEnvironment(t *testing.T) {
 	store := ingestFixture(t, "way_6394949.osm")
-	env := map[string]string{envStore: store}
+	env := map[string]string{cli.EnvStore: store}
 	code, out, stderr := execMain(t, env, "stats", "--json", "-")
 	var got statsJSON
-	if code != exitOK || json.Unmarshal([]byte(out), &got) != nil || got.Store != store || got.Ways != 1 {
-		t.Errorf("stats with %s=%s: exit %d, %+v\n%s", envStore, store, code, got, stderr)
+	if code != cli.ExitOK || json.Unmarshal([]byte(out), &got) != nil || got.Store != store || got.Ways != 1 {
+		t.Errorf("stats with %s=%s: exit %d, %+v\n%s", cli.EnvStore, store, code, got, stderr)
 	}
 	code, _, stderr = execMain(t, env, "--store", filepath.Join(t.TempDir(), "none"), "stats")
-	if code != exitFailure || !strings.Contains(stderr, "no store at") {
-		t.Errorf("--store should override %s: exit %d, %s", envStore, code, stderr)
+	if code != cli.ExitFailure || !strings.Contains(stderr, "no store at") {
+		t.Errorf("--store should override %s: exit %d, %s", cli.EnvStore, code, stderr)
 	}
 }
 
@@ -169,7 +171,7 @@ func TestOutputFlags(t *testing.T) {
 		t.Run(c.name, func(t *testing.T) {
 			args := append([]string{"--store", store}, c.args...)
 			code, out, stderr := execMain(t, nil, append(args, "--json", "-")...)
-			if code != exitOK || !json.Valid([]byte(out)) {
+			if code != cli.ExitOK || !json.Valid([]byte(out)) {
 				t.Fatalf("--json -: exit %d, stdout is not JSON:\n%s\nstderr:\n%s", code, out, stderr)
 			}
 			if stderr == "" {
@@ -178,7 +180,7 @@ func TestOutputFlags(t *testing.T) {
 			file := filepath.Join(dir, c.name+".json")
 			code, text, _ := execMain(t, nil, append(args, "--json", file)...)
 			b, err := os.ReadFile(file)
-			if code != exitOK || err != nil || !bytes.Equal(b, []byte(out)) {
+			if code != cli.ExitOK || err != nil || !bytes.Equal(b, []byte(out)) {
 				t.Errorf("--json FILE: exit %d, %v; file differs from --json - output", code, err)
 			}
 			if !strings.Contains(text, "wrote "+file) {
@@ -199,13 +201,13 @@ func TestCompleteImport(t *testing.T) {
 	for _, cmd := range []string{"audit", "panel", "report", "checklist"} {
 		t.Run(cmd, func(t *testing.T) {
 			code, out, _ := execMain(t, nil, "__complete", "--store", store, cmd, "--rules", tiger, "--import", "")
-			if code != exitOK || !strings.HasPrefix(out, "imp-448153\t") || !strings.Contains(out, "\n:4\n") {
+			if code != cli.ExitOK || !strings.HasPrefix(out, "imp-448153\t") || !strings.Contains(out, "\n:4\n") {
 				t.Errorf("completion of %s --import: exit %d\n%s", cmd, code, out)
 			}
 		})
 	}
 	code, out, _ := execMain(t, nil, "__complete", "--store", filepath.Join(t.TempDir(), "none"), "audit", "--import", "")
-	if code != exitOK || !strings.HasPrefix(out, ":1\n") {
+	if code != cli.ExitOK || !strings.HasPrefix(out, ":1\n") {
 		t.Errorf("completion without a store: exit %d, %q; want the error directive", code, out)
 	}
 }

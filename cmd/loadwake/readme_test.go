@@ -10,6 +10,8 @@ import (
 	"slices"
 	"strings"
 	"testing"
+
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // readmeCommand is one command line of a README code block.
@@ -33,11 +35,12 @@ func readmeCommands(t testing.TB, path, lang string) []readmeCommand {
 	for sc.Scan() {
 		n++
 		text := sc.Text()
+		fence := strings.TrimSpace(text) // blocks inside list items are indented
 		switch {
-		case !in && text == "```"+lang:
+		case !in && fence == "```"+lang:
 			in = true
 			continue
-		case in && text == "```":
+		case in && fence == "```":
 			in = false
 			continue
 		case !in:
@@ -166,7 +169,7 @@ func TestReadmeCommands(t *testing.T) {
 	}
 	cmds := readmeCommands(t, readme, "sh")
 	t.Chdir(t.TempDir())
-	if code, out, stderr := execMain(t, nil, "demo", "--out", "demo-out", "--grid", "4", "--scale", "0.3", "--draws", "99"); code != exitOK {
+	if code, out, stderr := execMain(t, nil, "demo", "--out", "demo-out", "--grid", "4", "--scale", "0.3", "--draws", "99"); code != cli.ExitOK {
 		t.Fatalf("demo: exit %d\n%s%s", code, out, stderr)
 	}
 	var rep struct {
@@ -206,7 +209,7 @@ func TestReadmeCommands(t *testing.T) {
 			args[i] = strings.ReplaceAll(a, readmeImport, rep.Import.ID)
 		}
 		code, out, stderr := execMain(t, env, args...)
-		if code != exitOK {
+		if code != cli.ExitOK {
 			t.Errorf("%s: loadwake %s: exit %d\n%s", where, strings.Join(args, " "), code, stderr)
 			continue
 		}

@@ -1,30 +1,11 @@
 package main
 
 import (
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/spf13/cobra"
 )
 
-// globalOptions holds the flags every command shares. One value is built in
-// main and passed by pointer to each newXCommand.
-type globalOptions struct {
-	store string // directory of the Badger history store
-	quiet bool   // no progress output
-}
-
-// envStore names the environment variable holding the default store.
-const envStore = "LOADWAKE_STORE"
-
-// newGlobalOptions returns the defaults: the store of $LOADWAKE_STORE, read
-// through getenv, or ./loadwake.db.
-func newGlobalOptions(getenv func(string) string) *globalOptions {
-	g := &globalOptions{store: "./loadwake.db"}
-	if s := getenv(envStore); s != "" {
-		g.store = s
-	}
-	return g
-}
-
-func newRootCommand(g *globalOptions) *cobra.Command {
+func newRootCommand(g *cli.Globals) *cobra.Command {
 	root := &cobra.Command{
 		Use:   "loadwake",
 		Short: "Evaluate bulk imports into OpenStreetMap from edit history",
@@ -42,14 +23,14 @@ interrupted.
 
 Its figures are evidence for a community's review, not a verdict: imports follow
 the community's import guidelines and local review.`,
-		Version:       buildVersion(),
+		Version:       cli.BuildVersion(),
 		SilenceUsage:  true,
 		SilenceErrors: true,
 	}
 	root.SetVersionTemplate("loadwake {{.Version}}\n")
-	root.PersistentFlags().StringVar(&g.store, "store", g.store, "`DIR` of the history store ($"+envStore+" when set)")
-	root.PersistentFlags().BoolVarP(&g.quiet, "quiet", "q", false, "no progress output on stderr")
-	root.SetFlagErrorFunc(func(_ *cobra.Command, err error) error { return usageError{msg: err.Error()} })
+	root.PersistentFlags().StringVar(&g.Store, "store", g.Store, "`DIR` of the history store ($"+cli.EnvStore+" when set)")
+	root.PersistentFlags().BoolVarP(&g.Quiet, "quiet", "q", false, "no progress output on stderr")
+	root.SetFlagErrorFunc(func(_ *cobra.Command, err error) error { return cli.UsageError{Msg: err.Error()} })
 
 	root.AddCommand(
 		// commands: one constructor per file, in the order of the job

@@ -8,6 +8,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 	"github.com/loadwake/loadwake/ingest"
 	"github.com/loadwake/loadwake/rules"
 )
@@ -16,7 +17,7 @@ import (
 // and returns what it wrote to stdout and stderr.
 func execRoot(t testing.TB, args ...string) (stdout, stderr string, err error) {
 	t.Helper()
-	root := newRootCommand(newGlobalOptions(noEnv))
+	root := newRootCommand(cli.NewGlobals(noEnv))
 	var out, errb bytes.Buffer
 	root.SetOut(&out)
 	root.SetErr(&errb)

@@ -1,4 +1,4 @@
-package main
+package cli
 
 import (
 	"io"
@@ -16,27 +16,27 @@ import (
 	"github.com/loadwake/loadwake/ingest"
 )
 
-// progress draws the progress of long steps on stderr, one line redrawn in
+// Progress draws the progress of long steps on stderr, one line redrawn in
 // place, when stderr is a terminal and --quiet is off; otherwise it draws
 // nothing. Bars fit the terminal's width: descriptions are shortened, never
 // wrapped.
-type progress struct {
+type Progress struct {
 	w        io.Writer     // nil: silent
 	width    int           // columns of the terminal
 	throttle time.Duration // least time between redraws
 }
 
-// newProgress returns the progress display of cmd's stderr.
-func newProgress(cmd *cobra.Command, g *globalOptions) *progress {
+// NewProgress returns the progress display of cmd's stderr.
+func NewProgress(cmd *cobra.Command, g *Globals) *Progress {
 	f, ok := cmd.ErrOrStderr().(*os.File)
-	if g.quiet || !ok || !term.IsTerminal(int(f.Fd())) {
-		return &progress{}
+	if g.Quiet || !ok || !term.IsTerminal(int(f.Fd())) {
+		return &Progress{}
 	}
 	w, _, err := term.GetSize(int(f.Fd()))
 	if err != nil || w <= 0 {
 		w = 80
 	}
-	return &progress{w: f, width: w, throttle: 100 * time.Millisecond}
+	return &Progress{w: f, width: w, throttle: 100 * time.Millisecond}
 }
 
 // Room for what the library draws besides the description and the bar:
@@ -48,9 +48,15 @@ const (
 	progressNarrow      = 72 // terminals narrower than this get the short form
 )
 
+// Bar returns a bar counting total items with an ETA (silent when stderr is
+// not a terminal); the caller sets, finishes and exits it.
+func (p *Progress) Bar(desc string, total int64) *progressbar.ProgressBar {
+	return p.bar(desc, total, false)
+}
+
 // bar returns a bar counting to total (bytes when isBytes), with an ETA, or a
 // spinner with the elapsed time when total is negative.
-func (p *progress) bar(desc string, total int64, isBytes bool) *progressbar.ProgressBar {
+func (p *Progress) bar(desc string, total int64, isBytes bool) *progressbar.ProgressBar {
 	if p.w == nil {
 		return progressbar.DefaultSilent(total)
 	}
@@ -59,7 +65,7 @@ func (p *progress) bar(desc string, total int64, isBytes bool) *progressbar.Prog
 	if narrow {
 		stats = progressStatsNarrow
 	}
-	desc = fitText(desc, max(8, min(p.width/3, p.width-stats-6)))
+	desc = FitText(desc, max(8, min(p.width/3, p.width-stats-6)))
 	barWidth := min(40, p.width-uniseg.StringWidth(desc)-stats)
 	opts := []progressbar.Option{
 		progressbar.OptionSetWriter(p.w),
@@ -85,9 +91,9 @@ func (p *progress) bar(desc string, total int64, isBytes bool) *progressbar.Prog
 	return progressbar.NewOptions64(total, opts...)
 }
 
-// step shows a spinner with the elapsed time while a step of unknown length
+// Step shows a spinner with the elapsed time while a step of unknown length
 // runs; call the returned function when the step ends.
-func (p *progress) step(desc string) (done func()) {
+func (p *Progress) Step(desc string) (done func()) {
 	if p.w == nil {
 		return func() {}
 	}
@@ -98,8 +104,8 @@ func (p *progress) step(desc string) (done func()) {
 	}
 }
 
-// fitText shortens s to at most n columns, ending it with "…".
-func fitText(s string, n int) string {
+// FitText shortens s to at most n columns, ending it with "…".
+func FitText(s string, n int) string {
 	if uniseg.StringWidth(s) <= n {
 		return s
 	}
@@ -118,15 +124,15 @@ func fitText(s string, n int) string {
 // ingestProgress is an ingest.Progress drawing one bar per file, named by
 // the file's base name, counting compressed bytes read.
 type ingestProgress struct {
-	p   *progress
+	p   *Progress
 	mu  sync.Mutex
 	bar *progressbar.ProgressBar
 }
 
 var _ ingest.Progress = (*ingestProgress)(nil)
 
-// ingest returns the ingest.Progress of this display, nil when silent.
-func (p *progress) ingest() ingest.Progress {
+// Ingest returns the ingest.Progress of this display, nil when silent.
+func (p *Progress) Ingest() ingest.Progress {
 	if p.w == nil {
 		return nil
 	}
@@ -159,11 +165,11 @@ func (ip *ingestProgress) Finish() {
 	}
 }
 
-// classify returns the progress hook of layers.Options counting versions
+// Classify returns the progress hook of layers.Options counting versions
 // classified out of total (all versions in the store; negative when
 // unknown), and the function that clears the bar. Hooks report the versions
 // of each type so far; types come one after another.
-func (p *progress) classify(total int64) (hook func(t osm.Type, n int64), done func()) {
+func (p *Progress) Classify(total int64) (hook func(t osm.Type, n int64), done func()) {
 	if p.w == nil {
 		return nil, func() {}
 	}

@@ -1,4 +1,4 @@
-package main
+package cli
 
 import (
 	"context"
@@ -10,9 +10,9 @@ import (
 	"github.com/loadwake/loadwake/ingest"
 )
 
-// commandLine is the exact command that ran, each argument quoted when it
+// CommandLine is the exact command that ran, each argument quoted when it
 // holds anything a shell would split or expand.
-func commandLine() string {
+func CommandLine() string {
 	args := make([]string, len(os.Args))
 	for i, a := range os.Args {
 		if i == 0 {
@@ -26,9 +26,9 @@ func commandLine() string {
 	return strings.Join(args, " ")
 }
 
-// generator says what makes a report now, from the store st (nil: no store).
-func generator(ctx context.Context, st *ingest.Store, invented bool) audit.Generator {
-	g := audit.Generator{Version: buildVersion(), CommandLine: commandLine(), Generated: time.Now(), Invented: invented}
+// Generator says what makes a report now, from the store st (nil: no store).
+func Generator(ctx context.Context, st *ingest.Store, invented bool) audit.Generator {
+	g := audit.Generator{Version: BuildVersion(), CommandLine: CommandLine(), Generated: time.Now(), Invented: invented}
 	if st != nil {
 		if stats, err := st.Stats(ctx); err == nil {
 			g.DataFirst, g.DataLast = stats.FirstEdit, stats.LastEdit

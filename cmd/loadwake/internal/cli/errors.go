@@ -1,4 +1,4 @@
-package main
+package cli
 
 import (
 	"errors"
@@ -21,32 +21,32 @@ import (
 	"github.com/loadwake/loadwake/rules"
 )
 
-// usageError marks an error in how the command was called (exit code 2).
-type usageError struct{ msg string }
+// UsageError marks an error in how the command was called (exit code 2).
+type UsageError struct{ Msg string }
 
-func (e usageError) Error() string { return e.msg }
+func (e UsageError) Error() string { return e.Msg }
 
-func usagef(format string, args ...any) error {
-	return usageError{msg: fmt.Sprintf(format, args...)}
+func Usagef(format string, args ...any) error {
+	return UsageError{Msg: fmt.Sprintf(format, args...)}
 }
 
-// errNoStore is returned when --store names no folder.
-var errNoStore = errors.New("no store")
+// ErrNoStore is returned when --store names no folder.
+var ErrNoStore = errors.New("no store")
 
-// errIsDir is returned when a file argument names a folder.
-var errIsDir = errors.New("is a folder, not a file")
+// ErrIsDir is returned when a file argument names a folder.
+var ErrIsDir = errors.New("is a folder, not a file")
 
-// annInterrupted is the key of a command's annotation that says what an
+// AnnInterrupted is the key of a command's annotation that says what an
 // interruption leaves behind.
-const annInterrupted = "interrupted"
+const AnnInterrupted = "interrupted"
 
-// interruptedReadOnly is what an interruption leaves behind for the commands
+// InterruptedReadOnly is what an interruption leaves behind for the commands
 // that only read the store.
-const interruptedReadOnly = "the store was only read and is unchanged; files already reported as written are complete, the others were not written; rerun the same command"
+const InterruptedReadOnly = "the store was only read and is unchanged; files already reported as written are complete, the others were not written; rerun the same command"
 
-// errorMessage is what stderr shows for err: a line led by the command's
+// ErrorMessage is what stderr shows for err: a line led by the command's
 // name ("loadwake audit: ..."), then a line saying what to do.
-func errorMessage(cmd *cobra.Command, code int, err error) string {
+func ErrorMessage(cmd *cobra.Command, code int, err error) string {
 	name := "loadwake"
 	if cmd != nil {
 		name = cmd.CommandPath()
@@ -55,16 +55,16 @@ func errorMessage(cmd *cobra.Command, code int, err error) string {
 	msg := strings.TrimPrefix(err.Error(), short+": ")
 	var todo string
 	switch code {
-	case exitInterrupted:
+	case ExitInterrupted:
 		msg = "interrupted"
 		todo = "nothing was changed"
-		if cmd != nil && cmd.Annotations[annInterrupted] != "" {
-			todo = cmd.Annotations[annInterrupted]
+		if cmd != nil && cmd.Annotations[AnnInterrupted] != "" {
+			todo = cmd.Annotations[AnnInterrupted]
 		}
-	case exitUsage:
+	case ExitUsage:
 		todo = fmt.Sprintf("see %q for the flags and arguments", name+" --help")
 	default:
-		todo = hint(err)
+		todo = Hint(err)
 	}
 	if todo == "" {
 		return fmt.Sprintf("%s: %s\n", name, msg)
@@ -83,8 +83,8 @@ type errorHint struct {
 // package's sentinels.
 func errorHints() []errorHint {
 	return []errorHint{
-		{[]error{errNoStore}, "run \"loadwake ingest FILE...\" to make one, or name it with --store DIR (or LOADWAKE_STORE)"},
-		{[]error{errIsDir, syscall.EISDIR}, "name the files inside the folder, not the folder (a shell pattern such as DIR/*.osc.gz works)"},
+		{[]error{ErrNoStore}, "run \"loadwake ingest FILE...\" to make one, or name it with --store DIR (or LOADWAKE_STORE)"},
+		{[]error{ErrIsDir, syscall.EISDIR}, "name the files inside the folder, not the folder (a shell pattern such as DIR/*.osc.gz works)"},
 		{[]error{fs.ErrNotExist}, "check the path: no such file or folder"},
 		{[]error{fs.ErrPermission}, "check the file's permissions"},
 		{[]error{ingest.ErrLocked}, "another loadwake process uses this store: wait until it ends, or pass another --store"},
@@ -96,15 +96,17 @@ func errorHints() []errorHint {
 		{[]error{spatial.ErrUnits}, "check --units: tiles:Z (a lower Z gives fewer, larger tiles), or a GeoJSON file of polygons in longitude/latitude with an id property (--unit-id)"},
 		{[]error{panel.ErrInvalid}, "fix the panel file at the row named above, or name its columns with --unit, --time, --first-treated and --outcome"},
 		{[]error{proposal.ErrInvalid}, "fix the proposal file at the position named above (OSM XML, OsmChange or GeoJSON with tags as properties)"},
+		{[]error{study.ErrAssignment}, "fix the treatment file at the line named above: a header such as unit,start, one row per treated unit with its first treated month (YYYY-MM), ids as in --units"},
+		{[]error{study.ErrAssignment}, "fix the treatment file at the line named above: a header such as unit,start, one row per treated unit with its first treated month (YYYY-MM), ids as in --units"},
 		{[]error{study.ErrStudy}, "the study cannot be built as asked: widen --before/--after, lower --min-intensity, or choose other units"},
 		{[]error{episode.ErrNoImport}, "list the store's imports with \"loadwake imports\", then pass --import ID, --account NAME or --changesets FILE"},
 		{[]error{sim.ErrOutputExists}, "pass --force to replace the files, or choose another --out"},
 	}
 }
 
-// hint says what to do about a data or run error, from the sentinel it
+// Hint says what to do about a data or run error, from the sentinel it
 // wraps; "" when none is known.
-func hint(err error) string {
+func Hint(err error) string {
 	for _, h := range errorHints() {
 		for _, c := range h.causes {
 			if errors.Is(err, c) {

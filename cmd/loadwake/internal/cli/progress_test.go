@@ -1,4 +1,4 @@
-package main
+package cli
 
 import (
 	"bytes"
@@ -35,18 +35,18 @@ func TestProgressFitsWidth(t *testing.T) {
 	for _, width := range []int{40, 60, 80, 120} {
 		t.Run(fmt.Sprintf("%d columns", width), func(t *testing.T) {
 			var buf bytes.Buffer
-			p := &progress{w: &buf, width: width} // no throttle: every update drawn
-			ip := p.ingest()
+			p := &Progress{w: &buf, width: width} // no throttle: every update drawn
+			ip := p.Ingest()
 			ip.Start(path, 14_000_000)
 			ip.Update(6_100_000, 400_000)
 			ip.Update(14_000_000, 800_000)
 			ip.Finish()
-			hook, done := p.classify(300)
+			hook, done := p.Classify(300)
 			hook(osm.TypeNode, 100)
 			hook(osm.TypeNode, 150)
 			hook(osm.TypeWay, 100)
 			done()
-			p.step("audit imp-6143: study and estimates")()
+			p.Step("audit imp-6143: study and estimates")()
 			lines := drawnLines(t, buf.String())
 			if len(lines) < 3 {
 				t.Fatalf("drew %d lines: %q", len(lines), buf.String())
@@ -77,16 +77,16 @@ func TestProgressFitsWidth(t *testing.T) {
 // TestProgressSilentOffTerminal: a display for a stderr that is not a
 // terminal, or with --quiet, draws nothing and hands ingest no progress.
 func TestProgressSilentOffTerminal(t *testing.T) {
-	p := &progress{}
-	if p.ingest() != nil {
+	p := &Progress{}
+	if p.Ingest() != nil {
 		t.Error("ingest progress off a terminal")
 	}
-	hook, done := p.classify(10)
+	hook, done := p.Classify(10)
 	if hook != nil {
 		t.Error("classify hook off a terminal")
 	}
 	done()
-	p.step("x")()
+	p.Step("x")()
 }
 
 func TestFitText(t *testing.T) {
@@ -102,7 +102,7 @@ func TestFitText(t *testing.T) {
 	}
 	for _, c := range cases {
 		t.Run(c.name, func(t *testing.T) {
-			got := fitText(c.in, c.n)
+			got := FitText(c.in, c.n)
 			if got != c.want || uniseg.StringWidth(got) > c.n {
 				t.Errorf("fitText(%q, %d) = %q, want %q", c.in, c.n, got, c.want)
 			}

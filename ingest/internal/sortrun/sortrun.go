@@ -1,4 +1,4 @@
-package ingest
+package sortrun
 
 import (
 	"bufio"
@@ -16,7 +16,7 @@ import (
 	"github.com/loadwake/loadwake/ingest/osmfile"
 )
 
-// A record is one key and value on its way to a bulk write, with where it came
+// A Record is one key and value on its way to a bulk write, with where it came
 // from: seq is its place in the order Ingest read the items (lower is
 // earlier), file the index of its file among Ingest's paths and pos its
 // position there, for conflict reports.
@@ -24,62 +24,69 @@ import (
 // Encoded in a run, a record is: key length (1 byte), key, value length
 // (uvarint), value, then seq, file, pos.Offset, pos.Line, pos.Column and
 // pos.Element as uvarints.
-type record struct {
-	key, val []byte
-	seq      uint64
-	file     int
-	pos      osmfile.Position
+type Record struct {
+	Key, Val []byte
+	Seq      uint64
+	File     int
+	Pos      osmfile.Position
 }
 
-func appendRecord(dst []byte, r *record) []byte {
-	dst = append(dst, byte(len(r.key)))
-	dst = append(dst, r.key...)
-	dst = binary.AppendUvarint(dst, uint64(len(r.val)))
-	dst = append(dst, r.val...)
-	dst = binary.AppendUvarint(dst, r.seq)
-	dst = binary.AppendUvarint(dst, uint64(r.file))
-	dst = binary.AppendUvarint(dst, uint64(r.pos.Offset))
-	dst = binary.AppendUvarint(dst, uint64(r.pos.Line))
-	dst = binary.AppendUvarint(dst, uint64(r.pos.Column))
-	return binary.AppendUvarint(dst, uint64(r.pos.Element))
+func appendRecord(dst []byte, r *Record) []byte {
+	dst = append(dst, byte(len(r.Key)))
+	dst = append(dst, r.Key...)
+	dst = binary.AppendUvarint(dst, uint64(len(r.Val)))
+	dst = append(dst, r.Val...)
+	dst = binary.AppendUvarint(dst, r.Seq)
+	dst = binary.AppendUvarint(dst, uint64(r.File))
+	dst = binary.AppendUvarint(dst, uint64(r.Pos.Offset))
+	dst = binary.AppendUvarint(dst, uint64(r.Pos.Line))
+	dst = binary.AppendUvarint(dst, uint64(r.Pos.Column))
+	return binary.AppendUvarint(dst, uint64(r.Pos.Element))
 }
 
-// errRun marks a spilled run that cannot be read back: the temporary file was
+// ErrCorrupt marks a spilled run that cannot be read back: the temporary file was
 // changed or cut short under the ingest.
-var errRun = errors.New("ingest: corrupt temporary sort run")
+var ErrCorrupt = errors.New("ingest: corrupt temporary sort run")
+
+// RecordOverhead bounds the bytes a record takes in a run besides its key and
+// value.
+const RecordOverhead = 1 + 6*binary.MaxVarintLen64 + binary.MaxVarintLen32
+
+// checkEvery is how many records a merge writes between checks of its context.
+const checkEvery = 1024
 
 // parseRecord reads the record at the start of b into r, whose slices then
 // point into b, and returns its encoded length.
-func parseRecord(b []byte, r *record) (int, error) {
+func parseRecord(b []byte, r *Record) (int, error) {
 	if len(b) < 1 || len(b) < 1+int(b[0]) {
-		return 0, errRun
+		return 0, ErrCorrupt
 	}
 	n := 1 + int(b[0])
-	r.key = b[1:n]
+	r.Key = b[1:n]
 	vl, k := binary.Uvarint(b[n:])
 	if k <= 0 || uint64(len(b)-n-k) < vl {
-		return 0, errRun
+		return 0, ErrCorrupt
 	}
 	n += k
-	r.val = b[n : n+int(vl)]
+	r.Val = b[n : n+int(vl)]
 	n += int(vl)
 	var f [6]uint64
 	for i := range f {
 		v, k := binary.Uvarint(b[n:])
 		if k <= 0 {
-			return 0, errRun
+			return 0, ErrCorrupt
 		}
 		f[i], n = v, n+k
 	}
-	r.seq, r.file = f[0], int(f[1])
-	r.pos = osmfile.Position{Offset: int64(f[2]), Line: int(f[3]), Column: int(f[4]), Element: int64(f[5])}
+	r.Seq, r.File = f[0], int(f[1])
+	r.Pos = osmfile.Position{Offset: int64(f[2]), Line: int(f[3]), Column: int(f[4]), Element: int64(f[5])}
 	return n, nil
 }
 
-// sortBuffer collects records in memory up to a byte budget. sorted stays
+// Buffer collects records in memory up to a byte budget. sorted stays
 // true while the records arrive in key order, which spares the sort for
 // sorted input (a history file is ordered by type, id and version).
-type sortBuffer struct {
+type Buffer struct {
 	data    []byte
 	idx     []uint32 // start offsets in data, in arrival order until sorted
 	sorted  bool
@@ -87,15 +94,23 @@ type sortBuffer struct {
 	scratch []byte
 }
 
-func (b *sortBuffer) reset() {
+// Reset empties the buffer, keeping its memory.
+func (b *Buffer) Reset() {
 	b.data, b.idx, b.sorted, b.lastKey = b.data[:0], b.idx[:0], true, nil
 }
 
-func (b *sortBuffer) len() int { return len(b.idx) }
+// Len is the number of records in the buffer.
+func (b *Buffer) Len() int { return len(b.idx) }
 
-// add appends r; its bytes are copied. budget is the byte size the buffer
+// Size is the number of bytes the buffer's records take.
+func (b *Buffer) Size() int { return len(b.data) }
+
+// Cursor walks the buffer's records; call Sort first.
+func (b *Buffer) Cursor() Cursor { return &memCursor{b: b} }
+
+// Add appends r; its bytes are copied. budget is the byte size the buffer
 // may grow to: it doubles up to that, so a small input allocates little.
-func (b *sortBuffer) add(r *record, budget int) {
+func (b *Buffer) Add(r *Record, budget int) {
 	b.scratch = appendRecord(b.scratch[:0], r)
 	if need := len(b.data) + len(b.scratch); need > cap(b.data) {
 		grown := make([]byte, len(b.data), max(need, min(2*cap(b.data), budget), 1<<20))
@@ -108,20 +123,20 @@ func (b *sortBuffer) add(r *record, budget int) {
 	off := len(b.data)
 	b.data = append(b.data, b.scratch...)
 	b.idx = append(b.idx, uint32(off))
-	key := b.data[off+1 : off+1+len(r.key)]
+	key := b.data[off+1 : off+1+len(r.Key)]
 	if b.sorted && b.lastKey != nil && bytes.Compare(key, b.lastKey) < 0 {
 		b.sorted = false
 	}
 	b.lastKey = key
 }
 
-func (b *sortBuffer) keyAt(off uint32) []byte {
+func (b *Buffer) keyAt(off uint32) []byte {
 	return b.data[off+1 : off+1+uint32(b.data[off])]
 }
 
-// sort orders the records by key, equal keys in arrival order (offsets grow
+// Sort orders the records by key, equal keys in arrival order (offsets grow
 // with arrival).
-func (b *sortBuffer) sort() {
+func (b *Buffer) Sort() {
 	if b.sorted {
 		return
 	}
@@ -137,16 +152,16 @@ func (b *sortBuffer) sort() {
 	b.sorted = true
 }
 
-// spill sorts the records and writes them to a new file in dir.
-func (b *sortBuffer) spill(dir string, n int) (string, error) {
-	b.sort()
+// Spill sorts the records and writes them to a new file in dir.
+func (b *Buffer) Spill(dir string, n int) (string, error) {
+	b.Sort()
 	path := filepath.Join(dir, fmt.Sprintf("run-%05d", n))
 	f, err := os.Create(path)
 	if err != nil {
 		return "", fmt.Errorf("write sort run: %w", err)
 	}
 	w := bufio.NewWriterSize(f, 1<<20)
-	var r record
+	var r Record
 	for _, off := range b.idx {
 		k, err := parseRecord(b.data[off:], &r)
 		if err != nil {
@@ -168,16 +183,16 @@ func (b *sortBuffer) spill(dir string, n int) (string, error) {
 	return path, nil
 }
 
-// mergeRuns merges the sorted runs at paths into one new run at path, keeping
+// MergeFiles merges the sorted runs at paths into one new run at path, keeping
 // every record, and removes the inputs.
-func mergeRuns(ctx context.Context, paths []string, path string) (string, error) {
-	var cursors []cursor
+func MergeFiles(ctx context.Context, paths []string, path string) (string, error) {
+	var cursors []Cursor
 	for _, p := range paths {
-		c, err := openRun(p)
+		c, err := OpenRun(p)
 		if err != nil {
 			return "", err
 		}
-		defer c.close()
+		defer c.Close()
 		cursors = append(cursors, c)
 	}
 	f, err := os.Create(path)
@@ -186,15 +201,15 @@ func mergeRuns(ctx context.Context, paths []string, path string) (string, error)
 	}
 	defer f.Close()
 	w := bufio.NewWriterSize(f, 1<<20)
-	m := newMerger(cursors)
+	m := NewMerger(cursors)
 	var buf []byte
 	for n := 0; ; n++ {
-		if n%scanBatch == 0 {
+		if n%checkEvery == 0 {
 			if err := ctx.Err(); err != nil {
 				return "", err
 			}
 		}
-		r, err := m.next()
+		r, err := m.Next()
 		if err != nil {
 			return "", err
 		}
@@ -218,20 +233,21 @@ func mergeRuns(ctx context.Context, paths []string, path string) (string, error)
 	return path, nil
 }
 
-// A cursor walks one sorted run. rec is valid until the next call of next.
-type cursor interface {
-	next() (bool, error)
-	rec() *record
+// A Cursor walks one sorted run: Next moves to the next record, false at the
+// end; Rec is the current record, valid until the next call of Next.
+type Cursor interface {
+	Next() (bool, error)
+	Rec() *Record
 }
 
-// memCursor walks a sorted sortBuffer.
+// memCursor walks a sorted Buffer.
 type memCursor struct {
-	b *sortBuffer
+	b *Buffer
 	i int
-	r record
+	r Record
 }
 
-func (c *memCursor) next() (bool, error) {
+func (c *memCursor) Next() (bool, error) {
 	if c.i >= len(c.b.idx) {
 		return false, nil
 	}
@@ -241,26 +257,27 @@ func (c *memCursor) next() (bool, error) {
 	return err == nil, err
 }
 
-func (c *memCursor) rec() *record { return &c.r }
+func (c *memCursor) Rec() *Record { return &c.r }
 
-// fileCursor reads a spilled run.
-type fileCursor struct {
+// FileCursor reads a spilled run.
+type FileCursor struct {
 	f    *os.File
 	br   *bufio.Reader
 	path string
 	buf  []byte
-	r    record
+	r    Record
 }
 
-func openRun(path string) (*fileCursor, error) {
+// OpenRun opens the spilled run at path; the caller closes it.
+func OpenRun(path string) (*FileCursor, error) {
 	f, err := os.Open(path)
 	if err != nil {
 		return nil, fmt.Errorf("read sort run: %w", err)
 	}
-	return &fileCursor{f: f, br: bufio.NewReaderSize(f, 256<<10), path: path}, nil
+	return &FileCursor{f: f, br: bufio.NewReaderSize(f, 256<<10), path: path}, nil
 }
 
-func (c *fileCursor) next() (bool, error) {
+func (c *FileCursor) Next() (bool, error) {
 	kl, err := c.br.ReadByte()
 	if err == io.EOF {
 		return false, nil
@@ -271,22 +288,22 @@ func (c *fileCursor) next() (bool, error) {
 	c.buf = append(c.buf[:0], kl)
 	c.buf = slices.Grow(c.buf, int(kl))[:1+int(kl)]
 	if _, err := io.ReadFull(c.br, c.buf[1:]); err != nil {
-		return false, fmt.Errorf("read sort run %s: %w: %w", c.path, errRun, err)
+		return false, fmt.Errorf("read sort run %s: %w: %w", c.path, ErrCorrupt, err)
 	}
 	vl, err := binary.ReadUvarint(c.br)
 	if err != nil || vl > 1<<30 {
-		return false, fmt.Errorf("read sort run %s: %w", c.path, errRun)
+		return false, fmt.Errorf("read sort run %s: %w", c.path, ErrCorrupt)
 	}
 	c.buf = binary.AppendUvarint(c.buf, vl)
 	start := len(c.buf)
 	c.buf = slices.Grow(c.buf, int(vl))[:start+int(vl)]
 	if _, err := io.ReadFull(c.br, c.buf[start:]); err != nil {
-		return false, fmt.Errorf("read sort run %s: %w: %w", c.path, errRun, err)
+		return false, fmt.Errorf("read sort run %s: %w: %w", c.path, ErrCorrupt, err)
 	}
 	for range 6 {
 		v, err := binary.ReadUvarint(c.br)
 		if err != nil {
-			return false, fmt.Errorf("read sort run %s: %w", c.path, errRun)
+			return false, fmt.Errorf("read sort run %s: %w", c.path, ErrCorrupt)
 		}
 		c.buf = binary.AppendUvarint(c.buf, v)
 	}
@@ -296,23 +313,24 @@ func (c *fileCursor) next() (bool, error) {
 	return true, nil
 }
 
-func (c *fileCursor) rec() *record { return &c.r }
+func (c *FileCursor) Rec() *Record { return &c.r }
 
-func (c *fileCursor) close() error { return c.f.Close() }
+// Close closes the run's file.
+func (c *FileCursor) Close() error { return c.f.Close() }
 
 // mergeHeap orders cursors by their current record: key, then seq.
-type mergeHeap []cursor
+type mergeHeap []Cursor
 
 func (h mergeHeap) Len() int { return len(h) }
 func (h mergeHeap) Less(i, j int) bool {
-	a, b := h[i].rec(), h[j].rec()
-	if c := bytes.Compare(a.key, b.key); c != 0 {
+	a, b := h[i].Rec(), h[j].Rec()
+	if c := bytes.Compare(a.Key, b.Key); c != 0 {
 		return c < 0
 	}
-	return a.seq < b.seq
+	return a.Seq < b.Seq
 }
 func (h mergeHeap) Swap(i, j int) { h[i], h[j] = h[j], h[i] }
-func (h *mergeHeap) Push(x any)   { *h = append(*h, x.(cursor)) }
+func (h *mergeHeap) Push(x any)   { *h = append(*h, x.(Cursor)) }
 func (h *mergeHeap) Pop() any {
 	old := *h
 	c := old[len(old)-1]
@@ -320,24 +338,25 @@ func (h *mergeHeap) Pop() any {
 	return c
 }
 
-// merger yields the records of several sorted runs in (key, seq) order.
-type merger struct {
+// Merger yields the records of several sorted runs in (key, seq) order.
+type Merger struct {
 	h       mergeHeap
 	started bool
 }
 
-func newMerger(cursors []cursor) *merger {
-	return &merger{h: cursors}
+// NewMerger merges the runs of cursors.
+func NewMerger(cursors []Cursor) *Merger {
+	return &Merger{h: cursors}
 }
 
-// next returns the next record, valid until the following call, or nil at
+// Next returns the next record, valid until the following call, or nil at
 // the end.
-func (m *merger) next() (*record, error) {
+func (m *Merger) Next() (*Record, error) {
 	if !m.started {
 		m.started = true
 		live := m.h[:0]
 		for _, c := range m.h {
-			ok, err := c.next()
+			ok, err := c.Next()
 			if err != nil {
 				return nil, err
 			}
@@ -348,7 +367,7 @@ func (m *merger) next() (*record, error) {
 		m.h = live
 		heap.Init(&m.h)
 	} else if len(m.h) > 0 {
-		ok, err := m.h[0].next()
+		ok, err := m.h[0].Next()
 		switch {
 		case err != nil:
 			return nil, err
@@ -361,5 +380,5 @@ func (m *merger) next() (*record, error) {
 	if len(m.h) == 0 {
 		return nil, nil
 	}
-	return m.h[0].rec(), nil
+	return m.h[0].Rec(), nil
 }

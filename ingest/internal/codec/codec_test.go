@@ -1,4 +1,4 @@
-package ingest
+package codec
 
 import (
 	"bytes"
@@ -35,11 +35,11 @@ func TestVersionRoundTrip(t *testing.T) {
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
 			key := keyOf(tc.obj)
-			val, err := appendVersionValue(nil, tc.obj)
+			val, err := AppendVersionValue(nil, tc.obj)
 			if err != nil {
 				t.Fatal(err)
 			}
-			got, err := decodeVersion(key, val)
+			got, err := DecodeVersion(key, val)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -49,7 +49,7 @@ func TestVersionRoundTrip(t *testing.T) {
 			}
 			// Every truncation must give an error, never a panic.
 			for i := range len(val) {
-				if _, err := decodeVersion(key, val[:i]); err == nil {
+				if _, err := DecodeVersion(key, val[:i]); err == nil {
 					t.Errorf("truncated to %d of %d bytes: no error", i, len(val))
 				}
 			}
@@ -61,11 +61,11 @@ func TestVersionRoundTrip(t *testing.T) {
 func keyOf(o osm.Object) []byte {
 	switch o := o.(type) {
 	case *osm.Node:
-		return appendVersionKey(nil, typeNode, int64(o.ID), o.Version)
+		return AppendVersionKey(nil, TypeNode, int64(o.ID), o.Version)
 	case *osm.Way:
-		return appendVersionKey(nil, typeWay, int64(o.ID), o.Version)
+		return AppendVersionKey(nil, TypeWay, int64(o.ID), o.Version)
 	case *osm.Relation:
-		return appendVersionKey(nil, typeRelation, int64(o.ID), o.Version)
+		return AppendVersionKey(nil, TypeRelation, int64(o.ID), o.Version)
 	}
 	return nil
 }
@@ -114,9 +114,9 @@ func TestChangesetRoundTrip(t *testing.T) {
 	}
 	for _, tc := range cases {
 		t.Run(tc.name, func(t *testing.T) {
-			key := changesetKey(int64(tc.cs.ID))
-			val := appendChangesetValue(nil, tc.cs)
-			got, err := decodeChangeset(key, val)
+			key := ChangesetKey(int64(tc.cs.ID))
+			val := AppendChangesetValue(nil, tc.cs)
+			got, err := DecodeChangeset(key, val)
 			if err != nil {
 				t.Fatal(err)
 			}
@@ -124,7 +124,7 @@ func TestChangesetRoundTrip(t *testing.T) {
 				t.Errorf("round trip:\n got %#v\nwant %#v", got, tc.cs)
 			}
 			for i := range len(val) {
-				if _, err := decodeChangeset(key, val[:i]); err == nil {
+				if _, err := DecodeChangeset(key, val[:i]); err == nil {
 					t.Errorf("truncated to %d of %d bytes: no error", i, len(val))
 				}
 			}
@@ -141,22 +141,22 @@ func TestVersionKeyOrder(t *testing.T) {
 	want := []kv{{-9, 1}, {-1, 2}, {0, 1}, {1, 1}, {1, 2}, {1, 10}, {1, 256}, {2, 1}, {1 << 40, 1}}
 	keys := make([][]byte, len(want))
 	for i, w := range want {
-		keys[len(want)-1-i] = appendVersionKey(nil, typeNode, w.id, w.ver)
+		keys[len(want)-1-i] = AppendVersionKey(nil, TypeNode, w.id, w.ver)
 	}
 	slices.SortFunc(keys, bytes.Compare)
 	for i, k := range keys {
-		tb, id, ver, ok := parseVersionKey(k)
-		if !ok || tb != typeNode || id != want[i].id || ver != want[i].ver {
+		tb, id, ver, ok := ParseVersionKey(k)
+		if !ok || tb != TypeNode || id != want[i].id || ver != want[i].ver {
 			t.Errorf("key %d = %c/%d v%d, want n/%d v%d", i, tb, id, ver, want[i].id, want[i].ver)
 		}
 	}
-	if p := objectPrefix(typeNode, 1); !bytes.HasPrefix(appendVersionKey(nil, typeNode, 1, 7), p) {
+	if p := ObjectPrefix(TypeNode, 1); !bytes.HasPrefix(AppendVersionKey(nil, TypeNode, 1, 7), p) {
 		t.Error("object prefix is not a prefix of its version keys")
 	}
 }
 
 func TestDecodeCorruptValue(t *testing.T) {
-	key := appendVersionKey(nil, typeWay, 1, 1)
+	key := AppendVersionKey(nil, TypeWay, 1, 1)
 	cases := map[string][]byte{
 		"empty":           {},
 		"future encoding": {2, 1, 0, 0, 0, 0, 0, 0},
@@ -166,7 +166,7 @@ func TestDecodeCorruptValue(t *testing.T) {
 	}
 	for name, val := range cases {
 		t.Run(name, func(t *testing.T) {
-			if _, err := decodeVersion(key, val); err == nil {
+			if _, err := DecodeVersion(key, val); err == nil {
 				t.Error("no error")
 			}
 		})

@@ -1,4 +1,4 @@
-package ingest
+package codec
 
 import (
 	"encoding/binary"
@@ -12,17 +12,17 @@ import (
 
 // Key prefixes of the store (see doc.go for the full layout).
 const (
-	prefixVersion   = 'v'
-	prefixChangeset = 'c'
-	prefixMeta      = 'm'
-	prefixDerived   = 'd'
+	PrefixVersion   = 'v'
+	PrefixChangeset = 'c'
+	PrefixMeta      = 'm'
+	PrefixDerived   = 'd'
 )
 
 // Type bytes in version keys.
 const (
-	typeNode     = 'n'
-	typeWay      = 'w'
-	typeRelation = 'r'
+	TypeNode     = 'n'
+	TypeWay      = 'w'
+	TypeRelation = 'r'
 )
 
 // encodingVersion is the first byte of every version and changeset value.
@@ -30,83 +30,83 @@ const encodingVersion = 1
 
 // Lengths of the fixed-size keys.
 const (
-	versionKeyLen   = 1 + 1 + 8 + 4
-	objectPrefixLen = 1 + 1 + 8
-	changesetKeyLen = 1 + 8
+	VersionKeyLen   = 1 + 1 + 8 + 4
+	ObjectPrefixLen = 1 + 1 + 8
+	ChangesetKeyLen = 1 + 8
 )
 
-// errValue marks a stored value that cannot be decoded.
-var errValue = errors.New("ingest: corrupt stored value")
+// ErrValue marks a stored value that cannot be decoded.
+var ErrValue = errors.New("ingest: corrupt stored value")
 
-// typeByte returns the key byte of an OSM element type.
-func typeByte(t osm.Type) (byte, error) {
+// TypeByte returns the key byte of an OSM element type.
+func TypeByte(t osm.Type) (byte, error) {
 	switch t {
 	case osm.TypeNode:
-		return typeNode, nil
+		return TypeNode, nil
 	case osm.TypeWay:
-		return typeWay, nil
+		return TypeWay, nil
 	case osm.TypeRelation:
-		return typeRelation, nil
+		return TypeRelation, nil
 	}
 	return 0, fmt.Errorf("ingest: no versions of type %q are stored", t)
 }
 
-// typeOfByte is the inverse of typeByte.
-func typeOfByte(b byte) osm.Type {
+// TypeOfByte is the inverse of typeByte.
+func TypeOfByte(b byte) osm.Type {
 	switch b {
-	case typeNode:
+	case TypeNode:
 		return osm.TypeNode
-	case typeWay:
+	case TypeWay:
 		return osm.TypeWay
-	case typeRelation:
+	case TypeRelation:
 		return osm.TypeRelation
 	}
 	return ""
 }
 
-// putID writes id big-endian with the sign bit flipped, so that negative ids
+// PutID writes id big-endian with the sign bit flipped, so that negative ids
 // (as in unsubmitted edits) sort before positive ones.
-func putID(b []byte, id int64) { binary.BigEndian.PutUint64(b, uint64(id)^(1<<63)) }
+func PutID(b []byte, id int64) { binary.BigEndian.PutUint64(b, uint64(id)^(1<<63)) }
 
-// getID is the inverse of putID.
-func getID(b []byte) int64 { return int64(binary.BigEndian.Uint64(b) ^ (1 << 63)) }
+// GetID is the inverse of PutID.
+func GetID(b []byte) int64 { return int64(binary.BigEndian.Uint64(b) ^ (1 << 63)) }
 
-// appendVersionKey appends the key v|type|id|version to dst.
-func appendVersionKey(dst []byte, tb byte, id int64, version int) []byte {
-	var k [versionKeyLen]byte
-	k[0] = prefixVersion
+// AppendVersionKey appends the key v|type|id|version to dst.
+func AppendVersionKey(dst []byte, tb byte, id int64, version int) []byte {
+	var k [VersionKeyLen]byte
+	k[0] = PrefixVersion
 	k[1] = tb
-	putID(k[2:10], id)
+	PutID(k[2:10], id)
 	binary.BigEndian.PutUint32(k[10:14], uint32(version))
 	return append(dst, k[:]...)
 }
 
-// objectPrefix returns v|type|id, the prefix of all versions of one object.
-func objectPrefix(tb byte, id int64) []byte {
-	k := make([]byte, objectPrefixLen)
-	k[0] = prefixVersion
+// ObjectPrefix returns v|type|id, the prefix of all versions of one object.
+func ObjectPrefix(tb byte, id int64) []byte {
+	k := make([]byte, ObjectPrefixLen)
+	k[0] = PrefixVersion
 	k[1] = tb
-	putID(k[2:10], id)
+	PutID(k[2:10], id)
 	return k
 }
 
-// changesetKey returns c|id.
-func changesetKey(id int64) []byte {
-	k := make([]byte, changesetKeyLen)
-	k[0] = prefixChangeset
-	putID(k[1:], id)
+// ChangesetKey returns c|id.
+func ChangesetKey(id int64) []byte {
+	k := make([]byte, ChangesetKeyLen)
+	k[0] = PrefixChangeset
+	PutID(k[1:], id)
 	return k
 }
 
-// metaKey returns m|name.
-func metaKey(name string) []byte { return append([]byte{prefixMeta}, name...) }
+// MetaKey returns m|name.
+func MetaKey(name string) []byte { return append([]byte{PrefixMeta}, name...) }
 
-// parseVersionKey splits a version key; ok is false when k is not one.
-func parseVersionKey(k []byte) (tb byte, id int64, version int, ok bool) {
-	if len(k) != versionKeyLen || k[0] != prefixVersion {
+// ParseVersionKey splits a version key; ok is false when k is not one.
+func ParseVersionKey(k []byte) (tb byte, id int64, version int, ok bool) {
+	if len(k) != VersionKeyLen || k[0] != PrefixVersion {
 		return 0, 0, 0, false
 	}
-	return k[1], getID(k[2:10]), int(binary.BigEndian.Uint32(k[10:14])), true
+	return k[1], GetID(k[2:10]), int(binary.BigEndian.Uint32(k[10:14])), true
 }
 
 // coordinate conversion: OSM stores coordinates with 7 decimals (common practice,
@@ -154,9 +154,9 @@ const (
 	flagVisible = 1 << 0
 )
 
-// appendVersionValue appends the encoding of one object version to dst.
+// AppendVersionValue appends the encoding of one object version to dst.
 // The layout is documented in doc.go.
-func appendVersionValue(dst []byte, o osm.Object) ([]byte, error) {
+func AppendVersionValue(dst []byte, o osm.Object) ([]byte, error) {
 	var (
 		visible bool
 		ts      time.Time
@@ -200,7 +200,7 @@ func appendVersionValue(dst []byte, o osm.Object) ([]byte, error) {
 		dst = appendUvarint(dst, uint64(len(o.Members)))
 		var prev int64
 		for _, m := range o.Members {
-			tb, err := typeByte(m.Type)
+			tb, err := TypeByte(m.Type)
 			if err != nil {
 				return dst, fmt.Errorf("ingest: relation/%d v%d member: %w", o.ID, o.Version, err)
 			}
@@ -221,7 +221,7 @@ type decoder struct {
 
 func (d *decoder) fail() {
 	if d.err == nil {
-		d.err = errValue
+		d.err = ErrValue
 	}
 	d.b = nil
 }
@@ -291,7 +291,7 @@ type versionHeader struct {
 func (d *decoder) header() versionHeader {
 	if v := d.byte(); v != encodingVersion {
 		if d.err == nil {
-			d.err = fmt.Errorf("%w: encoding version %d, want %d", errValue, v, encodingVersion)
+			d.err = fmt.Errorf("%w: encoding version %d, want %d", ErrValue, v, encodingVersion)
 		}
 		return versionHeader{}
 	}
@@ -305,23 +305,23 @@ func (d *decoder) header() versionHeader {
 	}
 }
 
-// decodeVersion rebuilds a freshly allocated object from its key and value.
-func decodeVersion(key, val []byte) (osm.Object, error) {
-	tb, id, version, ok := parseVersionKey(key)
+// DecodeVersion rebuilds a freshly allocated object from its key and value.
+func DecodeVersion(key, val []byte) (osm.Object, error) {
+	tb, id, version, ok := ParseVersionKey(key)
 	if !ok {
-		return nil, fmt.Errorf("%w: bad version key %x", errValue, key)
+		return nil, fmt.Errorf("%w: bad version key %x", ErrValue, key)
 	}
 	d := decoder{b: val}
 	h := d.header()
 	tags := d.tags()
 	var o osm.Object
 	switch tb {
-	case typeNode:
+	case TypeNode:
 		lat := fromFixed(d.varint())
 		lon := fromFixed(d.varint())
 		o = &osm.Node{ID: osm.NodeID(id), Version: version, Visible: h.visible, Timestamp: h.ts,
 			ChangesetID: h.cs, UserID: h.uid, User: h.user, Tags: tags, Lat: lat, Lon: lon}
-	case typeWay:
+	case TypeWay:
 		n := d.count(1)
 		var nodes osm.WayNodes
 		if n > 0 {
@@ -334,14 +334,14 @@ func decodeVersion(key, val []byte) (osm.Object, error) {
 		}
 		o = &osm.Way{ID: osm.WayID(id), Version: version, Visible: h.visible, Timestamp: h.ts,
 			ChangesetID: h.cs, UserID: h.uid, User: h.user, Tags: tags, Nodes: nodes}
-	case typeRelation:
+	case TypeRelation:
 		n := d.count(3)
 		var members osm.Members
 		if n > 0 {
 			members = make(osm.Members, n)
 			var prev int64
 			for i := range members {
-				members[i].Type = typeOfByte(d.byte())
+				members[i].Type = TypeOfByte(d.byte())
 				prev += d.varint()
 				members[i].Ref = prev
 				members[i].Role = d.string()
@@ -353,16 +353,16 @@ func decodeVersion(key, val []byte) (osm.Object, error) {
 		o = &osm.Relation{ID: osm.RelationID(id), Version: version, Visible: h.visible, Timestamp: h.ts,
 			ChangesetID: h.cs, UserID: h.uid, User: h.user, Tags: tags, Members: members}
 	default:
-		return nil, fmt.Errorf("%w: unknown type byte %q", errValue, tb)
+		return nil, fmt.Errorf("%w: unknown type byte %q", ErrValue, tb)
 	}
 	if d.err != nil {
-		return nil, fmt.Errorf("%s/%d v%d: %w", typeOfByte(tb), id, version, d.err)
+		return nil, fmt.Errorf("%s/%d v%d: %w", TypeOfByte(tb), id, version, d.err)
 	}
 	return o, nil
 }
 
-// decodeNodePosition reads only what NodeAt needs from a node value.
-func decodeNodePosition(val []byte) (ts time.Time, visible bool, lat, lon float64, err error) {
+// DecodeNodePosition reads only what NodeAt needs from a node value.
+func DecodeNodePosition(val []byte) (ts time.Time, visible bool, lat, lon float64, err error) {
 	d := decoder{b: val}
 	h := d.header()
 	// skip the tags
@@ -376,17 +376,18 @@ func decodeNodePosition(val []byte) (ts time.Time, visible bool, lat, lon float6
 	return h.ts, h.visible, lat, lon, d.err
 }
 
-// Flags in the second byte of a changeset value.
+// Flags in the second byte of a changeset value: FlagOpen marks an open
+// changeset (a closed record replaces an open one).
 const (
-	flagOpen    = 1 << 0
+	FlagOpen    = 1 << 0
 	flagHasBBox = 1 << 1
 )
 
-// appendChangesetValue appends the encoding of a changeset record to dst.
-func appendChangesetValue(dst []byte, c *osm.Changeset) []byte {
+// AppendChangesetValue appends the encoding of a changeset record to dst.
+func AppendChangesetValue(dst []byte, c *osm.Changeset) []byte {
 	var flags byte
 	if c.Open {
-		flags |= flagOpen
+		flags |= FlagOpen
 	}
 	hasBBox := c.MinLat != 0 || c.MaxLat != 0 || c.MinLon != 0 || c.MaxLon != 0
 	if hasBBox {
@@ -407,20 +408,20 @@ func appendChangesetValue(dst []byte, c *osm.Changeset) []byte {
 	return appendTags(dst, c.Tags)
 }
 
-// decodeChangeset rebuilds a freshly allocated changeset from key and value.
-func decodeChangeset(key, val []byte) (*osm.Changeset, error) {
-	if len(key) != changesetKeyLen || key[0] != prefixChangeset {
-		return nil, fmt.Errorf("%w: bad changeset key %x", errValue, key)
+// DecodeChangeset rebuilds a freshly allocated changeset from key and value.
+func DecodeChangeset(key, val []byte) (*osm.Changeset, error) {
+	if len(key) != ChangesetKeyLen || key[0] != PrefixChangeset {
+		return nil, fmt.Errorf("%w: bad changeset key %x", ErrValue, key)
 	}
-	id := getID(key[1:])
+	id := GetID(key[1:])
 	d := decoder{b: val}
 	if v := d.byte(); v != encodingVersion {
-		return nil, fmt.Errorf("changeset/%d: %w: encoding version %d", id, errValue, v)
+		return nil, fmt.Errorf("changeset/%d: %w: encoding version %d", id, ErrValue, v)
 	}
 	flags := d.byte()
 	c := &osm.Changeset{
 		ID:           osm.ChangesetID(id),
-		Open:         flags&flagOpen != 0,
+		Open:         flags&FlagOpen != 0,
 		CreatedAt:    timeOrZero(d.varint()),
 		ClosedAt:     timeOrZero(d.varint()),
 		ChangesCount: int(d.uvarint()),
@@ -448,44 +449,44 @@ func (d *decoder) rawBytes() []byte {
 	return b
 }
 
-// versionSummary is what the totals need from a stored version value.
-type versionSummary struct {
-	visible  bool
-	ts       int64 // Unix seconds, 0 for none
-	uid      osm.UserID
-	user     []byte // points into the value
-	lat, lon float64
+// VersionSummary is what the totals need from a stored version value.
+type VersionSummary struct {
+	Visible  bool
+	TS       int64 // Unix seconds, 0 for none
+	UID      osm.UserID
+	User     []byte // points into the value
+	Lat, Lon float64
 }
 
-// summarizeVersion reads the header of a version value of type tb and, for a
+// SummarizeVersion reads the header of a version value of type tb and, for a
 // node, its position, without allocating.
-func summarizeVersion(tb byte, val []byte) (versionSummary, error) {
+func SummarizeVersion(tb byte, val []byte) (VersionSummary, error) {
 	d := decoder{b: val}
 	if v := d.byte(); v != encodingVersion {
-		return versionSummary{}, fmt.Errorf("%w: encoding version %d, want %d", errValue, v, encodingVersion)
+		return VersionSummary{}, fmt.Errorf("%w: encoding version %d, want %d", ErrValue, v, encodingVersion)
 	}
-	var s versionSummary
-	s.visible = d.byte()&flagVisible != 0
-	s.ts = d.varint()
+	var s VersionSummary
+	s.Visible = d.byte()&flagVisible != 0
+	s.TS = d.varint()
 	d.varint() // changeset
-	s.uid = osm.UserID(d.varint())
-	s.user = d.rawBytes()
-	if tb == typeNode {
+	s.UID = osm.UserID(d.varint())
+	s.User = d.rawBytes()
+	if tb == TypeNode {
 		n := d.count(2)
 		for range 2 * n {
 			d.rawBytes()
 		}
-		s.lat = fromFixed(d.varint())
-		s.lon = fromFixed(d.varint())
+		s.Lat = fromFixed(d.varint())
+		s.Lon = fromFixed(d.varint())
 	}
 	return s, d.err
 }
 
-// summarizeChangeset reads the uid and user name of a changeset value.
-func summarizeChangeset(val []byte) (osm.UserID, []byte, error) {
+// SummarizeChangeset reads the uid and user name of a changeset value.
+func SummarizeChangeset(val []byte) (osm.UserID, []byte, error) {
 	d := decoder{b: val}
 	if v := d.byte(); v != encodingVersion {
-		return 0, nil, fmt.Errorf("%w: encoding version %d, want %d", errValue, v, encodingVersion)
+		return 0, nil, fmt.Errorf("%w: encoding version %d, want %d", ErrValue, v, encodingVersion)
 	}
 	d.byte()    // flags
 	d.varint()  // created_at
