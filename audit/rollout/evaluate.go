@@ -2,14 +2,23 @@ package rollout
 
 import (
 	"context"
+	"encoding/csv"
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io"
 	"math"
 	"os"
 	"slices"
 	"strings"
 	"time"
+
+	"github.com/paulmach/osm"
+
+	"github.com/loadwake/loadwake/audit/did"
+	"github.com/loadwake/loadwake/audit/panel"
+	"github.com/loadwake/loadwake/audit/power"
+	"github.com/loadwake/loadwake/layers"
 )
 
 // ReadPlan reads a plan written by WriteJSON. A file of another schema, or
@@ -190,4 +199,125 @@ func (pl *Plan) Deviations(loaded map[string]string) []Deviation {
 
 func sortDeviations(d []Deviation) {
 	slices.SortStableFunc(d, func(a, b Deviation) int { return strings.Compare(a.Unit, b.Unit) })
+}
+
+// WriteTreatmentCSV writes the plan's treatment in the form `audit
+// --treatment` reads: a header unit,start and one row per unit of the
+// treated waves with its wave's first month. The held-back last wave is left
+// out: it is the comparison.
+func (pl *Plan) WriteTreatmentCSV(w io.Writer) error {
+	cw := csv.NewWriter(w)
+	cw.Write([]string{"unit", "start"})
+	for _, u := range pl.Units {
+		if u.Wave < pl.Waves {
+			cw.Write([]string{u.ID, u.Start})
+		}
+	}
+	cw.Flush()
+	if err := cw.Error(); err != nil {
+		return fmt.Errorf("rollout: write treatment CSV: %w", err)
+	}
+	return nil
+}
+
+// RIResult is the randomization-inference test of the headline on the
+// evaluation panel: Observed is the headline's log ratio b under the plan's
+// assignment (all units weighted 1), P the share of re-drawn assignments
+// with |b| at least as large (RandomizationP).
+type RIResult struct {
+	Outcome  string  `json:"outcome"`
+	Observed float64 `json:"log_ratio"`
+	Relative float64 `json:"relative_effect"`
+	P        float64 `json:"p_value"`
+	Draws    int     `json:"draws"`
+	Units    int     `json:"units"`
+	Method   string  `json:"method"`
+}
+
+// RandomizationEffect tests the headline on outcome of the evaluation panel
+// p by re-drawing the plan's assignment: for each assignment the panel's
+// plan units are treated from their wave's first month (the last wave not
+// treated), every unit weighted 1, and the headline's log ratio is the
+// statistic. Units of p not in the plan are left out, and plan units the
+// study excluded (edited by another import) are left out of every
+// assignment's panel alike.
+func (pl *Plan) RandomizationEffect(ctx context.Context, p *panel.Panel, outcome string, draws int, opts did.Options) (*RIResult, error) {
+	o := slices.Index(p.Outcomes, outcome)
+	if o < 0 {
+		return nil, fmt.Errorf("%w: the evaluation panel has no outcome %q", ErrPlan, outcome)
+	}
+	row := map[string]int{}
+	for i, u := range p.Units {
+		row[u.ID] = i
+	}
+	waveMonth := make([]int, pl.Waves+1)
+	for _, u := range pl.Units {
+		t, _ := time.Parse("2006-01", u.Start)
+		waveMonth[u.Wave] = p.MonthIndex(t)
+	}
+	sub := &panel.Panel{Start: p.Start, Months: p.Months, Outcomes: []string{outcome}, Y: [][]float64{nil}}
+	var keep []int // plan unit index of each sub unit
+	for k, u := range pl.Units {
+		if i, ok := row[u.ID]; ok {
+			keep = append(keep, k)
+			sub.Units = append(sub.Units, panel.Unit{ID: u.ID, Weight: 1})
+			sub.Y[0] = append(sub.Y[0], p.Y[o][i*p.Months:(i+1)*p.Months]...)
+		}
+	}
+	if len(keep) < pl.Waves {
+		return nil, fmt.Errorf("%w: only %d of the plan's %d units are in the evaluation panel; evaluate with the plan's units (plan.geojson)", ErrPlan, len(keep), len(pl.Units))
+	}
+	opts.Workers = 1
+	stat := func(waves []int) (float64, error) {
+		for i, k := range keep {
+			w := waves[k]
+			sub.Units[i].FirstTreated = -1
+			if m := waveMonth[w]; w < pl.Waves && m >= 0 && m < p.Months {
+				sub.Units[i].FirstTreated = m
+			}
+		}
+		es, err := did.Estimate(ctx, sub, opts)
+		if err != nil {
+			return 0, err
+		}
+		for _, e := range es.Effects {
+			if e.Estimator == did.Headline && e.RelativeEffect != nil {
+				return math.Log1p(*e.RelativeEffect), nil
+			}
+		}
+		return 0, nil // no estimate (too little activity): no evidence either way
+	}
+	pv, obs, err := pl.RandomizationP(ctx, stat, draws)
+	if err != nil {
+		return nil, err
+	}
+	return &RIResult{Outcome: outcome, Observed: obs, Relative: math.Expm1(obs), P: pv, Draws: draws, Units: len(keep),
+		Method: fmt.Sprintf("%s's log ratio under %d assignments re-drawn with %s from seeds %d+1.., every unit weighted 1, %d of the plan's %d units in the panel; p = (1 + #|b_r| >= |b|) / (1 + draws)",
+			did.Headline, draws, pl.Procedure, pl.Seed, len(keep), len(pl.Units))}, nil
+}
+
+// LoadedMonths returns, per unit, the month (YYYY-MM) of the first edit of
+// the given changesets located in it: when the import reached each unit.
+func LoadedMonths(ctx context.Context, src layers.DerivedReader, changesets []osm.ChangesetID, units power.Units) (map[string]string, error) {
+	out := map[string]string{}
+	for _, c := range changesets {
+		err := layers.ScanChangesetEvents(ctx, src, c, func(e *layers.Event) error {
+			if !e.Located {
+				return nil
+			}
+			u, ok := units.Locate(e.Location)
+			if !ok {
+				return nil
+			}
+			m := e.Time.UTC().Format("2006-01")
+			if cur, ok := out[units.ID(u)]; !ok || m < cur {
+				out[units.ID(u)] = m
+			}
+			return nil
+		})
+		if err != nil {
+			return nil, fmt.Errorf("rollout: scan changeset %d: %w", c, err)
+		}
+	}
+	return out, nil
 }

@@ -1,6 +1,7 @@
 package main
 
 import (
+	"encoding/json"
 	"errors"
 	"os"
 	"path/filepath"
@@ -68,6 +69,44 @@ func TestPlanCommand(t *testing.T) {
 			t.Errorf("summary lacks %q:\n%s", want, out)
 		}
 	}
+
+	// A plan dated inside the world's history, evaluated by audit --plan:
+	// nothing was loaded by it, so every treated unit is a deviation, and
+	// the randomization test runs on the plan's own units.
+	t.Run("audit --plan", func(t *testing.T) {
+		back := filepath.Join(tmp, "back")
+		if out, err := execRootOut(t, "--store", store, "plan", prop, "--units", districts, "--waves", "3", "--months-between", "2",
+			"--history", "6", "--window-before", "4", "--start", "2019-08", "--seed", "3", "--no-power", "--out", back); err != nil {
+			t.Fatalf("plan: %v\n%s", err, out)
+		}
+		eval := filepath.Join(tmp, "eval")
+		out, err := execRootOut(t, "--store", store, "audit", "--plan", filepath.Join(back, "plan.json"), "--plan-draws", "19", "--draws", "99", "--out", eval)
+		if err != nil {
+			t.Fatalf("audit --plan: %v\n%s", err, out)
+		}
+		if !strings.Contains(out, "randomization p =") || strings.Count(out, "plan deviation:") != 6 {
+			t.Errorf("audit --plan output lacks the randomization test or the 6 unloaded treated units:\n%s", out)
+		}
+		var ev struct {
+			Randomization struct {
+				P     float64 `json:"p_value"`
+				Units int     `json:"units"`
+			} `json:"randomization"`
+			Deviations []struct {
+				Kind string `json:"kind"`
+			} `json:"deviations"`
+		}
+		b, err := os.ReadFile(filepath.Join(eval, planEvalFile))
+		if err != nil || json.Unmarshal(b, &ev) != nil {
+			t.Fatalf("%s: %v", planEvalFile, err)
+		}
+		if ev.Randomization.Units < 3 || ev.Randomization.Units > 9 || ev.Randomization.P <= 0 || ev.Randomization.P > 1 || len(ev.Deviations) != 6 {
+			t.Errorf("plan evaluation: %+v", ev)
+		}
+		if _, err := execRootOut(t, "--store", store, "audit", "--plan", filepath.Join(back, "plan.json"), "--import", "imp-1"); !errors.As(err, new(cli.UsageError)) {
+			t.Errorf("--plan with --import: %v, want a usage error", err)
+		}
+	})
 }
 
 func TestPlanBadFlags(t *testing.T) {
