@@ -5,7 +5,7 @@ STORE   ?= demo-out/loadwake.db
 OUT     ?= demo-out
 COUNT   ?= 5
 
-.PHONY: all build test validate vet fmt demo docs-chart bench fuzz browser-test clean
+.PHONY: all build test validate vet fmt demo demo-plan docs-chart bench fuzz browser-test clean
 
 all: build
 
@@ -37,6 +37,12 @@ validate:
 # demo runs the whole job end to end on an invented region with an embedded store.
 demo: build
 	./bin/loadwake demo --out $(OUT) --force
+
+# demo-plan plans the demo's invented proposal as a randomized rollout over
+# zoom-17 tiles (the store and proposal of make demo): plan, wave files, power
+# charts and pre-registration in demo-out/plan.
+demo-plan: demo
+	./bin/loadwake plan $(OUT)/proposal.geojson --store $(STORE) --units tiles:17 --waves 3 --months-between 3 --seed 2026 --out $(OUT)/plan
 
 # docs-chart regenerates the chart the README shows from the demo's report.
 docs-chart: demo

@@ -51,7 +51,7 @@ var allowed = map[string][]string{
 	"audit": {"audit/checklist", "audit/did", "audit/episode", "audit/infer", "audit/match", "audit/panel", "audit/proposal",
 		"audit/retention", "audit/spatial", "audit/study", "audit/survival", "layers", "rules"},
 	"audit/power":   {"audit/checklist", "audit/did", "audit/panel", "layers"},
-	"audit/rollout": {"audit/did", "audit/markdown", "audit/power", "audit/proposal", "audit/sequential", "layers"},
+	"audit/rollout": {"audit/did", "audit/markdown", "audit/panel", "audit/power", "audit/proposal", "audit/sequential", "layers"},
 	"audit/report": {"audit", "audit/checklist", "audit/did", "audit/episode", "audit/markdown", "audit/match",
 		"audit/panel", "audit/proposal", "audit/retention", "audit/spatial", "audit/study", "layers"},
 

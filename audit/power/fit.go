@@ -37,7 +37,8 @@ type Model struct {
 
 // Fit fits each outcome of the history panel h over its units: levels are
 // the trend is the log ratio of the later half's events to the earlier
-// half's over the months between the halves' centres; seasonal factors are
+// half's over the months between the halves' centres (0 with under 24
+// months of history, where it cannot be told from the season); seasonal factors are
 // the calendar months' shares of the detrended events (pooled over units, 1
 // with under 24 months of history); a unit's level is its events over the
 // sum of the seasonal and trend factors of the months, its expected count in
@@ -78,7 +79,10 @@ func Fit(h *panel.Panel) (*Model, error) {
 				hi += tot[t]
 			}
 		}
-		if lo > 0 && hi > 0 {
+		// With under two years of history a trend cannot be told from the
+		// seasonal cycle (half a year of rising activity looks like
+		// growth): it is left at 0 rather than extrapolated.
+		if lo > 0 && hi > 0 && T >= 24 {
 			f.Trend = math.Max(-maxTrend, math.Min(maxTrend, math.Log(hi/lo)/float64(T-half)))
 		}
 		for i := range f.Season {

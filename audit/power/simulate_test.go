@@ -32,7 +32,9 @@ func historyPanel(tb testing.TB, n, T int, level float64, seed uint64) *panel.Pa
 	return p
 }
 
-// plainAssign deals units to waves by a seeded permutation, equal sizes.
+// plainAssign deals units to waves in equal shares by a seeded random
+// permutation, without regard to activity (as sim draws its treated
+// districts with LevelSelection 0 and deals them to cohorts).
 func plainAssign(units []int, waves int, seed uint64) ([]int, error) {
 	rng := rand.New(rand.NewPCG(seed, 2))
 	out := make([]int, len(units))

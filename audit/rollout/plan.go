@@ -200,7 +200,9 @@ func Make(ctx context.Context, src layers.DerivedReader, p *proposal.Proposal, u
 	}
 	slices.SortFunc(pl.Units, func(a, b Unit) int { return a.index - b.index })
 	// Past activity.
-	hist, err := power.Activity(ctx, src, units, power.ActivityOptions{Months: opts.History, Exclude: opts.Exclude})
+	// The history ends where the plan starts (by default where the store's
+	// data end).
+	hist, err := power.Activity(ctx, src, units, power.ActivityOptions{Months: opts.History, End: opts.Start, Exclude: opts.Exclude})
 	if err != nil {
 		return nil, err
 	}

@@ -19,6 +19,7 @@ type auditOptions struct {
 	md    string // write the report's Markdown here
 	est   cli.EstimatorFlags
 	by    []string // --by traits
+	plan  planAudit
 }
 
 func newAuditCommand(g *cli.Globals) *cobra.Command {
@@ -59,10 +60,16 @@ The figures are evidence for the community's review, not a verdict.`,
 	cli.AddOutFlag(f, &o.out, "the report (Markdown, HTML with charts, JSON, GeoJSON, panel CSV)")
 	cli.AddEstimatorFlags(f, &o.est)
 	addByFlag(cmd, &o.by)
+	o.plan.addFlags(f)
 	return cmd
 }
 
 func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
+	cleanup, err := o.plan.prepare(cmd, &o.study)
+	if err != nil {
+		return err
+	}
+	defer cleanup()
 	if err := o.est.Validate(&o.study, cmd.Flags()); err != nil {
 		return err
 	}
@@ -110,7 +117,9 @@ func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
 		return err
 	}
 	if o.out != "" {
-		return cli.WriteReports(out, o.out, cli.ReportInput(rep, in.Units, nil, nil))
+		if err := cli.WriteReports(out, o.out, cli.ReportInput(rep, in.Units, nil, nil)); err != nil {
+			return err
+		}
 	}
-	return nil
+	return o.plan.finish(cmd, in, rep, &o.est, &o.study, out, o.out)
 }

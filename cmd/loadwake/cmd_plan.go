@@ -24,7 +24,7 @@ type planOptions struct {
 	seed                          uint64
 	pause                         float64
 	noPower                       bool
-	json, csv, geojson, md, wiki  string
+	json, csv, geojson, md        string
 	out                           string
 }
 
@@ -180,7 +180,7 @@ func writePlan(out io.Writer, outs *cli.Outputs, o *planOptions, pl *rollout.Pla
 		for _, f := range []struct {
 			name string
 			fill func(w io.Writer) error
-		}{{"plan.json", pl.WriteJSON}, {"plan.csv", pl.WriteCSV}, {"plan.geojson", pl.WriteGeoJSON},
+		}{{"plan.json", pl.WriteJSON}, {"plan.csv", pl.WriteCSV}, {"plan.geojson", pl.WriteGeoJSON}, {"treatment.csv", pl.WriteTreatmentCSV},
 			{"preregistration.md", pl.WritePreregistration}, {"preregistration.wiki", pl.WritePreregistrationWiki}} {
 			p := filepath.Join(o.out, f.name)
 			if err := cli.WriteFile(p, f.fill); err != nil {

@@ -220,7 +220,7 @@ func TestReadmeCommands(t *testing.T) {
 		}
 		ran[args[0]] = true
 	}
-	for _, name := range []string{"version", "stats", "completion", "ingest", "rules", "classify", "imports", "panel", "audit", "report", "checklist", "assess", "estimate", "simulate"} {
+	for _, name := range []string{"version", "stats", "completion", "ingest", "rules", "classify", "imports", "panel", "audit", "report", "checklist", "assess", "plan", "estimate", "simulate"} {
 		if !ran[name] {
 			t.Errorf("the README's sh blocks show no loadwake %s command", name)
 		}
