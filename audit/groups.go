@@ -178,7 +178,7 @@ func SplitLines(r *Report) []string {
 		case sp.DiffP != nil:
 			line += fmt.Sprintf(". No reliable difference between the groups (interaction test p = %.2g, %.2g after Holm's adjustment across %d tested splits of %d declared).", *sp.DiffP, *sp.DiffPHolm, r.Splits.Tested, r.Splits.Declared)
 		default:
-			line += ". " + sp.Note + "."
+			line += ". " + strings.ToUpper(sp.Note[:1]) + sp.Note[1:] + "."
 		}
 		out = append(out, line)
 	}
