@@ -38,15 +38,11 @@ func JointScoreTest(fit ScoreFit, R *mat.Dense, opts ScoreOptions) (*JointScoreR
 	if err != nil {
 		return nil, err
 	}
+	stat, err := observedStat(c, f, q)
+	if err != nil {
+		return nil, err
+	}
 	g, _ := c.Dims()
-	ones := make([]float64, g)
-	for i := range ones {
-		ones[i] = 1
-	}
-	stat, ok := jointStat(c, ones, f, q)
-	if !ok {
-		return nil, fmt.Errorf("%w: the clusters' score contributions do not span the %d restrictions", ErrScoreInput, q)
-	}
 	sb := &scoreBoot{opts: opts}
 	sb.draw(g)
 	hits := 0
@@ -73,6 +69,11 @@ func JointScoreStat(fit ScoreFit, R *mat.Dense) (float64, error) {
 	if err != nil {
 		return 0, err
 	}
+	return observedStat(c, f, q)
+}
+
+// observedStat is S with every weight 1.
+func observedStat(c *mat.Dense, f float64, q int) (float64, error) {
 	g, _ := c.Dims()
 	ones := make([]float64, g)
 	for i := range ones {
