@@ -98,6 +98,9 @@ func grouping(s SplitSpec, units []panel.Unit) (did.Grouping, error) {
 			}
 		}
 	case s.Trait == TraitIntensity:
+		if !slices.ContainsFunc(units, func(u panel.Unit) bool { return u.Intensity > 0 }) {
+			return g, fmt.Errorf("%w: %s: no treated unit has an intensity; it is the share of an import's objects, known only for an import's audit", ErrSplit, s.Trait)
+		}
 		g.Groups = []string{"under 25%", "25-50%", "50% and over"}
 		for i, u := range units {
 			if !treated(i) {

@@ -53,6 +53,8 @@ func chartIn(in Input, name string, render renderFunc) ([]byte, bool, error) {
 		return balanceChart(in.Audit.Balance, render)
 	case name == "map":
 		return mapChart(in.Units, in.Audit.UnitList, render)
+	case strings.HasPrefix(name, "by-"):
+		return forestPNG(in.Audit, name, render)
 	case strings.HasPrefix(name, "event-study-"):
 		return eventStudyChart(in.Audit.EventStudy, strings.TrimPrefix(name, "event-study-"), render)
 	}
