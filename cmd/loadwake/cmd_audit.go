@@ -79,6 +79,9 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 		return err
 	}
 	out := outs.text
+	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, out); err != nil {
+		return err
+	}
 	if rep.IsImport() {
 		fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, joinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
 	} else {
@@ -95,9 +98,6 @@ func runAudit(cmd *cobra.Command, g *globalOptions, o *auditOptions) error {
 		return err
 	}
 	fmt.Fprintln(out)
-	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, out); err != nil {
-		return err
-	}
 	for _, c := range rep.Cautions {
 		fmt.Fprintln(out, "caution:", c)
 	}
