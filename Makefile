@@ -63,6 +63,7 @@ fuzz:
 	$(GO) test -run '^$$' -fuzz '^FuzzFromGeoJSON$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/spatial
 	$(GO) test -run '^$$' -fuzz '^FuzzReadGeoJSONProposal$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/proposal
 	$(GO) test -run '^$$' -fuzz '^FuzzReadOSMProposal$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/proposal
+	$(GO) test -run '^$$' -fuzz '^FuzzReadAssignment$$' -fuzztime $(FUZZTIME) -fuzzminimizetime 1x ./audit/study
 
 browser-test:
 	bash .ci/browser-test

@@ -98,6 +98,9 @@ func grouping(s SplitSpec, units []panel.Unit) (did.Grouping, error) {
 			}
 		}
 	case s.Trait == TraitIntensity:
+		if !slices.ContainsFunc(units, func(u panel.Unit) bool { return u.Intensity > 0 }) {
+			return g, fmt.Errorf("%w: %s: no treated unit has an intensity; it is the share of an import's objects, known only for an import's audit", ErrSplit, s.Trait)
+		}
 		g.Groups = []string{"under 25%", "25-50%", "50% and over"}
 		for i, u := range units {
 			if !treated(i) {
@@ -178,7 +181,7 @@ func SplitLines(r *Report) []string {
 		case sp.DiffP != nil:
 			line += fmt.Sprintf(". No reliable difference between the groups (interaction test p = %.2g, %.2g after Holm's adjustment across %d tested splits of %d declared).", *sp.DiffP, *sp.DiffPHolm, r.Splits.Tested, r.Splits.Declared)
 		default:
-			line += ". " + sp.Note + "."
+			line += ". " + strings.ToUpper(sp.Note[:1]) + sp.Note[1:] + "."
 		}
 		out = append(out, line)
 	}

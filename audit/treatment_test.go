@@ -3,6 +3,7 @@ package audit_test
 import (
 	"bytes"
 	"context"
+	"errors"
 	"fmt"
 	"math"
 	"reflect"
@@ -11,6 +12,7 @@ import (
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 	"github.com/loadwake/loadwake/audit/internal/worldtest"
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/audit/study"
@@ -113,6 +115,9 @@ func TestTreatmentFileReproducesImportAudit(t *testing.T) {
 	if !reflect.DeepEqual(got.EventStudy, imp.EventStudy) || !reflect.DeepEqual(got.Warnings, imp.Warnings) {
 		t.Errorf("event study or warnings differ: %v vs %v", got.Warnings, imp.Warnings)
 	}
+	if simtest.Validate { // the split refits the model per group and per re-deal: long
+		checkSplits(t, got)
+	}
 	h, _ := got.Headline("attribute")
 	hi, _ := imp.Headline("attribute")
 	t.Logf("attribute, %s: file %+.6f [%+.6f, %+.6f], import %+.6f [%+.6f, %+.6f]", did.Headline,
@@ -120,3 +125,31 @@ func TestTreatmentFileReproducesImportAudit(t *testing.T) {
 }
 
 func close9(a, b float64) bool { return math.Abs(a-b) <= 1e-9*max(1, math.Abs(a), math.Abs(b)) }
+
+// checkSplits splits an event's audit by an invented property that deals
+// the treated districts alternately to two groups of 4: 4 splits (one
+// trait × 4 layers), each with the interaction test.
+// The splits of the tested layers are one Holm family.
+func checkSplits(t testing.TB, got *audit.Report) {
+	t.Helper()
+	ctx := context.Background()
+	prop, n := map[string]string{}, 0
+	for _, u := range got.UnitList {
+		if u.Status == study.StatusTreated {
+			prop[u.ID] = []string{"north", "south"}[n%2]
+			n++
+		}
+	}
+	if err := audit.AddSplits(ctx, got, []audit.SplitSpec{{Trait: "side", Property: prop}}, did.Options{}); err != nil {
+		t.Fatal(err)
+	}
+	if got.Splits.Declared != 4 || got.Splits.Tested != 4 || len(audit.SplitLines(got)) != 4 {
+		t.Errorf("splits: %d declared, %d tested", got.Splits.Declared, got.Splits.Tested)
+	}
+	for _, l := range audit.SplitLines(got) {
+		t.Log(l)
+	}
+	if err := audit.AddSplits(ctx, got, []audit.SplitSpec{{Trait: "colour"}}, did.Options{}); !errors.Is(err, audit.ErrSplit) {
+		t.Errorf("unknown trait: %v", err)
+	}
+}

@@ -177,10 +177,10 @@ func TestSplitSizeQuick(t *testing.T) {
 	if simtest.Validate {
 		t.Skip("the long study runs instead")
 	}
-	w := splitWorld{PerGroup: 6, Controls: 20, Months: 30, Deltas: []float64{-0.2, -0.2}, K: 8}
-	cover, reject, tested := splitStudy(t, w, 12, 99)
-	t.Logf("12 null panels: %d of %d tests reject; coverage %v", reject, tested, cover)
-	if tested != 12 || reject > 3 {
+	w := splitWorld{PerGroup: 4, Controls: 12, Months: 24, Deltas: []float64{-0.2, -0.2}, K: 8}
+	cover, reject, tested := splitStudy(t, w, 6, 99)
+	t.Logf("6 null panels: %d of %d tests reject; coverage %v", reject, tested, cover)
+	if tested != 6 || reject > 2 {
 		t.Errorf("%d of %d null tests reject at 5%%", reject, tested)
 	}
 }

@@ -28,7 +28,7 @@ func TestSplitValidate(t *testing.T) {
 		{"null, 16 treated per group", splitWorld{PerGroup: 16, Controls: 48, Months: 30, Deltas: []float64{-0.2, -0.2}, K: 8}, true},
 	} {
 		t.Run(c.name, func(t *testing.T) {
-			cover, reject, tested := splitStudy(t, c.w, n, 399)
+			cover, reject, tested := splitStudy(t, c.w, n, 199)
 			for k := range cover {
 				t.Logf("%s: group %c (planted %+.2f) covered in %s", c.name, 'a'+k, c.w.Deltas[k], simtest.Rate(cover[k], n))
 			}
@@ -36,7 +36,7 @@ func TestSplitValidate(t *testing.T) {
 			if tested != n {
 				t.Errorf("%d of %d panels tested", tested, n)
 			}
-			if c.isNull {
+			if c.isNull { // fails when the Wilson interval lies wholly above 6%
 				if lo, _ := simtest.Wilson(reject, tested); lo > 0.06 {
 					t.Errorf("size %s: above 6%%", simtest.Rate(reject, tested))
 				}

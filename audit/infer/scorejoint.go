@@ -31,48 +31,23 @@ type JointScoreResult struct {
 // Tol and MaxSE are not used). R is q×k with q ≤ k and full row rank; fit
 // is the restricted fit (its Scores G×k and Hessian k×k).
 func JointScoreTest(fit ScoreFit, R *mat.Dense, opts ScoreOptions) (*JointScoreResult, error) {
-	if R == nil || fit.Scores == nil || fit.Hessian == nil || opts.Draws < 1 {
-		return nil, fmt.Errorf("%w: need restrictions, scores, a Hessian and draws ≥ 1", ErrScoreInput)
+	if opts.Draws < 1 {
+		return nil, fmt.Errorf("%w: need draws ≥ 1", ErrScoreInput)
 	}
-	q, k := R.Dims()
-	g, ks := fit.Scores.Dims()
-	if ks != k || fit.Hessian.SymmetricDim() != k || q < 1 || q > k {
-		return nil, fmt.Errorf("%w: %d restrictions on %d parameters, scores have %d columns, Hessian %d", ErrScoreInput, q, k, ks, fit.Hessian.SymmetricDim())
+	c, f, q, err := jointContrib(fit, R)
+	if err != nil {
+		return nil, err
 	}
-	// c_g = R H⁻¹ s_g for every cluster, through the q×k matrix R H⁻¹.
-	var ch mat.Cholesky
-	if !ch.Factorize(fit.Hessian) {
-		return nil, fmt.Errorf("%w: Hessian not positive definite", ErrScoreInput)
+	stat, err := observedStat(c, f, q)
+	if err != nil {
+		return nil, err
 	}
-	var hinvRt mat.Dense // k×q = H⁻¹ R'
-	if err := ch.SolveTo(&hinvRt, R.T()); err != nil {
-		return nil, fmt.Errorf("%w: Hessian: %v", ErrScoreInput, err)
-	}
-	var c mat.Dense // g×q, row g is c_g'
-	c.Mul(fit.Scores, &hinvRt)
-	ones := make([]float64, g)
-	for i := range ones {
-		ones[i] = 1
-	}
-	if g < 2 {
-		return nil, fmt.Errorf("%w: %d clusters; need at least 2", ErrScoreInput, g)
-	}
-	f := float64(g) / float64(g-1)
-	if fit.NObs > 0 {
-		if fit.NObs <= fit.NParams {
-			return nil, fmt.Errorf("%w: %d observations for %d parameters", ErrScoreInput, fit.NObs, fit.NParams)
-		}
-		f *= float64(fit.NObs-1) / float64(fit.NObs-fit.NParams)
-	}
-	stat, ok := jointStat(&c, ones, f, q)
-	if !ok {
-		return nil, fmt.Errorf("%w: the clusters' score contributions do not span the %d restrictions", ErrScoreInput, q)
-	}
+	g, _ := c.Dims()
 	sb := &scoreBoot{opts: opts}
 	sb.draw(g)
 	hits := 0
 	for b := range sb.b {
-		s, ok := jointStat(&c, sb.v[b*g:(b+1)*g], f, q)
+		s, ok := jointStat(c, sb.v[b*g:(b+1)*g], f, q)
 		if ok && s >= stat*(1-1e-10) {
 			hits++
 		}
@@ -84,6 +59,65 @@ func JointScoreTest(fit ScoreFit, R *mat.Dense, opts ScoreOptions) (*JointScoreR
 		r.P = float64(hits+1) / float64(sb.b+1)
 	}
 	return r, nil
+}
+
+// JointScoreStat is JointScoreTest's statistic S alone, for tests that
+// compare it across reassignments (a randomization test) instead of
+// bootstrapping it.
+func JointScoreStat(fit ScoreFit, R *mat.Dense) (float64, error) {
+	c, f, q, err := jointContrib(fit, R)
+	if err != nil {
+		return 0, err
+	}
+	return observedStat(c, f, q)
+}
+
+// observedStat is S with every weight 1.
+func observedStat(c *mat.Dense, f float64, q int) (float64, error) {
+	g, _ := c.Dims()
+	ones := make([]float64, g)
+	for i := range ones {
+		ones[i] = 1
+	}
+	stat, ok := jointStat(c, ones, f, q)
+	if !ok {
+		return 0, fmt.Errorf("%w: the clusters' score contributions do not span the %d restrictions", ErrScoreInput, q)
+	}
+	return stat, nil
+}
+
+// jointContrib returns the clusters' contributions c_g = R H⁻¹ s_g (rows of
+// a G×q matrix), the small-sample factor and q.
+func jointContrib(fit ScoreFit, R *mat.Dense) (*mat.Dense, float64, int, error) {
+	if R == nil || fit.Scores == nil || fit.Hessian == nil {
+		return nil, 0, 0, fmt.Errorf("%w: need restrictions, scores and a Hessian", ErrScoreInput)
+	}
+	q, k := R.Dims()
+	g, ks := fit.Scores.Dims()
+	if ks != k || fit.Hessian.SymmetricDim() != k || q < 1 || q > k {
+		return nil, 0, 0, fmt.Errorf("%w: %d restrictions on %d parameters, scores have %d columns, Hessian %d", ErrScoreInput, q, k, ks, fit.Hessian.SymmetricDim())
+	}
+	if g < 2 {
+		return nil, 0, 0, fmt.Errorf("%w: %d clusters; need at least 2", ErrScoreInput, g)
+	}
+	var ch mat.Cholesky
+	if !ch.Factorize(fit.Hessian) {
+		return nil, 0, 0, fmt.Errorf("%w: Hessian not positive definite", ErrScoreInput)
+	}
+	var hinvRt mat.Dense // k×q = H⁻¹ R'
+	if err := ch.SolveTo(&hinvRt, R.T()); err != nil {
+		return nil, 0, 0, fmt.Errorf("%w: Hessian: %v", ErrScoreInput, err)
+	}
+	c := &mat.Dense{} // g×q, row g is c_g'
+	c.Mul(fit.Scores, &hinvRt)
+	f := float64(g) / float64(g-1)
+	if fit.NObs > 0 {
+		if fit.NObs <= fit.NParams {
+			return nil, 0, 0, fmt.Errorf("%w: %d observations for %d parameters", ErrScoreInput, fit.NObs, fit.NParams)
+		}
+		f *= float64(fit.NObs-1) / float64(fit.NObs-fit.NParams)
+	}
+	return c, f, q, nil
 }
 
 // jointStat is (Σ v_g c_g)'(f Σ v_g² c_g c_g')⁻¹(Σ v_g c_g); ok is false when

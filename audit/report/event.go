@@ -19,7 +19,9 @@ func eventWords() *strings.Replacer {
 		"(touched by another import, or too lightly by this one)", "(edited by a detected import inside the window)",
 		"excluded (other or light import)", "excluded (edited by an import)",
 		"import area left out (no match)", "treated area left out (no match)",
-		"import area (treated)", "treated area",
+		"import area (treated)", "treated area", "Import area (treated)", "Treated area",
+		"the import areas", "the treated areas", "The import areas", "The treated areas",
+		"each area's import arrived", "each area's treatment began", "waves of import areas", "waves of treated areas",
 		"Import areas", "Treated areas", "import areas", "treated areas",
 		"Import area", "Treated area", "import area", "treated area",
 		"Pre-import test", "Pre-event test", "pre-import test", "pre-event test",
@@ -52,6 +54,12 @@ func eventView(v view, r *audit.Report) view {
 	for i := range v.Headline {
 		v.Headline[i].Reading = w.Replace(v.Headline[i].Reading)
 		v.Headline[i].PreTrend = w.Replace(v.Headline[i].PreTrend)
+	}
+	for i := range v.Robust {
+		v.Robust[i].Explanation = w.Replace(v.Robust[i].Explanation)
+	}
+	for i := range v.Balance {
+		v.Balance[i].Covariate = w.Replace(v.Balance[i].Covariate)
 	}
 	for i := range v.Glossary {
 		v.Glossary[i].Name, v.Glossary[i].Text = w.Replace(v.Glossary[i].Name), w.Replace(v.Glossary[i].Text)

@@ -45,7 +45,7 @@ func forestCharts(r *audit.Report) ([]Chart, error) {
 	}
 	var out []Chart
 	for _, t := range traits {
-		svg, ok, err := forestSVG(t, by[t])
+		svg, ok, err := forestChart(t, by[t], renderSVG)
 		if err != nil {
 			return nil, err
 		}
@@ -69,8 +69,27 @@ func fileSafe(s string) string {
 	}, s)
 }
 
-// forestSVG draws the splits of one trait.
-func forestSVG(trait string, splits []did.Split) ([]byte, bool, error) {
+// forestPNG draws the forest chart of the chart name by-TRAIT as a PNG.
+func forestPNG(r *audit.Report, name string, render renderFunc) ([]byte, bool, error) {
+	if r.Splits == nil {
+		return nil, false, nil
+	}
+	var trait string
+	var splits []did.Split
+	for _, sp := range r.Splits.Rows {
+		if "by-"+fileSafe(sp.Trait) == name {
+			trait = sp.Trait
+			splits = append(splits, sp)
+		}
+	}
+	if len(splits) == 0 {
+		return nil, false, nil
+	}
+	return forestChart(trait, splits, render)
+}
+
+// forestChart draws the splits of one trait with render.
+func forestChart(trait string, splits []did.Split, render renderFunc) ([]byte, bool, error) {
 	var names []string
 	var est, hollow plotter.XYs
 	var bars []plotter.XYs
@@ -135,6 +154,6 @@ func forestSVG(trait string, splits []did.Split) ([]byte, bool, error) {
 	p.Y.Min, p.Y.Max = -0.5, float64(n)-0.5+1
 	p.X.Min, p.X.Max = -lim, lim
 	h := vg.Length(3+0.7*float64(n)) * vg.Centimeter
-	svg, err := renderSVG(p, 16*vg.Centimeter, h, "Effect by "+trait)
+	svg, err := render(p, 16*vg.Centimeter, h, "Effect by "+trait)
 	return svg, err == nil, err
 }

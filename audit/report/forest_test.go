@@ -35,6 +35,9 @@ func TestSplitsInReport(t *testing.T) {
 	if !bytes.Contains(forest, []byte("<svg")) || !bytes.Contains(forest, []byte("attribute: rural (6)")) {
 		t.Fatalf("no forest chart for landuse: %d charts", len(charts))
 	}
+	if png, ok, err := ChartPNG(Input{Audit: r}, "by-landuse"); err != nil || !ok || !bytes.HasPrefix(png, []byte("\x89PNG")) {
+		t.Errorf("no PNG of the forest chart: %v %v", ok, err)
+	}
 	var md, html, wiki bytes.Buffer
 	in := Input{Audit: r}
 	if err := WriteMarkdown(&md, in); err != nil {

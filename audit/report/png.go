@@ -55,6 +55,8 @@ func chartIn(in Input, name string, render renderFunc) ([]byte, bool, error) {
 		return mapChart(in.Units, in.Audit.UnitList, render)
 	case name == retentionChartName:
 		return retentionChart(in.Audit.Retention, render)
+	case strings.HasPrefix(name, "by-"):
+		return forestPNG(in.Audit, name, render)
 	case strings.HasPrefix(name, "event-study-"):
 		return eventStudyChart(in.Audit.EventStudy, strings.TrimPrefix(name, "event-study-"), render)
 	}
