@@ -20,10 +20,10 @@ func retentionWorld(seed uint64, hr float64) sim.Config {
 	cfg.Cols, cfg.Rows, cfg.Months = 5, 5, 36
 	cfg.Treated, cfg.Waves = 6, 1
 	cfg.ImportAccounts = 1
-	cfg.Scale = 0.25
-	cfg.ImportBuildings, cfg.ImportPOIs = 400, 40
+	cfg.Scale = 0.1
+	cfg.ImportBuildings, cfg.ImportPOIs = 600, 60
 	r := sim.DefaultRetention()
-	r.PerDistrictMonth = 6
+	r.PerDistrictMonth = 15
 	r.HazardRatio = hr
 	cfg.Retention = &r
 	return cfg

@@ -10,15 +10,15 @@ import (
 )
 
 // TestWorldStudy runs the whole path — invented world, store, classification,
-// import detection, matched study, newcomers, estimate — on 400 small worlds
-// with the Retention plan (retentionWorld: 6 of 25 districts treated), 200
-// with a planted hazard ratio of 1.6 and 200 null, and counts how often the
+// import detection, matched study, newcomers, estimate — on 200 small worlds
+// with the Retention plan (retentionWorld: 6 of 25 districts treated), 100
+// with a planted hazard ratio of 1.6 and 100 null, and counts how often the
 // 12-month difference's interval covers the planted value
 // (sim.Retention.PlantedDiD). Targets as in TestCoverageStudy: the Wilson
 // 95% interval of the coverage must reach 93% to 97% on planted worlds, and
 // of the rejection rate reach 6% or less on null worlds.
 func TestWorldStudy(t *testing.T) {
-	const worlds = 200
+	const worlds = 100
 	for _, hr := range []float64{1.6, 1} {
 		covered, ran, sum, coxReject := 0, 0, 0.0, 0
 		var want float64
@@ -38,6 +38,9 @@ func TestWorldStudy(t *testing.T) {
 				}
 				if r.HazardRatio.Computed && r.HazardRatio.P < 0.05 {
 					coxReject++
+				}
+				if seed%10 == 0 {
+					t.Logf("so far: %d of %d covered, Cox rejects %d", covered, ran, coxReject)
 				}
 			})
 		}
