@@ -24,6 +24,7 @@ func retentionWorld(seed uint64, hr float64) sim.Config {
 	cfg.ImportBuildings, cfg.ImportPOIs = 600, 60
 	r := sim.DefaultRetention()
 	r.PerDistrictMonth = 15
+	r.EditsPerMonth = 1 // one edit a month while editing: a light world
 	r.HazardRatio = hr
 	cfg.Retention = &r
 	return cfg
