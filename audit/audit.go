@@ -293,7 +293,9 @@ func AssessPast(ctx context.Context, a *proposal.Assessment, src Source, r *rule
 				others = append(others, e)
 			}
 		}
-		rep, err := Run(ctx, src, &ep, others, opts.Units, opts.Audit)
+		ao := opts.Audit
+		ao.NoRetention = true // the assessment reads the effects and the checklist only
+		rep, err := Run(ctx, src, &ep, others, opts.Units, ao)
 		if err != nil {
 			a.Notes = append(a.Notes, fmt.Sprintf("past import %s not audited: %v", ep.ID, err))
 			continue

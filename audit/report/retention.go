@@ -70,8 +70,8 @@ func newRetentionView(r *retention.Result) *retentionView {
 	year := func(areas, period string) string {
 		g := cell[[2]string{areas, period}]
 		for _, s := range g.Retention {
-			if s.Months == 12 {
-				return shareText(s)
+			if s.Months == 12 && s.Followed > 0 {
+				return fmt.Sprintf("%.0f%% of the %d the data follow that long", 100*s.Share, s.Followed)
 			}
 		}
 		return "not yet known"

@@ -13,17 +13,18 @@ import (
 )
 
 // retentionWorld is a small invented world with the Retention plan: 6 of 25
-// districts treated in one wave at month 9 of 36.
+// districts treated in one wave at month 7 of 30.
 func retentionWorld(seed uint64, hr float64) sim.Config {
 	cfg := sim.DefaultConfig()
 	cfg.Seed = seed
-	cfg.Cols, cfg.Rows, cfg.Months = 5, 5, 36
+	cfg.Cols, cfg.Rows, cfg.Months = 5, 5, 30
 	cfg.Treated, cfg.Waves = 6, 1
 	cfg.ImportAccounts = 1
-	cfg.Scale = 0.25
-	cfg.ImportBuildings, cfg.ImportPOIs = 400, 40
+	cfg.Scale = 0.1
+	cfg.ImportBuildings, cfg.ImportPOIs = 600, 60
 	r := sim.DefaultRetention()
-	r.PerDistrictMonth = 6
+	r.PerDistrictMonth = 10
+	r.EditsPerMonth = 1 // one edit a month while editing: a light world
 	r.HazardRatio = hr
 	cfg.Retention = &r
 	return cfg

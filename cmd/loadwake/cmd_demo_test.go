@@ -47,8 +47,11 @@ func TestDemoAndReport(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	if n := strings.Count(string(page), "<svg "); n != 6 {
-		t.Errorf("report.html holds %d charts, want 6 (four event studies, balance, map)", n)
+	if n := strings.Count(string(page), "<svg "); n != 7 {
+		t.Errorf("report.html holds %d charts, want 7 (four event studies, balance, newcomer retention, map)", n)
+	}
+	if !strings.Contains(string(page), `<section id="retention">`) {
+		t.Error("report.html lacks the newcomer retention section")
 	}
 	if !strings.Contains(string(page), "Proposed import") {
 		t.Error("report.html lacks the assessment of the invented proposal")
