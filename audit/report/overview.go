@@ -27,9 +27,11 @@ const (
 	FileOverviewJSON     = "overview.json"
 )
 
-// OverviewFiles are the names of the files WriteOverview creates, in writing
-// order.
-var OverviewFiles = []string{FileOverviewMarkdown, FileOverviewHTML, FileOverviewCSV, FileOverviewJSON}
+// OverviewFiles returns the names of the files WriteOverview creates, in
+// writing order.
+func OverviewFiles() []string {
+	return []string{FileOverviewMarkdown, FileOverviewHTML, FileOverviewCSV, FileOverviewJSON}
+}
 
 // WriteOverview creates dir if needed and writes the overview of all imports
 // into it as overview.md, overview.html, overview.csv and overview.json, each
@@ -47,7 +49,7 @@ func WriteOverview(dir string, ov *audit.Overview) error {
 		FileOverviewCSV:      func(w io.Writer) error { return WriteOverviewCSV(w, ov) },
 		FileOverviewJSON:     ov.WriteJSON,
 	}
-	for _, name := range OverviewFiles {
+	for _, name := range OverviewFiles() {
 		if err := writeAtomic(filepath.Join(dir, name), writers[name]); err != nil {
 			return err
 		}
@@ -160,32 +162,37 @@ func newOverviewLines(ov *audit.Overview) []overviewLine {
 	return out
 }
 
-// overviewSorts are the sortable columns of the HTML table: the key each
-// sorts by (NaN: no value, placed last both ways).
-var overviewSorts = []struct {
+// overviewSort is a sortable column of the HTML table: the key it sorts by
+// (NaN: no value, placed last both ways).
+type overviewSort struct {
 	Name string
 	Key  func(l *overviewLine) float64
-}{
-	{"import", func(l *overviewLine) float64 { return monthNumber(l.Row.FirstMonth) }},
-	{"areas", func(l *overviewLine) float64 {
-		if l.Row.Error != "" {
-			return math.NaN()
-		}
-		return float64(len(l.Row.ImportAreas))
-	}},
-	{"size", func(l *overviewLine) float64 { return float64(l.Size) }},
-	{"geometry", func(l *overviewLine) float64 { return l.Cells[0].Sort }},
-	{"attribute", func(l *overviewLine) float64 { return l.Cells[1].Sort }},
-	{"new_feature", func(l *overviewLine) float64 { return l.Cells[2].Sort }},
-	{"deletion", func(l *overviewLine) float64 { return l.Cells[3].Sort }},
-	{"keys", func(l *overviewLine) float64 {
-		var n int
-		for _, k := range l.Row.TopKeys {
-			n = max(n, k.Affected)
-		}
-		return float64(n)
-	}},
-	{"warnings", func(l *overviewLine) float64 { return float64(len(l.Row.Warnings)) }},
+}
+
+// overviewSorts are the sortable columns, in the table's order.
+func overviewSorts() []overviewSort {
+	return []overviewSort{
+		{"import", func(l *overviewLine) float64 { return monthNumber(l.Row.FirstMonth) }},
+		{"areas", func(l *overviewLine) float64 {
+			if l.Row.Error != "" {
+				return math.NaN()
+			}
+			return float64(len(l.Row.ImportAreas))
+		}},
+		{"size", func(l *overviewLine) float64 { return float64(l.Size) }},
+		{"geometry", func(l *overviewLine) float64 { return l.Cells[0].Sort }},
+		{"attribute", func(l *overviewLine) float64 { return l.Cells[1].Sort }},
+		{"new_feature", func(l *overviewLine) float64 { return l.Cells[2].Sort }},
+		{"deletion", func(l *overviewLine) float64 { return l.Cells[3].Sort }},
+		{"keys", func(l *overviewLine) float64 {
+			var n int
+			for _, k := range l.Row.TopKeys {
+				n = max(n, k.Affected)
+			}
+			return float64(n)
+		}},
+		{"warnings", func(l *overviewLine) float64 { return float64(len(l.Row.Warnings)) }},
+	}
 }
 
 // monthNumber turns YYYY-MM into a number that sorts by time; NaN when it
@@ -207,10 +214,10 @@ func monthNumber(m string) float64 {
 func setSortOrder(lines []overviewLine) {
 	ranks := make([][]int, len(lines))
 	for i := range ranks {
-		ranks[i] = make([]int, 2*len(overviewSorts))
+		ranks[i] = make([]int, 2*len(overviewSorts()))
 	}
 	idx := make([]int, len(lines))
-	for k, s := range overviewSorts {
+	for k, s := range overviewSorts() {
 		for dir := range 2 {
 			for i := range idx {
 				idx[i] = i
@@ -237,7 +244,7 @@ func setSortOrder(lines []overviewLine) {
 	}
 	for i := range lines {
 		var b strings.Builder
-		for k := range overviewSorts {
+		for k := range overviewSorts() {
 			fmt.Fprintf(&b, "--a%d:%d;--d%d:%d;", k, ranks[i][2*k], k, ranks[i][2*k+1])
 		}
 		lines[i].Order = template.CSS(b.String())
@@ -285,7 +292,7 @@ main { max-width: 80rem; }
 <input type="radio" class="sorter" name="sort" id="s{{$k}}d" aria-label="sort by {{$s.Name}}, largest first">
 {{end}}<div class="ov">
 <table>
-<thead><tr>{{range $k, $h := .Headers}}<th>{{$h}}{{if ge (index $.SortOf $k) 0}}<br><label for="s{{index $.SortOf $k}}a" title="smallest first">▲</label><label for="s{{index $.SortOf $k}}d" title="largest first">▼</label>{{end}}</th>{{end}}</tr></thead>
+<thead><tr>{{range $k, $h := .Headers}}<th>{{$h}}<br><label for="s{{$k}}a" title="smallest first">▲</label><label for="s{{$k}}d" title="largest first">▼</label></th>{{end}}</tr></thead>
 <tbody>{{range .Lines}}
 <tr style="{{.Order}}"><td><strong>{{.Row.Import}}</strong><small>{{.Accounts}}</small><small>{{.Months}}</small>{{if .Compared}}<small>{{.Compared}}</small>{{end}}</td><td>{{.Areas}}</td><td class="n">{{.Size}}<small>{{.SizeText}}</small></td>{{range .Cells}}<td class="n{{if .Flag}} clear{{end}}">{{if .Effect}}{{.Effect}}<small>{{.Interval}}</small>{{end}}<small>{{.Reading}}</small></td>{{end}}<td>{{if .Keys}}<ul>{{range .Keys}}<li>{{.}}</li>{{end}}</ul>{{else}}none flagged{{end}}</td><td class="n">{{len .Row.Warnings}}</td></tr>{{end}}
 </tbody>
@@ -303,12 +310,11 @@ main { max-width: 80rem; }
 </html>
 `))
 
-// overviewHeaders are the table's column headings; overviewSortOf gives the
-// index into overviewSorts of each (-1: not sortable).
-var (
-	overviewHeaders = []string{"Import", "Area", "Size (versions)", "Geometry", "Attribute", "New features", "Deletions", "Neglected keys", "Warnings"}
-	overviewSortOf  = []int{0, 1, 2, 3, 4, 5, 6, 7, 8}
-)
+// overviewHeaders returns the table's column headings, each sortable by the
+// overviewSorts entry of the same index.
+func overviewHeaders() []string {
+	return []string{"Import", "Area", "Size (versions)", "Geometry", "Attribute", "New features", "Deletions", "Neglected keys", "Warnings"}
+}
 
 // overviewTitle heads the overview in every format.
 const overviewTitle = "Follow-on editing after every import in the store"
@@ -340,14 +346,13 @@ func WriteOverviewHTML(w io.Writer, ov *audit.Overview) error {
 		Columns    int
 		Sorts      []struct{ Name string }
 		Headers    []string
-		SortOf     []int
 		Lines      []overviewLine
 		Glossary   []term
 		Provenance []provRow
 		Cautions   []string
-	}{Title: overviewTitle, Lead: overviewLead(ov), Columns: len(overviewHeaders), Headers: overviewHeaders, SortOf: overviewSortOf,
+	}{Title: overviewTitle, Lead: overviewLead(ov), Columns: len(overviewHeaders()), Headers: overviewHeaders(),
 		Lines: newOverviewLines(ov), Glossary: overviewGlossary(ov), Cautions: ov.Cautions}
-	for _, s := range overviewSorts {
+	for _, s := range overviewSorts() {
 		data.Sorts = append(data.Sorts, struct{ Name string }{s.Name})
 	}
 	if ov.Provenance != nil {
@@ -366,7 +371,7 @@ func WriteOverviewMarkdown(w io.Writer, ov *audit.Overview) error {
 		fmt.Fprintf(&b, "> **%s**\n\n", e(InventedBanner))
 	}
 	fmt.Fprintf(&b, "%s\n\n", e(overviewLead(ov)))
-	b.WriteString("| " + strings.Join(overviewHeaders, " | ") + " |\n|---|---|---:|---:|---:|---:|---:|---|---:|\n")
+	b.WriteString("| " + strings.Join(overviewHeaders(), " | ") + " |\n|---|---|---:|---:|---:|---:|---:|---|---:|\n")
 	for _, l := range newOverviewLines(ov) {
 		imp := "**" + e(l.Row.Import) + "** " + e(l.Accounts) + ", " + e(l.Months)
 		if l.Compared != "" {

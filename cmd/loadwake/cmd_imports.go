@@ -207,6 +207,6 @@ func auditImports(cmd *cobra.Command, g *globalOptions, o *importsOptions, outs 
 	if err := report.WriteOverview(o.out, ov); err != nil {
 		return err
 	}
-	fmt.Fprintf(outs.text, "wrote the overview to %s (%s; open overview.html in a browser)\n", o.out, joinOr(report.OverviewFiles, ""))
+	fmt.Fprintf(outs.text, "wrote the overview to %s (%s; open overview.html in a browser)\n", o.out, joinOr(report.OverviewFiles(), ""))
 	return nil
 }
