@@ -121,6 +121,7 @@ type overviewLine struct {
 	SizeText string
 	Cells    []overviewCell // per layer, in layers.Layers order
 	Keys     []string       // "building:levels on building=*: 12% vs 63%"
+	NoKeys   string         // what the keys column says when Keys is empty
 	Order    template.CSS   // the sort ranks, as CSS custom properties
 }
 
@@ -152,6 +153,10 @@ func newOverviewLines(ov *audit.Overview) []overviewLine {
 		}
 		for _, ly := range layers.Layers {
 			l.Cells = append(l.Cells, newOverviewCell(r, ly.String()))
+		}
+		l.NoKeys = "none flagged"
+		if r.Error != "" {
+			l.NoKeys = "not audited"
 		}
 		for _, k := range r.TopKeys {
 			l.Keys = append(l.Keys, fmt.Sprintf("%s on %s: %.0f%% vs %.0f%%", k.Key, k.Class, 100*k.ImportShare, 100*k.ReferenceShare))
@@ -294,7 +299,7 @@ main { max-width: 80rem; }
 <table>
 <thead><tr>{{range $k, $h := .Headers}}<th>{{$h}}<br><label for="s{{$k}}a" title="smallest first">▲</label><label for="s{{$k}}d" title="largest first">▼</label></th>{{end}}</tr></thead>
 <tbody>{{range .Lines}}
-<tr style="{{.Order}}"><td><strong>{{.Row.Import}}</strong><small>{{.Accounts}}</small><small>{{.Months}}</small>{{if .Compared}}<small>{{.Compared}}</small>{{end}}</td><td>{{.Areas}}</td><td class="n">{{.Size}}<small>{{.SizeText}}</small></td>{{range .Cells}}<td class="n{{if .Flag}} clear{{end}}">{{if .Effect}}{{.Effect}}<small>{{.Interval}}</small>{{end}}<small>{{.Reading}}</small></td>{{end}}<td>{{if .Keys}}<ul>{{range .Keys}}<li>{{.}}</li>{{end}}</ul>{{else}}none flagged{{end}}</td><td class="n">{{len .Row.Warnings}}</td></tr>{{end}}
+<tr style="{{.Order}}"><td><strong>{{.Row.Import}}</strong><small>{{.Accounts}}</small><small>{{.Months}}</small>{{if .Compared}}<small>{{.Compared}}</small>{{end}}</td><td>{{.Areas}}</td><td class="n">{{.Size}}<small>{{.SizeText}}</small></td>{{range .Cells}}<td class="n{{if .Flag}} clear{{end}}">{{if .Effect}}{{.Effect}}<small>{{.Interval}}</small>{{end}}<small>{{.Reading}}</small></td>{{end}}<td>{{if .Keys}}<ul>{{range .Keys}}<li>{{.}}</li>{{end}}</ul>{{else}}{{.NoKeys}}{{end}}</td><td class="n">{{len .Row.Warnings}}</td></tr>{{end}}
 </tbody>
 </table>
 </div>
@@ -327,12 +332,23 @@ func overviewLead(ov *audit.Overview) string {
 			failed++
 		}
 	}
-	s := fmt.Sprintf("%d imports found in the store, each audited on its own over the units %s, in the months each row names (up to %d before and %d after the import, as far as the store's history reaches). Each layer's figure is how follow-on editing by other mappers changed in the areas the import reached, against matched areas it did not touch.",
-		len(ov.Imports), orDash(ov.Units), ov.Before, ov.After)
-	if failed > 0 {
+	s := fmt.Sprintf("%s found in the store, each audited on its own over the units %s, in the months each row names (up to %d before and %d after the import, as far as the store's history reaches). Each layer's figure is how follow-on editing by other mappers changed in the areas the import reached, against matched areas it did not touch.",
+		plural(len(ov.Imports), "import", "imports"), orDash(ov.Units), ov.Before, ov.After)
+	switch {
+	case failed == 1:
+		s += " 1 could not be audited; its row says why."
+	case failed > 1:
 		s += fmt.Sprintf(" %d could not be audited; their rows say why.", failed)
 	}
 	return s
+}
+
+// plural is "1 import" or "N imports".
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return fmt.Sprintf("%d %s", n, many)
 }
 
 // WriteOverviewHTML writes the overview as one self-contained HTML page whose
@@ -385,7 +401,7 @@ func WriteOverviewMarkdown(w io.Writer, ov *audit.Overview) error {
 			}
 			cells = append(cells, s)
 		}
-		keys := "none flagged"
+		keys := l.NoKeys
 		if len(l.Keys) > 0 {
 			ks := make([]string, len(l.Keys))
 			for i, k := range l.Keys {
