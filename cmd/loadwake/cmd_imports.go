@@ -146,7 +146,8 @@ func runImports(cmd *cobra.Command, g *globalOptions, o *importsOptions) error {
 func (o *importsOptions) checkAudit(cmd *cobra.Command) error {
 	f := cmd.Flags()
 	if !o.audit {
-		for _, name := range []string{"units", "out", "md", "csv", "before", "after", "k", "caliper", "propensity", "min-intensity", "window-before", "draws"} {
+		for _, name := range []string{"units", "unit-id", "unit-name", "out", "md", "csv", "before", "after", "k", "caliper", "propensity",
+			"min-intensity", "keep-import-accounts", "window-before", "draws", "seed", "inference"} {
 			if f.Changed(name) {
 				return usagef("--%s applies to the audit of every import: add --audit", name)
 			}
