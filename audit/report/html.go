@@ -275,7 +275,13 @@ var page = template.Must(template.Must(template.New("report").Funcs(pageFuncs).P
 <li>{{.}}</li>{{end}}
 </ul>
 </section>
-{{end}}{{if .Notes}}<section id="notes">
+{{end}}{{if not .HasAudit}}{{if .Glossary}}<section id="glossary">
+<h2>What the numbers mean</h2>
+<dl class="glossary">{{range .Glossary}}
+<dt>{{.Name}}</dt><dd>{{.Text}}</dd>{{end}}
+</dl>
+</section>
+{{end}}{{end}}{{if .Notes}}<section id="notes">
 <h2>Notes</h2>
 <ul>{{range .Notes}}
 <li>{{.}}</li>{{end}}

@@ -119,6 +119,12 @@ func WriteMarkdown(w io.Writer, in Input) error {
 		}
 	}
 
+	if !v.HasAudit && len(v.Glossary) > 0 {
+		b.WriteString("\n## What the numbers mean\n\n")
+		for _, t := range v.Glossary {
+			fmt.Fprintf(&b, "- **%s**: %s\n", e(t.Name), e(t.Text))
+		}
+	}
 	if len(v.MoreWarnings) > 0 {
 		b.WriteString("\n## More warnings\n\n")
 		for _, s := range v.MoreWarnings {

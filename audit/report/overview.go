@@ -27,9 +27,11 @@ const (
 	FileOverviewJSON     = "overview.json"
 )
 
-// OverviewFiles are the names of the files WriteOverview creates, in writing
-// order.
-var OverviewFiles = []string{FileOverviewMarkdown, FileOverviewHTML, FileOverviewCSV, FileOverviewJSON}
+// OverviewFiles returns the names of the files WriteOverview creates, in
+// writing order.
+func OverviewFiles() []string {
+	return []string{FileOverviewMarkdown, FileOverviewHTML, FileOverviewCSV, FileOverviewJSON}
+}
 
 // WriteOverview creates dir if needed and writes the overview of all imports
 // into it as overview.md, overview.html, overview.csv and overview.json, each
@@ -47,7 +49,7 @@ func WriteOverview(dir string, ov *audit.Overview) error {
 		FileOverviewCSV:      func(w io.Writer) error { return WriteOverviewCSV(w, ov) },
 		FileOverviewJSON:     ov.WriteJSON,
 	}
-	for _, name := range OverviewFiles {
+	for _, name := range OverviewFiles() {
 		if err := writeAtomic(filepath.Join(dir, name), writers[name]); err != nil {
 			return err
 		}
@@ -119,6 +121,7 @@ type overviewLine struct {
 	SizeText string
 	Cells    []overviewCell // per layer, in layers.Layers order
 	Keys     []string       // "building:levels on building=*: 12% vs 63%"
+	NoKeys   string         // what the keys column says when Keys is empty
 	Order    template.CSS   // the sort ranks, as CSS custom properties
 }
 
@@ -151,6 +154,10 @@ func newOverviewLines(ov *audit.Overview) []overviewLine {
 		for _, ly := range layers.Layers {
 			l.Cells = append(l.Cells, newOverviewCell(r, ly.String()))
 		}
+		l.NoKeys = "none flagged"
+		if r.Error != "" {
+			l.NoKeys = "not audited"
+		}
 		for _, k := range r.TopKeys {
 			l.Keys = append(l.Keys, fmt.Sprintf("%s on %s: %.0f%% vs %.0f%%", k.Key, k.Class, 100*k.ImportShare, 100*k.ReferenceShare))
 		}
@@ -160,32 +167,37 @@ func newOverviewLines(ov *audit.Overview) []overviewLine {
 	return out
 }
 
-// overviewSorts are the sortable columns of the HTML table: the key each
-// sorts by (NaN: no value, placed last both ways).
-var overviewSorts = []struct {
+// overviewSort is a sortable column of the HTML table: the key it sorts by
+// (NaN: no value, placed last both ways).
+type overviewSort struct {
 	Name string
 	Key  func(l *overviewLine) float64
-}{
-	{"import", func(l *overviewLine) float64 { return monthNumber(l.Row.FirstMonth) }},
-	{"areas", func(l *overviewLine) float64 {
-		if l.Row.Error != "" {
-			return math.NaN()
-		}
-		return float64(len(l.Row.ImportAreas))
-	}},
-	{"size", func(l *overviewLine) float64 { return float64(l.Size) }},
-	{"geometry", func(l *overviewLine) float64 { return l.Cells[0].Sort }},
-	{"attribute", func(l *overviewLine) float64 { return l.Cells[1].Sort }},
-	{"new_feature", func(l *overviewLine) float64 { return l.Cells[2].Sort }},
-	{"deletion", func(l *overviewLine) float64 { return l.Cells[3].Sort }},
-	{"keys", func(l *overviewLine) float64 {
-		var n int
-		for _, k := range l.Row.TopKeys {
-			n = max(n, k.Affected)
-		}
-		return float64(n)
-	}},
-	{"warnings", func(l *overviewLine) float64 { return float64(len(l.Row.Warnings)) }},
+}
+
+// overviewSorts are the sortable columns, in the table's order.
+func overviewSorts() []overviewSort {
+	return []overviewSort{
+		{"import", func(l *overviewLine) float64 { return monthNumber(l.Row.FirstMonth) }},
+		{"areas", func(l *overviewLine) float64 {
+			if l.Row.Error != "" {
+				return math.NaN()
+			}
+			return float64(len(l.Row.ImportAreas))
+		}},
+		{"size", func(l *overviewLine) float64 { return float64(l.Size) }},
+		{"geometry", func(l *overviewLine) float64 { return l.Cells[0].Sort }},
+		{"attribute", func(l *overviewLine) float64 { return l.Cells[1].Sort }},
+		{"new_feature", func(l *overviewLine) float64 { return l.Cells[2].Sort }},
+		{"deletion", func(l *overviewLine) float64 { return l.Cells[3].Sort }},
+		{"keys", func(l *overviewLine) float64 {
+			var n int
+			for _, k := range l.Row.TopKeys {
+				n = max(n, k.Affected)
+			}
+			return float64(n)
+		}},
+		{"warnings", func(l *overviewLine) float64 { return float64(len(l.Row.Warnings)) }},
+	}
 }
 
 // monthNumber turns YYYY-MM into a number that sorts by time; NaN when it
@@ -207,10 +219,10 @@ func monthNumber(m string) float64 {
 func setSortOrder(lines []overviewLine) {
 	ranks := make([][]int, len(lines))
 	for i := range ranks {
-		ranks[i] = make([]int, 2*len(overviewSorts))
+		ranks[i] = make([]int, 2*len(overviewSorts()))
 	}
 	idx := make([]int, len(lines))
-	for k, s := range overviewSorts {
+	for k, s := range overviewSorts() {
 		for dir := range 2 {
 			for i := range idx {
 				idx[i] = i
@@ -237,7 +249,7 @@ func setSortOrder(lines []overviewLine) {
 	}
 	for i := range lines {
 		var b strings.Builder
-		for k := range overviewSorts {
+		for k := range overviewSorts() {
 			fmt.Fprintf(&b, "--a%d:%d;--d%d:%d;", k, ranks[i][2*k], k, ranks[i][2*k+1])
 		}
 		lines[i].Order = template.CSS(b.String())
@@ -285,9 +297,9 @@ main { max-width: 80rem; }
 <input type="radio" class="sorter" name="sort" id="s{{$k}}d" aria-label="sort by {{$s.Name}}, largest first">
 {{end}}<div class="ov">
 <table>
-<thead><tr>{{range $k, $h := .Headers}}<th>{{$h}}{{if ge (index $.SortOf $k) 0}}<br><label for="s{{index $.SortOf $k}}a" title="smallest first">▲</label><label for="s{{index $.SortOf $k}}d" title="largest first">▼</label>{{end}}</th>{{end}}</tr></thead>
+<thead><tr>{{range $k, $h := .Headers}}<th>{{$h}}<br><label for="s{{$k}}a" title="smallest first">▲</label><label for="s{{$k}}d" title="largest first">▼</label></th>{{end}}</tr></thead>
 <tbody>{{range .Lines}}
-<tr style="{{.Order}}"><td><strong>{{.Row.Import}}</strong><small>{{.Accounts}}</small><small>{{.Months}}</small>{{if .Compared}}<small>{{.Compared}}</small>{{end}}</td><td>{{.Areas}}</td><td class="n">{{.Size}}<small>{{.SizeText}}</small></td>{{range .Cells}}<td class="n{{if .Flag}} clear{{end}}">{{if .Effect}}{{.Effect}}<small>{{.Interval}}</small>{{end}}<small>{{.Reading}}</small></td>{{end}}<td>{{if .Keys}}<ul>{{range .Keys}}<li>{{.}}</li>{{end}}</ul>{{else}}none flagged{{end}}</td><td class="n">{{len .Row.Warnings}}</td></tr>{{end}}
+<tr style="{{.Order}}"><td><strong>{{.Row.Import}}</strong><small>{{.Accounts}}</small><small>{{.Months}}</small>{{if .Compared}}<small>{{.Compared}}</small>{{end}}</td><td>{{.Areas}}</td><td class="n">{{.Size}}<small>{{.SizeText}}</small></td>{{range .Cells}}<td class="n{{if .Flag}} clear{{end}}">{{if .Effect}}{{.Effect}}<small>{{.Interval}}</small>{{end}}<small>{{.Reading}}</small></td>{{end}}<td>{{if .Keys}}<ul>{{range .Keys}}<li>{{.}}</li>{{end}}</ul>{{else}}{{.NoKeys}}{{end}}</td><td class="n">{{len .Row.Warnings}}</td></tr>{{end}}
 </tbody>
 </table>
 </div>
@@ -303,12 +315,11 @@ main { max-width: 80rem; }
 </html>
 `))
 
-// overviewHeaders are the table's column headings; overviewSortOf gives the
-// index into overviewSorts of each (-1: not sortable).
-var (
-	overviewHeaders = []string{"Import", "Area", "Size (versions)", "Geometry", "Attribute", "New features", "Deletions", "Neglected keys", "Warnings"}
-	overviewSortOf  = []int{0, 1, 2, 3, 4, 5, 6, 7, 8}
-)
+// overviewHeaders returns the table's column headings, each sortable by the
+// overviewSorts entry of the same index.
+func overviewHeaders() []string {
+	return []string{"Import", "Area", "Size (versions)", "Geometry", "Attribute", "New features", "Deletions", "Neglected keys", "Warnings"}
+}
 
 // overviewTitle heads the overview in every format.
 const overviewTitle = "Follow-on editing after every import in the store"
@@ -321,12 +332,23 @@ func overviewLead(ov *audit.Overview) string {
 			failed++
 		}
 	}
-	s := fmt.Sprintf("%d imports found in the store, each audited on its own over the units %s, in the months each row names (up to %d before and %d after the import, as far as the store's history reaches). Each layer's figure is how follow-on editing by other mappers changed in the areas the import reached, against matched areas it did not touch.",
-		len(ov.Imports), orDash(ov.Units), ov.Before, ov.After)
-	if failed > 0 {
+	s := fmt.Sprintf("%s found in the store, each audited on its own over the units %s, in the months each row names (up to %d before and %d after the import, as far as the store's history reaches). Each layer's figure is how follow-on editing by other mappers changed in the areas the import reached, against matched areas it did not touch.",
+		plural(len(ov.Imports), "import", "imports"), orDash(ov.Units), ov.Before, ov.After)
+	switch {
+	case failed == 1:
+		s += " 1 could not be audited; its row says why."
+	case failed > 1:
 		s += fmt.Sprintf(" %d could not be audited; their rows say why.", failed)
 	}
 	return s
+}
+
+// plural is "1 import" or "N imports".
+func plural(n int, one, many string) string {
+	if n == 1 {
+		return "1 " + one
+	}
+	return fmt.Sprintf("%d %s", n, many)
 }
 
 // WriteOverviewHTML writes the overview as one self-contained HTML page whose
@@ -340,14 +362,13 @@ func WriteOverviewHTML(w io.Writer, ov *audit.Overview) error {
 		Columns    int
 		Sorts      []struct{ Name string }
 		Headers    []string
-		SortOf     []int
 		Lines      []overviewLine
 		Glossary   []term
 		Provenance []provRow
 		Cautions   []string
-	}{Title: overviewTitle, Lead: overviewLead(ov), Columns: len(overviewHeaders), Headers: overviewHeaders, SortOf: overviewSortOf,
+	}{Title: overviewTitle, Lead: overviewLead(ov), Columns: len(overviewHeaders()), Headers: overviewHeaders(),
 		Lines: newOverviewLines(ov), Glossary: overviewGlossary(ov), Cautions: ov.Cautions}
-	for _, s := range overviewSorts {
+	for _, s := range overviewSorts() {
 		data.Sorts = append(data.Sorts, struct{ Name string }{s.Name})
 	}
 	if ov.Provenance != nil {
@@ -366,7 +387,7 @@ func WriteOverviewMarkdown(w io.Writer, ov *audit.Overview) error {
 		fmt.Fprintf(&b, "> **%s**\n\n", e(InventedBanner))
 	}
 	fmt.Fprintf(&b, "%s\n\n", e(overviewLead(ov)))
-	b.WriteString("| " + strings.Join(overviewHeaders, " | ") + " |\n|---|---|---:|---:|---:|---:|---:|---|---:|\n")
+	b.WriteString("| " + strings.Join(overviewHeaders(), " | ") + " |\n|---|---|---:|---:|---:|---:|---:|---|---:|\n")
 	for _, l := range newOverviewLines(ov) {
 		imp := "**" + e(l.Row.Import) + "** " + e(l.Accounts) + ", " + e(l.Months)
 		if l.Compared != "" {
@@ -380,7 +401,7 @@ func WriteOverviewMarkdown(w io.Writer, ov *audit.Overview) error {
 			}
 			cells = append(cells, s)
 		}
-		keys := "none flagged"
+		keys := l.NoKeys
 		if len(l.Keys) > 0 {
 			ks := make([]string, len(l.Keys))
 			for i, k := range l.Keys {

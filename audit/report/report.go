@@ -209,27 +209,34 @@ func MakeCharts(in Input) ([]Chart, error) {
 	return out, nil
 }
 
-// layerNames are each layer's edits in plain words: a short label for the
-// first screen and a phrase for sentences.
-var layerNames = map[string]struct{ label, words string }{
-	layers.Geometry.String():   {"Moving or reshaping features", "edits that move or reshape existing features"},
-	layers.Attribute.String():  {"Changing tags", "edits that change the tags of existing features"},
-	layers.NewFeature.String(): {"Mapping new features", "newly mapped features"},
-	layers.Deletion.String():   {"Deleting features", "deleted features"},
+// layerName gives a layer's edits in plain words: a short label for the
+// first screen and a phrase for sentences; ok is false for other outcomes.
+func layerName(layer string) (label, words string, ok bool) {
+	switch layer {
+	case layers.Geometry.String():
+		return "Moving or reshaping features", "edits that move or reshape existing features", true
+	case layers.Attribute.String():
+		return "Changing tags", "edits that change the tags of existing features", true
+	case layers.NewFeature.String():
+		return "Mapping new features", "newly mapped features", true
+	case layers.Deletion.String():
+		return "Deleting features", "deleted features", true
+	}
+	return "", "", false
 }
 
 // layerWords describes a layer's edits in plain words.
 func layerWords(layer string) string {
-	if n, ok := layerNames[layer]; ok {
-		return n.words
+	if _, words, ok := layerName(layer); ok {
+		return words
 	}
 	return layer + " counts"
 }
 
 // layerLabel names a layer's edits in a few plain words.
 func layerLabel(layer string) string {
-	if n, ok := layerNames[layer]; ok {
-		return n.label
+	if label, _, ok := layerName(layer); ok {
+		return label
 	}
 	return layer
 }

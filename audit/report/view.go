@@ -261,7 +261,7 @@ func newView(in Input) view {
 		{"Intensity", "The import's objects in an area as a share of the area's features (the features already there plus the imported ones). An area becomes an import area when its intensity reaches the chosen threshold; lighter touches are excluded from both groups."},
 		{"ATT (average effect on the treated)", "The change the import made in the import areas themselves, in edits per area and month: what they saw minus what the comparison areas say they would have seen. The relative effect expresses it as a share."},
 		{"SMD (standardized mean difference)", "How far apart the import areas and the comparison areas were on a trait before the import, in standard deviations of that trait. Within ±0.1 counts as alike."},
-		{"q-value", "A p-value adjusted for testing many tags at once (Benjamini–Hochberg): among keys flagged with q below 0.05, at most about 5% are expected to be false alarms."},
+		qValueTerm(),
 		{"Event study", "The effect month by month, from the months before the import reached an area (where it should be near zero) to the months after."},
 		{"Placebo", "The same comparison with the start dates moved back into the time before the import. An 'effect' there points to differences that were not caused by the import."},
 		{"Estimators", "Every headline figure, chart and per-area figure comes from one model, " + headlineEstimator + ": it fits the counts with a Poisson model, comparing each wave of import areas only with clean comparison areas, and reads the change as a ratio, which suits edit counts that grow and shrink in proportion. The other estimators are robustness checks: cs-att compares each wave with never-imported comparison areas (Callaway and Sant'Anna's method) in edit counts; twfe-linear is the linear month-by-month regression; did-2x2 is the simple before/after, import/comparison difference. The robustness section says, layer by layer, whether they agree."},
@@ -361,7 +361,24 @@ func partView(in Input) view {
 	v.Cautions = []string{
 		"These figures are evidence, not proof: read them with the local community, and follow the community's import guidelines and local review before any upload or bulk edit.",
 	}
+	v.Glossary = partGlossary()
 	return v
+}
+
+// qValueTerm explains the q of the checklist tables.
+func qValueTerm() term {
+	return term{"q-value", "A p-value adjusted for testing many tags at once (Benjamini–Hochberg): among keys flagged with q below 0.05, at most about 5% are expected to be false alarms."}
+}
+
+// partGlossary explains the terms of the checklist and assessment sections
+// in a report without an audit (an audit's glossary covers them too).
+func partGlossary() []term {
+	return []term{
+		{"Share with key", "Of the features of a class, how many carry the key, with its 95% interval (Wilson's score interval)."},
+		{"Difference, points", "The imported features' share minus the reference features' share, in percentage points, with its 95% interval (Newcombe's hybrid score interval)."},
+		qValueTerm(),
+		{"Import area", "An area where the proposal's or a past import's objects would make up at least the chosen share of the features there (the intensity threshold)."},
+	}
 }
 
 func estimateRowOf(e did.Effect) estimateRow {

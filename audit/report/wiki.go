@@ -150,6 +150,12 @@ func WriteWiki(w io.Writer, in Input) error {
 	if in.Assessment != nil {
 		writeWikiAssessment(&b, newHTMLAssessment(in.Assessment), heading, list)
 	}
+	if !v.HasAudit && len(v.Glossary) > 0 {
+		heading(2, "What the numbers mean")
+		for _, t := range v.Glossary {
+			fmt.Fprintf(&b, "; %s\n: %s\n", e(t.Name), e(t.Text))
+		}
+	}
 	if len(v.MoreWarnings) > 0 {
 		heading(2, "More warnings")
 		list(v.MoreWarnings)

@@ -147,7 +147,8 @@ func runImports(cmd *cobra.Command, g *cli.Globals, o *importsOptions) error {
 func (o *importsOptions) checkAudit(cmd *cobra.Command) error {
 	f := cmd.Flags()
 	if !o.audit {
-		for _, name := range []string{"units", "out", "md", "csv", "before", "after", "k", "caliper", "propensity", "min-intensity", "window-before", "draws"} {
+		for _, name := range []string{"units", "unit-id", "unit-name", "out", "md", "csv", "before", "after", "k", "caliper", "propensity",
+			"min-intensity", "keep-import-accounts", "window-before", "draws", "seed", "inference"} {
 			if f.Changed(name) {
 				return cli.Usagef("--%s applies to the audit of every import: add --audit", name)
 			}
@@ -208,6 +209,6 @@ func auditImports(cmd *cobra.Command, g *cli.Globals, o *importsOptions, outs *c
 	if err := report.WriteOverview(o.out, ov); err != nil {
 		return err
 	}
-	fmt.Fprintf(outs.Text, "wrote the overview to %s (%s; open overview.html in a browser)\n", o.out, cli.JoinOr(report.OverviewFiles, ""))
+	fmt.Fprintf(outs.Text, "wrote the overview to %s (%s; open overview.html in a browser)\n", o.out, cli.JoinOr(report.OverviewFiles(), ""))
 	return nil
 }
