@@ -67,11 +67,13 @@
 // that gallops out from the previous answer (the nodes of a way mostly have
 // nearby ids), then picks the last version not after the time, as the store's
 // own NodeAt does. There is no per-node store lookup and no per-node memory:
-// the kernel keeps the hot pages of the file cached like any other file, and
-// every 256 runs (below) the scan drops the tables' pages from the process's
-// resident set (madvise MADV_DONTNEED; they stay in the page cache), so the
-// resident set does not grow with the tables either. On systems without mmap
-// the file is read into memory.
+// the kernel keeps the hot pages of the file cached like any other file.
+// Tables of up to 256 MiB together (the node position and node→way tables of
+// some 10 million versions) may stay resident whole; above that, every 256
+// runs (below) the scan drops the tables' pages from the process's resident
+// set (madvise MADV_DONTNEED; they stay in the page cache), so the resident
+// set does not grow with the tables either, at the price of page faults in
+// the searches. On systems without mmap the file is read into memory.
 //
 // # Concurrency
 //

@@ -107,6 +107,14 @@ func (t *nodePositions) close() error {
 	return t.sortedTable.close()
 }
 
+// size is the table's size in bytes; 0 for nil.
+func (t *nodePositions) size() int64 {
+	if t == nil {
+		return 0
+	}
+	return t.sortedTable.size()
+}
+
 // release drops the table's pages from the resident set; nil does nothing.
 func (t *nodePositions) release() {
 	if t != nil {

@@ -83,6 +83,19 @@ func (x *nodeWayIndex) get(ctx context.Context, src Source) (*nodeWayTable, erro
 	return t, nil
 }
 
+// size is the table's size in bytes, 0 before it is built or while it is
+// being built.
+func (x *nodeWayIndex) size() int64 {
+	if !x.mu.TryLock() {
+		return 0
+	}
+	defer x.mu.Unlock()
+	if x.table == nil {
+		return 0
+	}
+	return x.table.size()
+}
+
 // release drops the table's pages from the resident set unless it is being
 // built.
 func (x *nodeWayIndex) release() {

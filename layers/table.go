@@ -131,6 +131,14 @@ func (t *sortedTable) release() {
 	}
 }
 
+// size is the table's size in bytes; 0 for nil.
+func (t *sortedTable) size() int64 {
+	if t == nil {
+		return 0
+	}
+	return int64(len(t.data))
+}
+
 // close unmaps the table; closing a nil or closed table does nothing.
 func (t *sortedTable) close() error {
 	if t == nil || t.unmap == nil {
