@@ -69,14 +69,12 @@ func simPanel(t *testing.T, tr *sim.Truth, from, to int) *panel.Panel {
 // (ppml-twfe, the audit's inference) detects the fall is the observed rate;
 // the predicted power is Simulate's, from a model fitted on each world's own
 // pre-import months alone (as plan fits the store's history), averaged over
-// the worlds. The target is agreement within 5 points; it is not met: one
-// run of 200 worlds measured an observed rate of 71.0% [64.4%, 76.8%]
-// against a predicted 85.0% [82.7%, 87.1%] (1,000 simulated evaluations),
-// +14.0 points: the model of past activity (independent negative binomial
-// months around fitted levels, from 8 months) misses structure of the
-// simulator's activity (edits in sessions, stock that grows with imported
-// features), so the predicted power is optimistic. The test guards that
-// measured gap (at most 20 points) until the model is improved.
+// the worlds. They must agree within 5 points. One run of 200 worlds
+// measured an observed rate of 71.0% [64.4%, 76.8%] against a predicted
+// 70.5% [67.6%, 73.2%] (1,000 simulated evaluations): −0.5 points. (Before
+// Fit stopped extrapolating trends from under two years of history, the
+// same run predicted 85.0%: eight months of a seasonal cycle had been read
+// as growth.)
 func TestPredictedPowerMatchesSimulatedWorlds(t *testing.T) {
 	n := 200
 	if s := os.Getenv("LOADWAKE_POWER_WORLDS"); s != "" {
@@ -123,9 +121,6 @@ func TestPredictedPowerMatchesSimulatedWorlds(t *testing.T) {
 	t.Logf("observed detection over %d worlds: %.1f%% [%.1f%%, %.1f%%]; predicted power: %.1f%% [%.1f%%, %.1f%%] over %d simulated evaluations; difference %+.1f points",
 		n, 100*obs.Estimate, 100*obs.Lower, 100*obs.Upper, 100*pre.Estimate, 100*pre.Lower, 100*pre.Upper, n*perWorld, diff)
 	if math.Abs(diff) > 5 {
-		t.Logf("target missed: predicted power %.1f%% and observed rate %.1f%% differ by %+.1f points, more than 5", 100*pre.Estimate, 100*obs.Estimate, diff)
-	}
-	if math.Abs(diff) > 20 {
-		t.Errorf("predicted power %.1f%% and observed rate %.1f%% differ by %+.1f points, beyond the measured gap's guard of 20", 100*pre.Estimate, 100*obs.Estimate, diff)
+		t.Errorf("predicted power %.1f%% and observed rate %.1f%% differ by %+.1f points, more than 5", 100*pre.Estimate, 100*obs.Estimate, diff)
 	}
 }

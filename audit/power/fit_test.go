@@ -67,6 +67,25 @@ func TestFitRecoversPlantedActivity(t *testing.T) {
 	})
 }
 
+// TestFitNoTrendFromShortHistory: eight months of a rising seasonal cycle
+// give no trend (it cannot be told from the season with under two years).
+func TestFitNoTrendFromShortHistory(t *testing.T) {
+	p := &panel.Panel{Start: time.Date(2020, 1, 1, 0, 0, 0, 0, time.UTC), Months: 8, Outcomes: []string{"attribute"}}
+	y := make([]float64, 0, 8)
+	for m := range 8 {
+		y = append(y, math.Round(10*math.Exp(0.3*math.Sin(2*math.Pi*float64(m-3)/12))))
+	}
+	p.Units = []panel.Unit{{ID: "a", FirstTreated: -1, Weight: 1}}
+	p.Y = [][]float64{y}
+	m, err := Fit(p)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m.Layers[0].Trend != 0 {
+		t.Errorf("trend %.4f from 8 months, want 0", m.Layers[0].Trend)
+	}
+}
+
 func TestFitRefuses(t *testing.T) {
 	for _, tc := range []struct {
 		name string

@@ -62,6 +62,9 @@ func WaveFileName(w, k, parts int) string {
 // features in no unit into unplaced.osc, and records the names in the wave
 // list. It returns the paths written.
 func (pl *Plan) WriteWaves(dir string) ([]string, error) {
+	if pl.proposal == nil {
+		return nil, fmt.Errorf("%w: a plan read back from JSON holds no features; run loadwake plan for the wave files", ErrPlan)
+	}
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		return nil, fmt.Errorf("rollout: create %s: %w", dir, err)
 	}
@@ -145,6 +148,9 @@ func (pl *Plan) WriteCSV(w io.Writer) error {
 // WriteGeoJSON writes the plan's units as RFC 7946 features with their
 // wave and planned start month.
 func (pl *Plan) WriteGeoJSON(w io.Writer) error {
+	if pl.units == nil {
+		return fmt.Errorf("%w: a plan read back from JSON holds no unit shapes; run loadwake plan for the GeoJSON", ErrPlan)
+	}
 	fc := geojson.NewFeatureCollection()
 	for _, u := range pl.Units {
 		f := geojson.NewFeature(pl.units.Geometry(u.index))
