@@ -71,12 +71,12 @@ func newRetentionView(r *retention.Result) *retentionView {
 		g := cell[[2]string{areas, period}]
 		for _, s := range g.Retention {
 			if s.Months == 12 && s.Followed > 0 {
-				return fmt.Sprintf("%.0f%% of the %d the data follow that long", 100*s.Share, s.Followed)
+				return fmt.Sprintf("%.0f%% (of %d)", 100*s.Share, s.Followed)
 			}
 		}
 		return "not yet known"
 	}
-	v.Story = append(v.Story, fmt.Sprintf("Of the accounts that made their first edit in an import area after the import, %s were still editing 12 months later; before the import it was %s. In the comparison areas: %s after, %s before.",
+	v.Story = append(v.Story, fmt.Sprintf("Of the accounts that made their first edit in an import area after the import, and that the data follow for a year, %s were still editing 12 months later; before the import, %s. In the comparison areas: %s after, %s before.",
 		year("import", "after"), year("import", "before"), year("comparison", "after"), year("comparison", "before")))
 	e := r.Retention12
 	switch {
@@ -248,4 +248,4 @@ func retentionChart(r *retention.Result, render renderFunc) (svg []byte, ok bool
 }
 
 // retentionCaption says what the retention chart shows.
-const retentionCaption = "The share of newcomers still editing, by months since their first edit (Kaplan–Meier, counting accounts the data cannot yet follow as far as they go): import areas in vermilion, comparison areas in blue; solid lines for newcomers who started after the import, dashed for before. If the import changed nothing, the gap between solid and dashed lines is about the same in both colours."
+const retentionCaption = "The share of newcomers still editing, by months since their first edit (Kaplan–Meier: an account counts as stopped at its last edit once 6 months pass without another before the data end, and accounts the data cannot yet follow are counted as far as they go): import areas in vermilion, comparison areas in blue; solid lines for newcomers who started after the import, dashed for before. If the import changed nothing, the gap between solid and dashed lines is about the same in both colours. The table's shares count instead whether an edit came on or after the day 12 (3, 6, 24) months on, among newcomers first seen at least that long before the data end; for accounts that edit rarely the two can differ."
