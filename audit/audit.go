@@ -113,6 +113,25 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 	if err != nil {
 		return nil, err
 	}
+	est, err := estimateStudy(ctx, st, so, opts)
+	if err != nil {
+		return nil, err
+	}
+	r := newReport(ep, st, est, so, opts.UnitSpec)
+	r.Event = importEvent(ep)
+	r.Provenance = NewProvenance(opts.Generator)
+	r.Provenance.Window, r.Provenance.Units = st.Window, opts.UnitSpec
+	if err := r.Provenance.addImport(ctx, src, ep); err != nil {
+		return nil, err
+	}
+	return r, nil
+}
+
+// estimateStudy runs the estimators on a study's panel with opts.Estimate,
+// or the defaults with the study's window: one place for Run and
+// RunTreatment, so that an assignment's audit estimates exactly as an
+// import's.
+func estimateStudy(ctx context.Context, st *study.Study, so study.Options, opts Options) (*did.Estimates, error) {
 	eo := opts.Estimate
 	if eo.Draws == 0 {
 		def := did.DefaultOptions()
@@ -123,14 +142,7 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 	if err != nil {
 		return nil, fmt.Errorf("estimate: %w", err)
 	}
-	r := newReport(ep, st, est, so, opts.UnitSpec)
-	r.Event = importEvent(ep)
-	r.Provenance = NewProvenance(opts.Generator)
-	r.Provenance.Window, r.Provenance.Units = st.Window, opts.UnitSpec
-	if err := r.Provenance.addImport(ctx, src, ep); err != nil {
-		return nil, err
-	}
-	return r, nil
+	return est, nil
 }
 
 func newReport(ep *episode.Episode, st *study.Study, est *did.Estimates, so study.Options, spec string) *Report {

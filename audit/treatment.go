@@ -4,7 +4,6 @@ import (
 	"context"
 	"fmt"
 
-	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/episode"
 	"github.com/loadwake/loadwake/audit/study"
 )
@@ -55,15 +54,9 @@ func RunTreatment(ctx context.Context, src Source, a *study.Assignment, eps []ep
 	if err != nil {
 		return nil, err
 	}
-	eo := opts.Estimate
-	if eo.Draws == 0 {
-		def := did.DefaultOptions()
-		def.Window = did.Window{Pre: min(so.Before, 12), Post: so.After}
-		eo = def
-	}
-	est, err := did.Estimate(ctx, st.Panel, eo)
+	est, err := estimateStudy(ctx, st, so, opts)
 	if err != nil {
-		return nil, fmt.Errorf("estimate: %w", err)
+		return nil, err
 	}
 	first, last := a.Span()
 	ev := &episode.Episode{ID: a.Event, Matchers: []string{"treatment file " + a.Source}, Accounts: []episode.Account{},
