@@ -113,9 +113,10 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 	if err != nil {
 		return nil, err
 	}
-	est, err := estimateStudy(ctx, st, so, opts)
+	eo := estimateOptions(so, opts)
+	est, err := did.Estimate(ctx, st.Panel, eo)
 	if err != nil {
-		return nil, err
+		return nil, fmt.Errorf("estimate: %w", err)
 	}
 	r := newReport(ep, st, est, so, opts.UnitSpec)
 	r.Event = importEvent(ep)
@@ -127,22 +128,17 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 	return r, nil
 }
 
-// estimateStudy runs the estimators on a study's panel with opts.Estimate,
-// or the defaults with the study's window: one place for Run and
-// RunTreatment, so that an assignment's audit estimates exactly as an
-// import's.
-func estimateStudy(ctx context.Context, st *study.Study, so study.Options, opts Options) (*did.Estimates, error) {
+// estimateOptions are the estimator options of a study: opts.Estimate, or
+// the defaults with the study's window. One place for Run and RunTreatment,
+// so that an assignment's audit estimates exactly as an import's.
+func estimateOptions(so study.Options, opts Options) did.Options {
 	eo := opts.Estimate
 	if eo.Draws == 0 {
 		def := did.DefaultOptions()
 		def.Window = did.Window{Pre: min(so.Before, 12), Post: so.After}
 		eo = def
 	}
-	est, err := did.Estimate(ctx, st.Panel, eo)
-	if err != nil {
-		return nil, fmt.Errorf("estimate: %w", err)
-	}
-	return est, nil
+	return eo
 }
 
 func newReport(ep *episode.Episode, st *study.Study, est *did.Estimates, so study.Options, spec string) *Report {

@@ -4,6 +4,7 @@ import (
 	"context"
 	"fmt"
 
+	"github.com/loadwake/loadwake/audit/did"
 	"github.com/loadwake/loadwake/audit/episode"
 	"github.com/loadwake/loadwake/audit/study"
 )
@@ -54,9 +55,9 @@ func RunTreatment(ctx context.Context, src Source, a *study.Assignment, eps []ep
 	if err != nil {
 		return nil, err
 	}
-	est, err := estimateStudy(ctx, st, so, opts)
+	est, err := did.Estimate(ctx, st.Panel, estimateOptions(so, opts))
 	if err != nil {
-		return nil, err
+		return nil, fmt.Errorf("estimate: %w", err)
 	}
 	first, last := a.Span()
 	ev := &episode.Episode{ID: a.Event, Matchers: []string{"treatment file " + a.Source}, Accounts: []episode.Account{},
