@@ -122,15 +122,7 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 	if err != nil {
 		return nil, err
 	}
-	eo := opts.Estimate
-	if eo.Draws == 0 {
-		def := did.DefaultOptions()
-		def.Window = did.Window{Pre: min(so.Before, 12), Post: so.After}
-		eo = def
-	}
-	if eo.Family == nil {
-		eo.Family = familyLayers()
-	}
+	eo := estimateOptions(so, opts)
 	est, err := did.Estimate(ctx, st.Panel, eo)
 	if err != nil {
 		return nil, fmt.Errorf("estimate: %w", err)
@@ -153,6 +145,22 @@ func Run(ctx context.Context, src Source, ep *episode.Episode, others []episode.
 		return nil, err
 	}
 	return r, nil
+}
+
+// estimateOptions are the estimator options of a study: opts.Estimate, or
+// the defaults with the study's window. One place for Run and RunTreatment,
+// so that an assignment's audit estimates exactly as an import's.
+func estimateOptions(so study.Options, opts Options) did.Options {
+	eo := opts.Estimate
+	if eo.Draws == 0 {
+		def := did.DefaultOptions()
+		def.Window = did.Window{Pre: min(so.Before, 12), Post: so.After}
+		eo = def
+	}
+	if eo.Family == nil {
+		eo.Family = familyLayers()
+	}
+	return eo
 }
 
 func newReport(ep *episode.Episode, st *study.Study, est *did.Estimates, so study.Options, spec string) *Report {

@@ -55,13 +55,7 @@ func RunTreatment(ctx context.Context, src Source, a *study.Assignment, eps []ep
 	if err != nil {
 		return nil, err
 	}
-	eo := opts.Estimate
-	if eo.Draws == 0 {
-		def := did.DefaultOptions()
-		def.Window = did.Window{Pre: min(so.Before, 12), Post: so.After}
-		eo = def
-	}
-	est, err := did.Estimate(ctx, st.Panel, eo)
+	est, err := did.Estimate(ctx, st.Panel, estimateOptions(so, opts))
 	if err != nil {
 		return nil, fmt.Errorf("estimate: %w", err)
 	}

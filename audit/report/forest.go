@@ -2,6 +2,7 @@ package report
 
 import (
 	"fmt"
+	"image/color"
 	"math"
 	"strings"
 
@@ -130,21 +131,23 @@ func forestChart(trait string, splits []did.Split, render renderFunc) ([]byte, b
 		l.Width = vg.Points(2.5)
 		p.Add(l)
 	}
-	if len(est) > 0 {
-		s, _ := plotter.NewScatter(est)
-		s.Shape = draw.PyramidGlyph{}
-		s.Radius = vg.Points(4.5)
-		s.Color = okBlack
+	for _, m := range []struct {
+		pts    plotter.XYs
+		shape  draw.GlyphDrawer
+		radius float64
+		colour color.Color
+		label  string
+	}{
+		{est, draw.PyramidGlyph{}, 4.5, okBlack, "effect with 95% interval"},
+		{hollow, draw.RingGlyph{}, 4, okPurple, "effect, no reliable interval"},
+	} {
+		if len(m.pts) == 0 {
+			continue
+		}
+		s, _ := plotter.NewScatter(m.pts)
+		s.Shape, s.Radius, s.Color = m.shape, vg.Points(m.radius), m.colour
 		p.Add(s)
-		p.Legend.Add("effect with 95% interval", s)
-	}
-	if len(hollow) > 0 {
-		s, _ := plotter.NewScatter(hollow)
-		s.Shape = draw.RingGlyph{}
-		s.Radius = vg.Points(4)
-		s.Color = okPurple
-		p.Add(s)
-		p.Legend.Add("effect, no reliable interval", s)
+		p.Legend.Add(m.label, s)
 	}
 	rev := make([]string, len(names))
 	for i, s := range names {
