@@ -57,7 +57,7 @@ func TestIngestKilled(t *testing.T) {
 	if os.Getenv(killChildDir) != "" {
 		t.Skip("in the child")
 	}
-	kills := 3
+	kills := killRuns
 	if testing.Short() {
 		kills = 1
 	}

@@ -10,6 +10,7 @@ import (
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/episode"
+	"github.com/loadwake/loadwake/audit/internal/simtest"
 	"github.com/loadwake/loadwake/audit/internal/worldtest"
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/audit/study"
@@ -32,10 +33,13 @@ func treatedByTruth(t *sim.Truth, uid int) map[string]string {
 }
 
 func TestStudyOnSimulatedWorld(t *testing.T) {
-	// The default world at half its activity: the same districts, imports and
-	// planted effects at half the build cost.
+	// make test: the default world at half its activity (the same districts,
+	// imports and planted effects at half the build cost); make validate: the
+	// default world.
 	cfg := sim.DefaultConfig()
-	cfg.Scale = 0.5
+	if !simtest.Validate {
+		cfg.Scale = 0.5
+	}
 	w := worldtest.Build(t, cfg)
 
 	// Detected episodes hold exactly the planted import changesets.

@@ -8,6 +8,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"sync"
 	"testing"
 
 	"github.com/loadwake/loadwake/audit/sim"
@@ -17,24 +18,51 @@ import (
 	"github.com/loadwake/loadwake/rules"
 )
 
+// simulated is the invented world of simulatedStore, built once per test
+// binary: the tests that use it only read its store and files.
+var simulated struct {
+	once  sync.Once
+	dir   string // holds the world and the store; removed by TestMain
+	store string
+	world string
+	truth *sim.Truth
+	err   error
+}
+
 // simulatedStore generates a small invented world (audit/sim), ingests and
 // classifies it into a store on disk and returns the store's directory, the
-// world's folder and its truth.
+// world's folder and its truth. The first call builds it; later calls return
+// the same world, which callers must not change.
 func simulatedStore(t testing.TB) (string, string, *sim.Truth) {
 	t.Helper()
+	s := &simulated
+	s.once.Do(func() {
+		s.dir, s.err = os.MkdirTemp("", "loadwake-cmd-world-")
+		if s.err == nil {
+			s.store, s.world = filepath.Join(s.dir, "db"), filepath.Join(s.dir, "world")
+			s.truth, s.err = buildSimulatedStore(s.store, s.world)
+		}
+	})
+	if s.err != nil {
+		t.Fatal(s.err)
+	}
+	return s.store, s.world, s.truth
+}
+
+// buildSimulatedStore generates the world into world and ingests and
+// classifies it into the store dir.
+func buildSimulatedStore(dir, world string) (*sim.Truth, error) {
 	ctx := context.Background()
 	cfg := sim.DefaultConfig()
 	cfg.Cols, cfg.Rows, cfg.Months, cfg.Treated, cfg.Waves = 5, 5, 16, 5, 2
 	cfg.ImportBuildings, cfg.ImportPOIs = 120, 10
-	world := t.TempDir()
 	tr, err := sim.Generate(ctx, cfg, world, false)
 	if err != nil {
-		t.Fatal(err)
+		return nil, err
 	}
-	dir := filepath.Join(t.TempDir(), "db")
 	st, err := ingest.Open(dir, ingest.DefaultOptions())
 	if err != nil {
-		t.Fatal(err)
+		return nil, err
 	}
 	_, err = ingest.Ingest(ctx, st, []string{filepath.Join(world, sim.HistoryFile), filepath.Join(world, sim.ChangesetsFile)}, ingest.IngestOptions{})
 	if err == nil {
@@ -43,10 +71,7 @@ func simulatedStore(t testing.TB) (string, string, *sim.Truth) {
 	if cerr := st.Close(); err == nil {
 		err = cerr
 	}
-	if err != nil {
-		t.Fatal(err)
-	}
-	return dir, world, tr
+	return tr, err
 }
 
 func TestChecklistAndAssessCommands(t *testing.T) {

@@ -3,8 +3,10 @@ package main
 import (
 	"bytes"
 	"encoding/json"
+	"fmt"
 	"os"
 	"path/filepath"
+	"strconv"
 	"strings"
 	"testing"
 
@@ -21,7 +23,7 @@ func TestDemoAndReport(t *testing.T) {
 		t.Skip("simulates, ingests and audits a world")
 	}
 	dir := filepath.Join(t.TempDir(), "demo")
-	out, err := execRootOut(t, "demo", "--out", dir, "--grid", "4", "--scale", "0.5", "--draws", "99", "--seed", "2")
+	out, err := execRootOut(t, "demo", "--out", dir, "--grid", strconv.Itoa(demoGrid), "--scale", "0.5", "--draws", "99", "--seed", "2")
 	if err != nil {
 		t.Fatalf("demo: %v\n%s", err, out)
 	}
@@ -34,8 +36,8 @@ func TestDemoAndReport(t *testing.T) {
 			t.Errorf("line %d = %q, want it to start with %q", i+1, lines[i], prefix)
 		}
 	}
-	if !strings.Contains(lines[1], "16 districts") || !strings.Contains(out, "invented data") {
-		t.Errorf("summary does not describe the 4×4 invented world:\n%s", out)
+	if !strings.Contains(lines[1], fmt.Sprintf("%d districts", demoGrid*demoGrid)) || !strings.Contains(out, "invented data") {
+		t.Errorf("summary does not describe the %d×%d invented world:\n%s", demoGrid, demoGrid, out)
 	}
 	rdir := filepath.Join(dir, "report")
 	for _, name := range []string{report.FileMarkdown, report.FileHTML, report.FileJSON, report.FileUnits, report.FilePanel, report.FileChecklist, report.FileAssessment} {
@@ -60,8 +62,8 @@ func TestDemoAndReport(t *testing.T) {
 		Features []json.RawMessage `json:"features"`
 	}
 	b, _ := os.ReadFile(filepath.Join(rdir, report.FileUnits))
-	if err := json.Unmarshal(b, &units); err != nil || len(units.Features) != 16 {
-		t.Errorf("units.geojson: %d features, err %v; want 16", len(units.Features), err)
+	if err := json.Unmarshal(b, &units); err != nil || len(units.Features) != demoGrid*demoGrid {
+		t.Errorf("units.geojson: %d features, err %v; want %d", len(units.Features), err, demoGrid*demoGrid)
 	}
 	if _, err := execRootOut(t, "demo", "--out", dir); err == nil {
 		t.Error("a second demo into a full folder without --force should fail")

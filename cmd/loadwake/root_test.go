@@ -86,3 +86,12 @@ func writeBadOSM(t testing.TB, dir string) string {
 	}
 	return bad
 }
+
+// TestMain runs the tests, then removes the world simulatedStore built.
+func TestMain(m *testing.M) {
+	code := m.Run()
+	if simulated.dir != "" {
+		os.RemoveAll(simulated.dir)
+	}
+	os.Exit(code)
+}
