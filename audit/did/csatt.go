@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
 	"gonum.org/v1/gonum/mat"
@@ -95,7 +96,7 @@ func (r *csRun) prepareDR(cohorts map[int][]int) error {
 		addOuter(xpx, r.covariates(u), r.cw[i])
 	}
 	r.xpxInvC = mat.NewSymDense(r.k, nil)
-	if err := invSym(r.xpxInvC, xpx); err != nil {
+	if err := poisson.InvSym(r.xpxInvC, xpx); err != nil {
 		return fmt.Errorf("doubly robust: controls' covariates: %w", err)
 	}
 	for g, units := range cohorts {
@@ -270,7 +271,7 @@ func logit(x [][]float64, d, w []float64) ([]float64, *mat.SymDense, error) {
 				grad[a] += w[i] * (d[i] - p[i]) * xi[a]
 			}
 		}
-		if err := invSym(hinv, h); err != nil {
+		if err := poisson.InvSym(hinv, h); err != nil {
 			return nil, nil, fmt.Errorf("logistic regression: %w", err)
 		}
 		step := make([]float64, k)

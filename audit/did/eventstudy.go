@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/infer"
 
 	"github.com/loadwake/loadwake/audit/panel"
@@ -122,7 +123,7 @@ func newESDesign(p *panel.Panel, win Window) (*esDesign, error) {
 		}
 	}
 	d.xtxInv = mat.NewSymDense(d.K, nil)
-	if err := invSym(d.xtxInv, xtx); err != nil {
+	if err := poisson.InvSym(d.xtxInv, xtx); err != nil {
 		return nil, fmt.Errorf("event study: %w (no variation in event time; check first-treated months and window)", err)
 	}
 	return d, nil

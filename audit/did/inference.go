@@ -132,19 +132,6 @@ func sandwichCR1(bread *mat.SymDense, scores []float64, used []bool, k, nObs, kP
 	return out, G
 }
 
-// invSym inverts a symmetric positive definite matrix by Cholesky, reporting
-// errSingular when it is not (numerically) positive definite.
-func invSym(dst *mat.SymDense, a *mat.SymDense) error {
-	var ch mat.Cholesky
-	if ok := ch.Factorize(a); !ok {
-		return errSingular
-	}
-	if c := ch.Cond(); c > 1e13 || math.IsNaN(c) || math.IsInf(c, 0) {
-		return errSingular
-	}
-	return ch.InverseTo(dst)
-}
-
 // waldChi2 returns the Wald statistic b'V⁻¹b, its degrees of freedom and the
 // chi-square p-value. ok is false when V cannot be inverted.
 func waldChi2(b []float64, v *mat.SymDense) (stat float64, df int, p float64, ok bool) {
@@ -153,7 +140,7 @@ func waldChi2(b []float64, v *mat.SymDense) (stat float64, df int, p float64, ok
 		return 0, 0, 0, false
 	}
 	var inv mat.SymDense
-	if err := invSym(&inv, v); err != nil {
+	if err := poisson.InvSym(&inv, v); err != nil {
 		return 0, k, 0, false
 	}
 	bv := mat.NewVecDense(k, b)

@@ -4,6 +4,7 @@ import (
 	"math"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/internal/reftest"
 	"gonum.org/v1/gonum/mat"
 )
@@ -133,7 +134,7 @@ func olsCR1(x *mat.Dense, y, w []float64, cluster []int, G int) (*olsFit, error)
 		return nil, errSingular
 	}
 	var inv mat.SymDense
-	if err := invSym(&inv, xtx); err != nil {
+	if err := poisson.InvSym(&inv, xtx); err != nil {
 		return nil, err
 	}
 	beta := make([]float64, k)

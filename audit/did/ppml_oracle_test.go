@@ -147,7 +147,7 @@ func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 i
 				g[a] += om[i] * xt[a][i] * zt[i]
 			}
 		}
-		if err := invSym(&h, hh); err != nil {
+		if err := poisson.InvSym(&h, hh); err != nil {
 			return nil, fmt.Errorf("Poisson fixed effects: %w (a regressor is collinear with the fixed effects)", err)
 		}
 		mat.NewVecDense(k, beta).MulVec(&h, mat.NewVecDense(k, g))
@@ -197,7 +197,7 @@ func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 i
 			hh.SetSym(a, b, s)
 		}
 	}
-	if err := invSym(&h, hh); err != nil {
+	if err := poisson.InvSym(&h, hh); err != nil {
 		return nil, fmt.Errorf("Poisson fixed effects: %w", err)
 	}
 	scores := make([]float64, G*k)

@@ -385,7 +385,7 @@ func FitStackedAt(y []float64, x [][]float64, w []float64, cl []int, G int, bloc
 		return nil, fmt.Errorf("stacked Poisson: %d clusters, %d observations for %d parameters", Gu, nObs, kParams)
 	}
 	var sInv mat.SymDense
-	if err := invSym(&sInv, schur); err != nil {
+	if err := InvSym(&sInv, schur); err != nil {
 		return nil, fmt.Errorf("stacked Poisson: %w", err)
 	}
 	fit.Adj = float64(Gu) / float64(Gu-1) * float64(nObs-1) / float64(nObs-kParams)
@@ -458,9 +458,10 @@ func blockProbs(b Block, gam, beta []float64, x [][]float64, free []int, pi []fl
 	}
 }
 
-// invSym inverts a symmetric positive definite matrix by Cholesky, reporting
-// ErrSingular when it is not (numerically) positive definite.
-func invSym(dst *mat.SymDense, a *mat.SymDense) error {
+// InvSym inverts a symmetric positive definite matrix by Cholesky, reporting
+// ErrSingular when it is not (numerically) positive definite (condition
+// number above 1e13). audit/did's Wald tests use it too.
+func InvSym(dst *mat.SymDense, a *mat.SymDense) error {
 	var ch mat.Cholesky
 	if ok := ch.Factorize(a); !ok {
 		return ErrSingular
