@@ -35,6 +35,9 @@ var (
 // process's peak resident set during the pass (VmHWM, reset before each
 // pass; Linux only, else not reported), the test binary included.
 func BenchmarkClassifyWorld(b *testing.B) {
+	if testing.Short() {
+		b.Skip("generates and ingests simulated worlds of 0.2M and 1M versions (minutes); not in -short")
+	}
 	for _, s := range strings.Split(*worldScales, ",") {
 		scale, err := strconv.ParseFloat(strings.TrimSpace(s), 64)
 		if err != nil {
