@@ -245,6 +245,7 @@ func Open(dir string, opts Options) (*Store, error) {
 	if err := checkStoreFolder(dir); err != nil {
 		return nil, err
 	}
+	removeEmptyMemtables(dir)
 	db, err := badger.Open(opts.badger(dir))
 	if err != nil {
 		if strings.Contains(err.Error(), "Cannot acquire directory lock") {
