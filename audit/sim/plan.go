@@ -43,7 +43,7 @@ func (c Config) validateAssignment() error {
 		if id < 1 || id > c.Districts() {
 			return bad("district %d is not on the %d×%d grid (ids 1 to %d)", id, c.Cols, c.Rows, c.Districts())
 		}
-		i, err := c.monthIndex(m)
+		i, err := c.MonthIndex(m)
 		if err != nil {
 			return bad("district %d: %v", id, err)
 		}
@@ -60,8 +60,9 @@ func (c Config) validateAssignment() error {
 	return nil
 }
 
-// monthIndex returns the study-month index of a month YYYY-MM (0 is Start).
-func (c Config) monthIndex(m string) (int, error) {
+// MonthIndex returns the study-month index of a month YYYY-MM: 0 is Start,
+// -1 the baseline month before it.
+func (c Config) MonthIndex(m string) (int, error) {
 	t, err := time.Parse("2006-01", m)
 	if err != nil {
 		return 0, fmt.Errorf("month %q: want YYYY-MM", m)
@@ -74,7 +75,7 @@ func (c Config) monthIndex(m string) (int, error) {
 func (g *gen) assignCohorts() {
 	byMonth := map[int][]int{}
 	for id, m := range g.cfg.Assignment {
-		i, _ := g.cfg.monthIndex(m) // checked by Validate
+		i, _ := g.cfg.MonthIndex(m) // checked by Validate
 		byMonth[i] = append(byMonth[i], id)
 	}
 	for wv, start := range slices.Sorted(maps.Keys(byMonth)) {
