@@ -19,7 +19,7 @@ type simulateOptions struct {
 	start     string // first study month, YYYY-MM
 	null      bool
 	plan      string // plan.json whose waves the import follows
-	effectSet bool // set by PreRunE when an --effect-* flag was given
+	effectSet bool   // set by PreRunE when an --effect-* flag was given
 	cfg       sim.Config
 }
 
