@@ -5,6 +5,8 @@ import (
 	"maps"
 	"slices"
 	"time"
+
+	"github.com/paulmach/orb"
 )
 
 // WithAssignment returns c with its import following a given assignment:
@@ -87,4 +89,13 @@ func (g *gen) assignCohorts() {
 		}
 		g.truth.Cohorts = append(g.truth.Cohorts, Cohort{Wave: wv + 1, Start: monthLabel(g.cfg, start), StartIndex: start, Districts: ids})
 	}
+}
+
+// DistrictBound returns the bounds of district id (1-based) as
+// districts.geojson writes them.
+func (c Config) DistrictBound(id int) orb.Bound {
+	col, row := (id-1)%c.Cols, (id-1)/c.Cols
+	s, w := e7(c.OriginLat+float64(row)*c.CellDeg), e7(c.OriginLon+float64(col)*c.CellDeg)
+	return orb.Bound{Min: orb.Point{float64(w) * 1e-7, float64(s) * 1e-7},
+		Max: orb.Point{float64(w+e7(c.CellDeg)) * 1e-7, float64(s+e7(c.CellDeg)) * 1e-7}}
 }

@@ -1,18 +1,23 @@
 package main
 
 import (
+	"encoding/json"
+	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
 	"slices"
 	"strconv"
+	"strings"
 	"testing"
 
 	"github.com/paulmach/orb"
+	"github.com/paulmach/orb/geojson"
 
 	"github.com/loadwake/loadwake/audit/rollout"
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/audit/spatial"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
 // planRehearsal is the size of a plan rehearsal: an invented world of
@@ -210,4 +215,83 @@ func TestSimulatePlanRehearsal(t *testing.T) {
 	res.check(t, r.effect)
 	t.Logf("headline attribute %+.3f [%+.3f, %+.3f] vs planted %+.3f (%s); randomization p = %.3f over %d draws, %d units",
 		res.relative, res.ci[0], res.ci[1], r.effect-1, res.method, res.eval.Randomization.P, res.eval.Randomization.Draws, res.eval.Randomization.Units)
+}
+
+// writeTinyPlan writes plan.json (and, with places, plan.geojson with the
+// units' shapes shifted by shift degrees east) for a 2×2 world from 2019-01:
+// districts 1 and 4 treated in 2019-04, 2 and 3 held back to 2019-07.
+func writeTinyPlan(t testing.TB, dir string, ids []string, places bool, shift float64) string {
+	t.Helper()
+	pl := rollout.Plan{Schema: rollout.Schema, Procedure: rollout.Procedure, Proposal: "invented", Waves: 2,
+		Start: "2019-04", Evaluation: "2019-07"}
+	cfg := sim.DefaultConfig()
+	cfg.Cols, cfg.Rows = 2, 2
+	fc := geojson.NewFeatureCollection()
+	for i, id := range ids {
+		u := rollout.Unit{ID: id, Wave: 1, Start: "2019-04"}
+		if i == 1 || i == 2 {
+			u.Wave, u.Start = 2, "2019-07"
+		}
+		pl.Units = append(pl.Units, u)
+		n, _ := strconv.Atoi(id)
+		b := cfg.DistrictBound(max(n, 1))
+		b.Min[0] += shift
+		b.Max[0] += shift
+		f := geojson.NewFeature(b.ToPolygon())
+		f.Properties["id"] = id
+		fc.Append(f)
+	}
+	path := filepath.Join(dir, "plan.json")
+	b, _ := json.Marshal(pl)
+	if err := os.WriteFile(path, b, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if places {
+		b, _ := json.Marshal(fc)
+		if err := os.WriteFile(filepath.Join(dir, "plan.geojson"), b, 0o644); err != nil {
+			t.Fatal(err)
+		}
+	}
+	return path
+}
+
+func TestSimulatePlanFlags(t *testing.T) {
+	good := []string{"1", "2", "3", "4"}
+	tiny := []string{"--cols", "2", "--rows", "2", "--activity", "5"}
+	for _, tc := range []struct {
+		name   string
+		ids    []string
+		places bool
+		shift  float64
+		extra  []string
+		usage  bool // a usage error; else success
+		want   string
+	}{
+		{"as planned", good, true, 0, nil, false, "cohort 1    starts 2019-04, 2 districts"},
+		{"held-back wave after the end", good, true, 0, []string{"--months", "5"}, false, "wave 2 (2 units) starts after the world's last month"},
+		{"without plan.geojson", good, false, 0, nil, false, "places are not checked"},
+		{"with --treated", good, true, 0, []string{"--treated", "2"}, true, ""},
+		{"tile units", []string{"17/1/2", "2", "3", "4"}, false, 0, nil, true, ""},
+		{"off the grid", []string{"1", "2", "3", "9"}, false, 0, nil, true, ""},
+		{"another grid's places", good, true, 0.01, nil, true, ""},
+		{"start before the world", good, true, 0, []string{"--start", "2019-05"}, true, ""},
+	} {
+		t.Run(tc.name, func(t *testing.T) {
+			dir := t.TempDir()
+			path := writeTinyPlan(t, dir, tc.ids, tc.places, tc.shift)
+			args := append([]string{"simulate", "--out", filepath.Join(dir, "w"), "--plan", path}, tiny...)
+			out, err := execRootOut(t, append(args, tc.extra...)...)
+			switch {
+			case tc.usage && !errors.As(err, new(cli.UsageError)):
+				t.Errorf("error %v, want a usage error", err)
+			case !tc.usage && err != nil:
+				t.Errorf("error %v\n%s", err, out)
+			case !tc.usage && !strings.Contains(out, tc.want):
+				t.Errorf("output lacks %q:\n%s", tc.want, out)
+			}
+		})
+	}
+	if _, err := execRootOut(t, append([]string{"simulate", "--out", t.TempDir(), "--plan", filepath.Join(t.TempDir(), "none.json")}, tiny...)...); err == nil {
+		t.Error("a missing plan file was accepted")
+	}
 }
