@@ -90,6 +90,10 @@ type Config struct {
 	ChangesetLimit  int       `json:"changeset_limit"`  // changes per import changeset (OSM API 0.6 allows 10,000)
 	Keys            []KeyRate `json:"keys"`
 
+	// Assignment, when set, fixes the import instead of drawing it: district
+	// id → month YYYY-MM of its import (set it with WithAssignment, plan.go).
+	Assignment map[int]string `json:"assignment,omitempty"`
+
 	// Retention, when set, adds newcomers who keep to one district, with a
 	// planted difference in how long they stay after imports (newcomers.go).
 	Retention *Retention `json:"retention,omitempty"`
@@ -241,6 +245,9 @@ func (c Config) Validate() error {
 	}
 	if sum := s.Geometry + s.Attribute + s.NewFeature + s.Deletion + s.Bookkeeping; math.Abs(sum-1) > 1e-9 {
 		return bad("layer shares must sum to 1, got %v", sum)
+	}
+	if err := c.validateAssignment(); err != nil {
+		return err
 	}
 	if c.Retention != nil {
 		if err := c.Retention.validate(); err != nil {

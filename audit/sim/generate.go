@@ -338,8 +338,11 @@ func (g *gen) setup() error {
 		g.cum = append(g.cum, 0) // never drawn for organic work
 	}
 
-	// Treated districts: weighted sampling without replacement, weight rate^LevelSelection.
-	if cfg.Treated > 0 {
+	// Treated districts: as assigned (plan.go), or weighted sampling without
+	// replacement, weight rate^LevelSelection.
+	if cfg.Assignment != nil {
+		g.assignCohorts()
+	} else if cfg.Treated > 0 {
 		w := make([]float64, n)
 		for i, d := range g.districts {
 			w[i] = math.Pow(d.rate, cfg.LevelSelection)

@@ -18,7 +18,8 @@ type simulateOptions struct {
 	force     bool
 	start     string // first study month, YYYY-MM
 	null      bool
-	effectSet bool // set by PreRunE when an --effect-* flag was given
+	plan      string // plan.json whose waves the import follows
+	effectSet bool   // set by PreRunE when an --effect-* flag was given
 	cfg       sim.Config
 }
 
@@ -43,11 +44,18 @@ the --effect-* factors (1 means no effect; --null sets all four to 1).
 
 Load the files with "loadwake ingest", run the estimators, and compare their
 answers with truth.json; vary --treated, --months and the effects to see how
-large an effect a design would detect. The data are invented: never upload
+large an effect a design would detect.
+
+--plan FILE rehearses the evaluation of a rollout: the import follows the
+waves of a plan made by "loadwake plan --units WORLD/districts.geojson" on a
+world of the same seed and grid (its history is that world's up to the first
+wave), and the world runs to the plan's evaluation month unless --months is
+given; "loadwake audit --plan FILE" then evaluates it. The data are invented: never upload
 them to OpenStreetMap.`,
 		Example: `  loadwake simulate --out world
   loadwake simulate --out world --seed 7 --treated 24 --cohorts 3 --effect-attribute 0.8 --dynamic
-  loadwake simulate --out null-world --null --diverging-pretrend --force`,
+  loadwake simulate --out null-world --null --diverging-pretrend --force
+  loadwake simulate --out rehearsal --plan plan/plan.json --effect-attribute 0.7`,
 		Args: func(cmd *cobra.Command, args []string) error {
 			if len(args) > 0 {
 				return cli.Usagef("%s takes no arguments, got %q", cmd.CommandPath(), args[0])
@@ -84,6 +92,7 @@ them to OpenStreetMap.`,
 	f.BoolVar(&o.null, "null", false, "no effects: all four multipliers 1 (not with --effect-*)")
 	f.BoolVar(&c.Dynamic, "dynamic", false, "effects grow linearly over --ramp months of event time instead of starting at once")
 	f.IntVar(&c.RampMonths, "ramp", c.RampMonths, "months over which --dynamic effects reach their full size")
+	f.StringVar(&o.plan, "plan", "", "`FILE` of a plan (plan.json) over this world's districts: the import follows its waves (not with --treated, --cohorts)")
 	f.BoolVar(&c.TrendSelection, "diverging-pretrend", false, "treated districts grow faster all along, so parallel trends fail")
 	f.Float64Var(&c.Scale, "scale", c.Scale, "multiplies activity, baseline stock and import sizes (benchmark worlds)")
 	return cmd
@@ -104,10 +113,16 @@ func runSimulate(cmd *cobra.Command, o *simulateOptions) error {
 		return cli.Usagef("--start %q is not a month like 2019-01", o.start)
 	}
 	o.cfg.Start = start.UTC()
-	if o.cfg.Treated == 0 && !cmd.Flags().Changed("cohorts") {
+	switch f := cmd.Flags(); {
+	case o.plan != "" && (f.Changed("treated") || f.Changed("cohorts")):
+		return cli.Usagef("--plan gives the treated districts and their months: leave out --treated and --cohorts")
+	case o.plan != "":
+		if o.cfg, err = planWorld(cmd.OutOrStdout(), o.plan, o.cfg, f.Changed("months")); err != nil {
+			return err
+		}
+	case o.cfg.Treated == 0 && !f.Changed("cohorts"):
 		o.cfg.Waves = 0
-	}
-	if o.cfg.Treated > 0 && !cmd.Flags().Changed("cohorts") {
+	case o.cfg.Treated > 0 && !f.Changed("cohorts"):
 		// Fewer default cohorts when the design has too few districts or months for them.
 		o.cfg.Waves = max(1, min(o.cfg.Waves, o.cfg.Treated, o.cfg.Months-1))
 	}
