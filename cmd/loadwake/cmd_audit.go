@@ -90,6 +90,27 @@ func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
 	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, out); err != nil {
 		return err
 	}
+	if err := printAudit(out, rep); err != nil {
+		return err
+	}
+	md := func(w io.Writer) error { return report.WriteMarkdown(w, cli.ReportInput(rep, in.Units, nil, nil)) }
+	if err := outs.Write(o.json, rep.WriteJSON); err != nil {
+		return err
+	}
+	if err := outs.Write(o.md, md); err != nil {
+		return err
+	}
+	if o.out != "" {
+		if err := cli.WriteReports(out, o.out, cli.ReportInput(rep, in.Units, nil, nil)); err != nil {
+			return err
+		}
+	}
+	return o.plan.finish(cmd, in, rep, &o.est, &o.study, out, o.out)
+}
+
+// printAudit prints the audit's summary: what was studied, the units, the
+// warnings, the effects and the cautions.
+func printAudit(out io.Writer, rep *audit.Report) error {
 	if rep.IsImport() {
 		fmt.Fprintf(out, "import %s (%s), panel %s to %s\n", rep.Import.ID, cli.JoinOr(rep.Import.Accounts, "no account"), rep.Window[0], rep.Window[1])
 	} else {
@@ -109,17 +130,5 @@ func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
 	for _, c := range rep.Cautions {
 		fmt.Fprintln(out, "caution:", c)
 	}
-	md := func(w io.Writer) error { return report.WriteMarkdown(w, cli.ReportInput(rep, in.Units, nil, nil)) }
-	if err := outs.Write(o.json, rep.WriteJSON); err != nil {
-		return err
-	}
-	if err := outs.Write(o.md, md); err != nil {
-		return err
-	}
-	if o.out != "" {
-		if err := cli.WriteReports(out, o.out, cli.ReportInput(rep, in.Units, nil, nil)); err != nil {
-			return err
-		}
-	}
-	return o.plan.finish(cmd, in, rep, &o.est, &o.study, out, o.out)
+	return nil
 }

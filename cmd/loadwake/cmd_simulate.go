@@ -108,6 +108,23 @@ func runSimulate(cmd *cobra.Command, o *simulateOptions) error {
 	if o.null {
 		o.cfg.Effects = sim.Effects{Geometry: 1, Attribute: 1, NewFeature: 1, Deletion: 1}
 	}
+	if err := o.design(cmd); err != nil {
+		return err
+	}
+	tr, err := sim.Generate(cmd.Context(), o.cfg, o.out, o.force)
+	switch {
+	case errors.Is(err, sim.ErrConfig):
+		return cli.Usagef("%s", strings.TrimPrefix(err.Error(), "sim: invalid configuration: "))
+	case err != nil:
+		return err
+	}
+	printSimulateSummary(cmd.OutOrStdout(), o.out, tr)
+	return nil
+}
+
+// design sets the configuration's start month and its treated districts and
+// waves: from --plan, or the defaults fitted to the grid and the months.
+func (o *simulateOptions) design(cmd *cobra.Command) error {
 	start, err := time.Parse("2006-01", o.start)
 	if err != nil {
 		return cli.Usagef("--start %q is not a month like 2019-01", o.start)
@@ -126,14 +143,6 @@ func runSimulate(cmd *cobra.Command, o *simulateOptions) error {
 		// Fewer default cohorts when the design has too few districts or months for them.
 		o.cfg.Waves = max(1, min(o.cfg.Waves, o.cfg.Treated, o.cfg.Months-1))
 	}
-	tr, err := sim.Generate(cmd.Context(), o.cfg, o.out, o.force)
-	switch {
-	case errors.Is(err, sim.ErrConfig):
-		return cli.Usagef("%s", strings.TrimPrefix(err.Error(), "sim: invalid configuration: "))
-	case err != nil:
-		return err
-	}
-	printSimulateSummary(cmd.OutOrStdout(), o.out, tr)
 	return nil
 }
 

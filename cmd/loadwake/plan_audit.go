@@ -53,9 +53,30 @@ func (pa *planAudit) prepare(cmd *cobra.Command, s *cli.StudyFlags) (func(), err
 		return nil, err
 	}
 	pa.plan = pl
+	planDefaults(cmd, s, pa.path, pl)
+	dir, err := os.MkdirTemp("", "loadwake-plan-")
+	if err != nil {
+		return nil, fmt.Errorf("plan treatment: %w", err)
+	}
+	s.Treatment = filepath.Join(dir, "treatment.csv")
+	if s.EventName == "" {
+		s.EventName = "planned rollout of " + pl.Proposal
+	}
+	if err := cli.WriteFile(s.Treatment, pl.WriteTreatmentCSV); err != nil {
+		os.RemoveAll(dir)
+		return nil, err
+	}
+	return func() { os.RemoveAll(dir) }, nil
+}
+
+// planDefaults sets the study flags the plan decides unless given: --units
+// (plan.geojson beside the plan), --after (up to the month before the
+// evaluation), --before (the plan's own) and --k (1: the comparison wave is
+// few units drawn at random, so each treated unit is matched with one).
+func planDefaults(cmd *cobra.Command, s *cli.StudyFlags, path string, pl *rollout.Plan) {
 	f := cmd.Flags()
 	if s.Units == "" {
-		s.Units = filepath.Join(filepath.Dir(pa.path), "plan.geojson")
+		s.Units = filepath.Join(filepath.Dir(path), "plan.geojson")
 	}
 	start, _ := time.Parse("2006-01", pl.Start)
 	eval, _ := time.Parse("2006-01", pl.Evaluation)
@@ -71,24 +92,9 @@ func (pa *planAudit) prepare(cmd *cobra.Command, s *cli.StudyFlags) (func(), err
 	if !f.Changed("before") {
 		s.Before = max(pl.Before, 2)
 	}
-	// The comparison wave is few units drawn at random: match each treated
-	// unit with one of them unless asked otherwise.
 	if !f.Changed("k") {
 		s.K = 1
 	}
-	dir, err := os.MkdirTemp("", "loadwake-plan-")
-	if err != nil {
-		return nil, fmt.Errorf("plan treatment: %w", err)
-	}
-	s.Treatment = filepath.Join(dir, "treatment.csv")
-	if s.EventName == "" {
-		s.EventName = "planned rollout of " + pl.Proposal
-	}
-	if err := cli.WriteFile(s.Treatment, pl.WriteTreatmentCSV); err != nil {
-		os.RemoveAll(dir)
-		return nil, err
-	}
-	return func() { os.RemoveAll(dir) }, nil
 }
 
 // planEvaluation is what --plan adds to an audit.
