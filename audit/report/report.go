@@ -12,11 +12,16 @@ import (
 	"github.com/loadwake/loadwake/audit/checklist"
 	"github.com/loadwake/loadwake/audit/panel"
 	"github.com/loadwake/loadwake/audit/proposal"
+	"github.com/loadwake/loadwake/audit/report/chart"
 	"github.com/loadwake/loadwake/layers"
 )
 
 // ErrInput is the sentinel under errors about an unusable Input.
 var ErrInput = errors.New("report: invalid input")
+
+// Shapes are the unit geometries the map and units.geojson draw;
+// *spatial.Units meets it.
+type Shapes = chart.Shapes
 
 // Input is what a report is made of. At least one of Audit, Checklist and
 // Assessment is required; each adds its sections. The charts, report.json,
@@ -168,7 +173,7 @@ func MakeCharts(in Input) ([]Chart, error) {
 		return nil, nil
 	}
 	for _, l := range layers.Layers {
-		svg, ok, err := EventStudySVG(in.Audit.EventStudy, l.String())
+		svg, ok, err := chart.EventStudy(in.Audit.EventStudy, l.String(), chart.SVG)
 		if err != nil {
 			return nil, err
 		}
@@ -177,19 +182,19 @@ func MakeCharts(in Input) ([]Chart, error) {
 				Caption: fmt.Sprintf("Each dot is the estimated change in %s in import areas against their comparison areas, in percent, by month relative to the import's arrival (dashed line), from the same Poisson model as the headline (%s). The shaded band is the 95%% interval (none when the import areas are too few for a reliable one). Before the line, dots near zero mean both groups moved alike; after it, they show the change that followed.", layerWords(l.String()), headlineEstimator)})
 		}
 	}
-	if svg, ok, err := BalanceSVG(in.Audit.Balance); err != nil {
+	if svg, ok, err := chart.Balance(in.Audit.Balance, chart.SVG); err != nil {
 		return nil, err
 	} else if ok {
 		out = append(out, Chart{Name: "balance", SVG: svg,
 			Caption: "How far the import areas differed from the comparison areas before the import, for each trait used in matching, in standard deviations (the SMD). Each arrow starts at the difference against all untouched areas (grey bar) and ends at the difference against the matched comparison areas; arrows ending in the shaded zone (within ±0.1) count as alike, vermilion arrows ending outside it did not get there."})
 	}
-	if svg, ok, err := retentionChart(in.Audit.Retention, renderSVG); err != nil {
+	if svg, ok, err := chart.Retention(in.Audit.Retention, chart.SVG); err != nil {
 		return nil, err
 	} else if ok {
 		out = append(out, Chart{Name: retentionChartName, SVG: svg, Caption: retentionCaption})
 	}
 	if in.Units != nil {
-		svg, ok, err := MapSVG(in.Units, in.Audit.UnitList)
+		svg, ok, err := chart.Map(in.Units, in.Audit.UnitList, chart.SVG)
 		if err != nil {
 			return nil, err
 		}

@@ -1,4 +1,4 @@
-package report
+package chart
 
 import (
 	"bytes"
@@ -103,18 +103,18 @@ func newPlot(title string) *plot.Plot {
 // fontFamily matches the font-family that gonum/plot's SVG canvas writes.
 var fontFamily = regexp.MustCompile(`font-family:([^;"]+)`)
 
-// renderSVG draws p at w×h points and returns SVG markup fit to be inlined in
+// SVG draws p at w×h points and returns SVG markup fit to be inlined in
 // HTML: no XML declaration or generator comment, a viewBox that scales, a
 // role and title for screen readers, and a local font stack, so text renders
 // without loading any font.
-func renderSVG(p *plot.Plot, w, h vg.Length, label string) ([]byte, error) {
+func SVG(p *plot.Plot, w, h vg.Length, label string) ([]byte, error) {
 	wt, err := p.WriterTo(w, h, "svg")
 	if err != nil {
-		return nil, fmt.Errorf("report: chart %q: %w", label, err)
+		return nil, fmt.Errorf("chart: %q: %w", label, err)
 	}
 	var buf bytes.Buffer
 	if _, err := wt.WriteTo(&buf); err != nil {
-		return nil, fmt.Errorf("report: chart %q: %w", label, err)
+		return nil, fmt.Errorf("chart: %q: %w", label, err)
 	}
 	return tidySVG(buf.Bytes(), label), nil
 }
@@ -139,23 +139,19 @@ func tidySVG(b []byte, label string) []byte {
 // story; a report without headline rows shows no event-study chart.
 func chartEstimator(rows []did.EventStudyRow, layer string) string {
 	for _, r := range rows {
-		if r.Layer == layer && r.Estimator == headlineEstimator {
-			return headlineEstimator
+		if r.Layer == layer && r.Estimator == did.Headline {
+			return did.Headline
 		}
 	}
 	return ""
 }
 
-// EventStudySVG draws the event study of one layer: the estimate for each
+// EventStudy draws the event study of one layer: the estimate for each
 // month relative to the import's arrival, its 95% band, the zero line, a
 // vertical line where the import arrives (event time 0) and the reference
 // month marked. ok is false when the audit has no event-study rows for the
 // layer.
-func EventStudySVG(rows []did.EventStudyRow, layer string) (svg []byte, ok bool, err error) {
-	return eventStudyChart(rows, layer, renderSVG)
-}
-
-func eventStudyChart(rows []did.EventStudyRow, layer string, render renderFunc) (svg []byte, ok bool, err error) {
+func EventStudy(rows []did.EventStudyRow, layer string, render Renderer) (svg []byte, ok bool, err error) {
 	est := chartEstimator(rows, layer)
 	if est == "" {
 		return nil, false, nil
@@ -249,16 +245,6 @@ func eventStudyChart(rows []did.EventStudyRow, layer string, render renderFunc) 
 	return svg, err == nil, err
 }
 
-// BalanceSVG draws how matching moved each covariate: one arrow per trait
-// from its standardized mean difference before matching (a short bar) to
-// the difference after (the arrowhead), over a shaded zone where the groups
-// count as alike (within ±0.1, Austin 2009's rule of thumb). Arrows that end
-// inside the zone are blue, those still outside it vermilion. ok is false
-// when there are no balance rows.
-func BalanceSVG(rows []audit.BalanceJSON) (svg []byte, ok bool, err error) {
-	return balanceChart(rows, renderSVG)
-}
-
 // Colours of the balance chart: the alike zone (opaque, so that it reads the
 // same on any background) and the arrows by where they end.
 var (
@@ -268,7 +254,13 @@ var (
 	balanceStartBar = okDarkGrey
 )
 
-func balanceChart(rows []audit.BalanceJSON, render renderFunc) (svg []byte, ok bool, err error) {
+// Balance draws how matching moved each covariate: one arrow per trait
+// from its standardized mean difference before matching (a short bar) to
+// the difference after (the arrowhead), over a shaded zone where the groups
+// count as alike (within ±0.1, Austin 2009's rule of thumb). Arrows that end
+// inside the zone are blue, those still outside it vermilion. ok is false
+// when there are no balance rows.
+func Balance(rows []audit.BalanceJSON, render Renderer) (svg []byte, ok bool, err error) {
 	if len(rows) == 0 {
 		return nil, false, nil
 	}
@@ -433,14 +425,10 @@ func kmText(km float64) string {
 	return fmt.Sprintf("%g km", km)
 }
 
-// MapSVG draws the units coloured by their role in the study, with a legend
+// Map draws the units coloured by their role in the study, with a legend
 // and a scale bar in kilometres, in an equirectangular projection scaled by
 // the cosine of the mid latitude. ok is false when there is nothing to draw.
-func MapSVG(shapes Shapes, list []study.UnitInfo) (svg []byte, ok bool, err error) {
-	return mapChart(shapes, list, renderSVG)
-}
-
-func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []byte, ok bool, err error) {
+func Map(shapes Shapes, list []study.UnitInfo, render Renderer) (svg []byte, ok bool, err error) {
 	if shapes == nil || shapes.Len() == 0 {
 		return nil, false, nil
 	}
@@ -492,7 +480,7 @@ func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []by
 			}
 			poly, err := plotter.NewPolygon(xys...)
 			if err != nil {
-				return nil, false, fmt.Errorf("report: map of unit %q: %w", shapes.ID(i), err)
+				return nil, false, fmt.Errorf("chart: map of unit %q: %w", shapes.ID(i), err)
 			}
 			poly.Color = statusColour(s)
 			poly.LineStyle = draw.LineStyle{Color: color.White, Width: vg.Points(0.6)}
@@ -515,7 +503,7 @@ func mapChart(shapes Shapes, list []study.UnitInfo, render renderFunc) (svg []by
 				}
 				line, err := plotter.NewLine(xy)
 				if err != nil {
-					return nil, false, fmt.Errorf("report: map of unit %q: %w", id, err)
+					return nil, false, fmt.Errorf("chart: map of unit %q: %w", id, err)
 				}
 				line.LineStyle = importOutline
 				outlines = append(outlines, line)
