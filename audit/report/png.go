@@ -3,7 +3,6 @@ package report
 import (
 	"io"
 	"path/filepath"
-	"strings"
 
 	"github.com/loadwake/loadwake/audit/report/chart"
 )
@@ -22,19 +21,7 @@ func chartIn(in Input, name string, render chart.Renderer) ([]byte, bool, error)
 	if in.Audit == nil {
 		return nil, false, nil
 	}
-	switch {
-	case name == "balance":
-		return chart.Balance(in.Audit.Balance, render)
-	case name == "map":
-		return chart.Map(in.Units, in.Audit.UnitList, render)
-	case name == retentionChartName:
-		return chart.Retention(in.Audit.Retention, render)
-	case strings.HasPrefix(name, "by-"):
-		return forestPNG(in.Audit, name, render)
-	case strings.HasPrefix(name, "event-study-"):
-		return chart.EventStudy(in.Audit.EventStudy, strings.TrimPrefix(name, "event-study-"), render)
-	}
-	return nil, false, nil
+	return chart.Draw(in.Audit, in.Units, name, render)
 }
 
 // writeChartPNGs writes charts/NAME.png beside each chart's SVG.

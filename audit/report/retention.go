@@ -198,12 +198,6 @@ func retentionHTML(v *retentionView) (template.HTML, error) {
 	return template.HTML(b.String()), nil // #nosec: rendered by html/template above
 }
 
-// retentionChartName is the retention chart's file name under charts/.
-const retentionChartName = "newcomer-retention"
-
-// retentionCaption says what the retention chart shows.
-const retentionCaption = "The share of newcomers still editing, by months since their first edit (Kaplan–Meier: an account counts as stopped at its last edit once 6 months pass without another before the data end, and accounts the data cannot yet follow are counted as far as they go): import areas in vermilion, comparison areas in blue; solid lines for newcomers who started after the import, dashed for before. If the import changed nothing, the gap between solid and dashed lines is about the same in both colours. The table's shares count instead whether an edit came on or after the day 12 (3, 6, 24) months on, among newcomers first seen at least that long before the data end; for accounts that edit rarely the two can differ."
-
 // capital upper-cases the first letter of s.
 func capital(s string) string {
 	if s == "" {

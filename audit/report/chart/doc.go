@@ -8,7 +8,9 @@
 //
 // Each takes a Renderer: SVG gives markup fit to inline in HTML (a viewBox,
 // a title for screen readers, a local font stack), PNG an image at PNGDPI.
-// Each returns ok false, and no error, when it has nothing to draw.
+// Each returns ok false, and no error, when it has nothing to draw. All
+// draws every chart an audit has, with the file name and caption the report
+// gives it; Draw draws one of them by name in any format.
 //
 // The colours come from the Okabe–Ito palette; every pair a chart contrasts
 // is checked under simulated colour-vision deficiencies (cvd_test.go).
