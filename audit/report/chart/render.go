@@ -3,6 +3,9 @@ package chart
 import (
 	"bytes"
 	"fmt"
+	"html"
+	"regexp"
+	"strings"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/vg"
@@ -31,4 +34,38 @@ func PNG(p *plot.Plot, w, h vg.Length, label string) ([]byte, error) {
 		return nil, fmt.Errorf("chart: %q as PNG: %w", label, err)
 	}
 	return buf.Bytes(), nil
+}
+
+// fontFamily matches the font-family that gonum/plot's SVG canvas writes.
+var fontFamily = regexp.MustCompile(`font-family:([^;"]+)`)
+
+// SVG draws p at w×h points and returns SVG markup fit to be inlined in
+// HTML: no XML declaration or generator comment, a viewBox that scales, a
+// role and title for screen readers, and a local font stack, so text renders
+// without loading any font.
+func SVG(p *plot.Plot, w, h vg.Length, label string) ([]byte, error) {
+	wt, err := p.WriterTo(w, h, "svg")
+	if err != nil {
+		return nil, fmt.Errorf("chart: %q: %w", label, err)
+	}
+	var buf bytes.Buffer
+	if _, err := wt.WriteTo(&buf); err != nil {
+		return nil, fmt.Errorf("chart: %q: %w", label, err)
+	}
+	return tidySVG(buf.Bytes(), label), nil
+}
+
+func tidySVG(b []byte, label string) []byte {
+	s := string(b)
+	if i := strings.Index(s, "<svg"); i >= 0 {
+		s = s[i:]
+	}
+	s = fontFamily.ReplaceAllString(s, "font-family:'Liberation Sans',Arial,Helvetica,sans-serif")
+	// Width and height become CSS-scalable; the viewBox keeps the proportions.
+	title := "<title>" + html.EscapeString(label) + "</title>"
+	s = strings.Replace(s, "<svg ", `<svg role="img" aria-label="`+html.EscapeString(label)+`" class="chart" `, 1)
+	if i := strings.Index(s, ">"); i >= 0 {
+		s = s[:i+1] + "\n" + title + s[i+1:]
+	}
+	return []byte(strings.TrimSpace(s) + "\n")
 }
