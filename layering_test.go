@@ -53,7 +53,8 @@ var allowed = map[string][]string{
 	"audit/power":   {"audit/checklist", "audit/did", "audit/panel", "layers"},
 	"audit/rollout": {"audit/did", "audit/markdown", "audit/panel", "audit/power", "audit/proposal", "audit/sequential", "layers"},
 	"audit/report": {"audit", "audit/checklist", "audit/did", "audit/episode", "audit/markdown", "audit/match",
-		"audit/panel", "audit/proposal", "audit/retention", "audit/spatial", "audit/study", "layers"},
+		"audit/panel", "audit/proposal", "audit/report/chart", "audit/retention", "audit/spatial", "audit/study", "layers"},
+	"audit/report/chart": {"audit", "audit/did", "audit/match", "audit/retention", "audit/study", "layers"},
 
 	// Test support, imported only by _test files.
 	"audit/panel/paneltest":    {"audit/panel"},

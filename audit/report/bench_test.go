@@ -4,6 +4,8 @@ import (
 	"io"
 	"path/filepath"
 	"testing"
+
+	"github.com/loadwake/loadwake/audit/report/chart"
 )
 
 // BenchmarkWrite writes the whole report folder of the fixed audit: six SVG
@@ -25,7 +27,7 @@ func BenchmarkEventStudySVG(b *testing.B) {
 	rows := fixedAudit().EventStudy
 	b.ReportAllocs()
 	for b.Loop() {
-		if _, ok, err := EventStudySVG(rows, "attribute"); err != nil || !ok {
+		if _, ok, err := chart.EventStudy(rows, "attribute", chart.SVG); err != nil || !ok {
 			b.Fatal(err)
 		}
 	}

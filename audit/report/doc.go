@@ -13,13 +13,8 @@
 // most three warnings (the rest folded or listed further down), then the
 // import and the months actually compared; a glossary defines the terms.
 //
-// Charts are drawn with gonum.org/v1/plot and rendered to SVG and PNG: an
-// event-study chart per layer, a balance chart (one arrow per trait from its
-// difference before matching to after, over the zone where the groups count
-// as alike) and a map of the units (import areas outlined, areas named where
-// a name fits, a scale bar). Their colours come from the Okabe–Ito palette;
-// every pair a chart contrasts is checked under simulated colour-vision
-// deficiencies (cvd_test.go).
+// The charts are drawn by package chart and written as charts/NAME.svg
+// (inlined in report.html) and charts/NAME.png beside it.
 //
 // WriteOverview writes the overview of every import in a store
 // (audit.AuditAll) as overview.html (one table that sorts by any column

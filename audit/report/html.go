@@ -26,7 +26,7 @@ type htmlPage struct {
 
 type htmlChart struct {
 	Name, Caption string
-	SVG           template.HTML // rendered by renderSVG: gonum/plot escapes its text
+	SVG           template.HTML // rendered by chart.SVG: gonum/plot escapes its text
 }
 
 type htmlChecklist struct {

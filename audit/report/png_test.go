@@ -54,6 +54,9 @@ func TestPNGCharts(t *testing.T) {
 	}
 }
 
+// minPNGTextPx is the smallest text height, in pixels, a PNG chart may have.
+const minPNGTextPx = 11
+
 // TestPNGTextSize draws every chart on gonum's recording canvas and checks
 // that each piece of text is at least minPNGTextPx pixels high at PNGDPI.
 func TestPNGTextSize(t *testing.T) {

@@ -12,11 +12,16 @@ import (
 	"github.com/loadwake/loadwake/audit/checklist"
 	"github.com/loadwake/loadwake/audit/panel"
 	"github.com/loadwake/loadwake/audit/proposal"
+	"github.com/loadwake/loadwake/audit/report/chart"
 	"github.com/loadwake/loadwake/layers"
 )
 
 // ErrInput is the sentinel under errors about an unusable Input.
 var ErrInput = errors.New("report: invalid input")
+
+// Shapes are the unit geometries the map and units.geojson draw;
+// *spatial.Units meets it.
+type Shapes = chart.Shapes
 
 // Input is what a report is made of. At least one of Audit, Checklist and
 // Assessment is required; each adds its sections. The charts, report.json,
@@ -149,60 +154,24 @@ func writeAtomic(path string, write func(io.Writer) error) error {
 	return nil
 }
 
-// Chart is one rendered chart.
-type Chart struct {
-	Name    string // file-safe name, e.g. "event-study-attribute"
-	Caption string // what the chart shows, in plain words
-	SVG     []byte // inline SVG markup
-}
+// Chart is one rendered chart (chart.Chart).
+type Chart = chart.Chart
 
-// MakeCharts renders the charts of a report: one event study per layer that
-// has event-study rows, the balance chart when there are balance rows, and the
-// map when units are given; none without an audit.
+// MakeCharts renders the charts of a report as SVG (chart.All): one event
+// study per layer that has event-study rows, the balance chart when there are
+// balance rows, the retention chart, the map when units are given and a
+// forest chart per trait of the splits; none without an audit.
 func MakeCharts(in Input) ([]Chart, error) {
 	if err := in.check(); err != nil {
 		return nil, err
 	}
-	var out []Chart
 	if in.Audit == nil {
 		return nil, nil
 	}
-	for _, l := range layers.Layers {
-		svg, ok, err := EventStudySVG(in.Audit.EventStudy, l.String())
-		if err != nil {
-			return nil, err
-		}
-		if ok {
-			out = append(out, Chart{Name: "event-study-" + l.String(), SVG: svg,
-				Caption: fmt.Sprintf("Each dot is the estimated change in %s in import areas against their comparison areas, in percent, by month relative to the import's arrival (dashed line), from the same Poisson model as the headline (%s). The shaded band is the 95%% interval (none when the import areas are too few for a reliable one). Before the line, dots near zero mean both groups moved alike; after it, they show the change that followed.", layerWords(l.String()), headlineEstimator)})
-		}
-	}
-	if svg, ok, err := BalanceSVG(in.Audit.Balance); err != nil {
-		return nil, err
-	} else if ok {
-		out = append(out, Chart{Name: "balance", SVG: svg,
-			Caption: "How far the import areas differed from the comparison areas before the import, for each trait used in matching, in standard deviations (the SMD). Each arrow starts at the difference against all untouched areas (grey bar) and ends at the difference against the matched comparison areas; arrows ending in the shaded zone (within ±0.1) count as alike, vermilion arrows ending outside it did not get there."})
-	}
-	if svg, ok, err := retentionChart(in.Audit.Retention, renderSVG); err != nil {
-		return nil, err
-	} else if ok {
-		out = append(out, Chart{Name: retentionChartName, SVG: svg, Caption: retentionCaption})
-	}
-	if in.Units != nil {
-		svg, ok, err := MapSVG(in.Units, in.Audit.UnitList)
-		if err != nil {
-			return nil, err
-		}
-		if ok {
-			out = append(out, Chart{Name: "map", SVG: svg,
-				Caption: "The study areas by role, with the import areas outlined in black and named in bold, and the comparison areas named where there is room (every name is in units.geojson). Import areas are compared with the matched comparison areas only; unused, excluded and left-out areas do not enter the estimates. The bar gives the scale."})
-		}
-	}
-	forest, err := forestCharts(in.Audit)
+	out, err := chart.All(in.Audit, in.Units, layerWords)
 	if err != nil {
 		return nil, err
 	}
-	out = append(out, forest...)
 	if isEvent(in) {
 		out = eventCharts(out)
 	}

@@ -5,9 +5,7 @@ import (
 	"fmt"
 	"html/template"
 	"math"
-
-	"gonum.org/v1/plot/plotter"
-	"gonum.org/v1/plot/vg"
+	"strings"
 
 	"github.com/loadwake/loadwake/audit/retention"
 )
@@ -200,52 +198,10 @@ func retentionHTML(v *retentionView) (template.HTML, error) {
 	return template.HTML(b.String()), nil // #nosec: rendered by html/template above
 }
 
-// retentionChartName is the retention chart's file name under charts/.
-const retentionChartName = "newcomer-retention"
-
-// retentionChart draws the Kaplan–Meier curves of the four groups: the share
-// of newcomers still editing by months since their first edit, import areas
-// in vermilion, comparison areas in blue, after the import solid, before
-// dashed. ok is false without curves.
-func retentionChart(r *retention.Result, render renderFunc) (svg []byte, ok bool, err error) {
-	if r == nil || len(r.Curves) == 0 {
-		return nil, false, nil
+// capital upper-cases the first letter of s.
+func capital(s string) string {
+	if s == "" {
+		return s
 	}
-	p := newPlot("Newcomers still editing")
-	p.X.Label.Text = "months since the first edit"
-	p.Y.Label.Text = "share still editing (Kaplan–Meier)"
-	p.Y.Min, p.Y.Max = 0, 1.25 // room for the legend
-	p.X.Min = 0
-	type key struct{ areas, period string }
-	lines := map[key]plotter.XYs{}
-	var order []key
-	for _, c := range r.Curves {
-		k := key{c.Areas, c.Period}
-		if _, seen := lines[k]; !seen {
-			order = append(order, k)
-		}
-		lines[k] = append(lines[k], plotter.XY{X: float64(c.Month), Y: c.Surv})
-	}
-	for _, k := range order {
-		l, err := plotter.NewLine(lines[k])
-		if err != nil {
-			return nil, false, fmt.Errorf("report: retention chart: %w", err)
-		}
-		l.StepStyle = plotter.PostStep
-		l.Width = vg.Points(1.8)
-		l.Color = okBlue
-		if k.areas == "import" {
-			l.Color = okVermilion
-		}
-		if k.period == "before" {
-			l.Dashes = []vg.Length{vg.Points(5), vg.Points(3)}
-		}
-		p.Add(l)
-		p.Legend.Add(capital(k.areas)+" areas, started "+k.period+" the import", l)
-	}
-	svg, err = render(p, 16*vg.Centimeter, 10*vg.Centimeter, "Share of newcomers still editing by months since their first edit")
-	return svg, err == nil, err
+	return strings.ToUpper(s[:1]) + s[1:]
 }
-
-// retentionCaption says what the retention chart shows.
-const retentionCaption = "The share of newcomers still editing, by months since their first edit (Kaplan–Meier: an account counts as stopped at its last edit once 6 months pass without another before the data end, and accounts the data cannot yet follow are counted as far as they go): import areas in vermilion, comparison areas in blue; solid lines for newcomers who started after the import, dashed for before. If the import changed nothing, the gap between solid and dashed lines is about the same in both colours. The table's shares count instead whether an edit came on or after the day 12 (3, 6, 24) months on, among newcomers first seen at least that long before the data end; for accounts that edit rarely the two can differ."

@@ -6,6 +6,7 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/report/chart"
 	"github.com/loadwake/loadwake/audit/retention"
 )
 
@@ -111,7 +112,7 @@ func TestRetentionSection(t *testing.T) {
 	}
 	found := false
 	for _, c := range charts {
-		if c.Name == retentionChartName {
+		if c.Name == chart.RetentionName {
 			found = true
 			if !bytes.Contains(c.SVG, []byte("<svg")) {
 				t.Error("the retention chart is not SVG")
@@ -121,7 +122,7 @@ func TestRetentionSection(t *testing.T) {
 	if !found {
 		t.Error("no retention chart")
 	}
-	if _, ok, err := ChartPNG(in, retentionChartName); !ok || err != nil {
+	if _, ok, err := ChartPNG(in, chart.RetentionName); !ok || err != nil {
 		t.Errorf("retention chart as PNG: ok %v, err %v", ok, err)
 	}
 	// Without a retention section nothing is added.

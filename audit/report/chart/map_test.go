@@ -1,4 +1,4 @@
-package report
+package chart
 
 import (
 	"bytes"
@@ -31,7 +31,7 @@ func TestMapNamesAndOutlines(t *testing.T) {
 		{ID: "u2", Name: "Quillmere", Status: study.StatusCandidate},
 		{ID: "u3", Name: "Ostbury", Status: study.StatusTreated},
 	}
-	svg, ok, err := MapSVG(gridShapes(4), list)
+	svg, ok, err := Map(gridShapes(4), list, SVG)
 	if err != nil || !ok {
 		t.Fatal(ok, err)
 	}
@@ -52,7 +52,7 @@ func TestMapNamesAndOutlines(t *testing.T) {
 	// Long names on narrow units collide: the import area keeps its name.
 	long := []study.UnitInfo{{ID: "u2", Status: study.StatusControl, Name: "Westernmost Comparison District"},
 		{ID: "u3", Status: study.StatusTreated, Name: "Middlemost Import District"}}
-	svg, _, err = MapSVG(gridShapes(8), long)
+	svg, _, err = Map(gridShapes(8), long, SVG)
 	if err != nil {
 		t.Fatal(err)
 	}
