@@ -19,6 +19,7 @@ import (
 	"github.com/dgraph-io/badger/v4"
 	"github.com/dgraph-io/badger/v4/options"
 	"github.com/loadwake/loadwake/ingest/internal/codec"
+	"github.com/loadwake/loadwake/ingest/internal/storedir"
 	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
@@ -88,7 +89,7 @@ func DefaultOptions() Options {
 		indexCache:   32 << 20,
 		tableSize:    4 << 20,
 		compactors:   2,
-		mappedRes:    defaultMappedResident,
+		mappedRes:    storedir.DefaultMappedResident,
 	}
 }
 
@@ -209,8 +210,8 @@ type Store struct {
 	dir  string // "" in memory
 	opts Options
 
-	writeMu  sync.Mutex      // serialises Ingest
-	resident *residentKeeper // bounds the mapped files' resident pages
+	writeMu  sync.Mutex       // serialises Ingest
+	resident *storedir.Keeper // bounds the mapped files' resident pages
 	// interrupted is set while the store holds the remains of a bulk ingest
 	// that did not finish (its marker file is in dir): reads refuse it with
 	// ErrInterrupted and the next Ingest starts the bulk ingest again.
@@ -245,7 +246,7 @@ func Open(dir string, opts Options) (*Store, error) {
 	if err := checkStoreFolder(dir); err != nil {
 		return nil, err
 	}
-	removeEmptyMemtables(dir)
+	storedir.RemoveEmptyMemtables(dir)
 	db, err := badger.Open(opts.badger(dir))
 	if err != nil {
 		if strings.Contains(err.Error(), "Cannot acquire directory lock") {
@@ -326,7 +327,7 @@ func newStore(db *badger.DB, dir string, opts Options) (*Store, error) {
 		db.Close()
 		return nil, err
 	}
-	s.resident = startResidentKeeper(dir, opts.mappedRes)
+	s.resident = storedir.StartKeeper(dir, opts.mappedRes)
 	return s, nil
 }
 
@@ -373,7 +374,7 @@ func (s *Store) checkSchema() error {
 
 // Close flushes and closes the store.
 func (s *Store) Close() error {
-	s.resident.close()
+	s.resident.Close()
 	if err := s.db.Close(); err != nil {
 		return fmt.Errorf("close %s: %v", s.name(), err)
 	}
