@@ -6,7 +6,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io/fs"
 	"os"
 	"path/filepath"
 	"slices"
@@ -266,43 +265,15 @@ func OpenInMemory(opts Options) (*Store, error) {
 	return newStore(db, "", opts)
 }
 
-// storeFile reports whether a folder entry is one a store makes: Badger's
-// files (LOCK comes first, then MANIFEST) and the bulk path's.
-func storeFile(name string) bool {
-	switch name {
-	case "MANIFEST", "LOCK", "KEYREGISTRY", "DISCARD", bulkMarker:
-		return true
-	}
-	return strings.HasPrefix(name, runDirPrefix) || strings.HasSuffix(name, ".sst") ||
-		strings.HasSuffix(name, ".vlog") || strings.HasSuffix(name, ".mem")
-}
-
 // checkStoreFolder refuses a folder that exists, is not empty and holds
-// neither a Badger manifest (which a store has from its first open on) nor
-// only the files a store makes.
+// neither a Badger manifest nor only the files a store makes (Badger's, the
+// bulk path's marker and runs).
 func checkStoreFolder(dir string) error {
-	entries, err := os.ReadDir(dir)
-	if errors.Is(err, fs.ErrNotExist) {
-		return nil
-	}
+	names, others, err := storedir.Foreign(dir, func(name string) bool {
+		return name == bulkMarker || strings.HasPrefix(name, runDirPrefix)
+	})
 	if err != nil {
 		return fmt.Errorf("open store %s: %w", dir, err)
-	}
-	if len(entries) == 0 {
-		return nil
-	}
-	var names []string
-	others := 0
-	for _, e := range entries {
-		if e.Name() == "MANIFEST" && e.Type().IsRegular() {
-			return nil
-		}
-		if storeFile(e.Name()) {
-			continue
-		}
-		if others++; len(names) < 3 {
-			names = append(names, e.Name())
-		}
 	}
 	if others == 0 {
 		return nil
