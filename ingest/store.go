@@ -6,7 +6,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"io/fs"
 	"os"
 	"path/filepath"
 	"slices"
@@ -19,6 +18,7 @@ import (
 	"github.com/dgraph-io/badger/v4"
 	"github.com/dgraph-io/badger/v4/options"
 	"github.com/loadwake/loadwake/ingest/internal/codec"
+	"github.com/loadwake/loadwake/ingest/internal/storedir"
 	"github.com/loadwake/loadwake/ingest/osmfile"
 	"github.com/paulmach/orb"
 	"github.com/paulmach/osm"
@@ -88,7 +88,7 @@ func DefaultOptions() Options {
 		indexCache:   32 << 20,
 		tableSize:    4 << 20,
 		compactors:   2,
-		mappedRes:    defaultMappedResident,
+		mappedRes:    storedir.DefaultMappedResident,
 	}
 }
 
@@ -209,8 +209,8 @@ type Store struct {
 	dir  string // "" in memory
 	opts Options
 
-	writeMu  sync.Mutex      // serialises Ingest
-	resident *residentKeeper // bounds the mapped files' resident pages
+	writeMu  sync.Mutex       // serialises Ingest
+	resident *storedir.Keeper // bounds the mapped files' resident pages
 	// interrupted is set while the store holds the remains of a bulk ingest
 	// that did not finish (its marker file is in dir): reads refuse it with
 	// ErrInterrupted and the next Ingest starts the bulk ingest again.
@@ -245,7 +245,7 @@ func Open(dir string, opts Options) (*Store, error) {
 	if err := checkStoreFolder(dir); err != nil {
 		return nil, err
 	}
-	removeEmptyMemtables(dir)
+	storedir.RemoveEmptyMemtables(dir)
 	db, err := badger.Open(opts.badger(dir))
 	if err != nil {
 		if strings.Contains(err.Error(), "Cannot acquire directory lock") {
@@ -265,43 +265,15 @@ func OpenInMemory(opts Options) (*Store, error) {
 	return newStore(db, "", opts)
 }
 
-// storeFile reports whether a folder entry is one a store makes: Badger's
-// files (LOCK comes first, then MANIFEST) and the bulk path's.
-func storeFile(name string) bool {
-	switch name {
-	case "MANIFEST", "LOCK", "KEYREGISTRY", "DISCARD", bulkMarker:
-		return true
-	}
-	return strings.HasPrefix(name, runDirPrefix) || strings.HasSuffix(name, ".sst") ||
-		strings.HasSuffix(name, ".vlog") || strings.HasSuffix(name, ".mem")
-}
-
 // checkStoreFolder refuses a folder that exists, is not empty and holds
-// neither a Badger manifest (which a store has from its first open on) nor
-// only the files a store makes.
+// neither a Badger manifest nor only the files a store makes (Badger's, the
+// bulk path's marker and runs).
 func checkStoreFolder(dir string) error {
-	entries, err := os.ReadDir(dir)
-	if errors.Is(err, fs.ErrNotExist) {
-		return nil
-	}
+	names, others, err := storedir.Foreign(dir, func(name string) bool {
+		return name == bulkMarker || strings.HasPrefix(name, runDirPrefix)
+	})
 	if err != nil {
 		return fmt.Errorf("open store %s: %w", dir, err)
-	}
-	if len(entries) == 0 {
-		return nil
-	}
-	var names []string
-	others := 0
-	for _, e := range entries {
-		if e.Name() == "MANIFEST" && e.Type().IsRegular() {
-			return nil
-		}
-		if storeFile(e.Name()) {
-			continue
-		}
-		if others++; len(names) < 3 {
-			names = append(names, e.Name())
-		}
 	}
 	if others == 0 {
 		return nil
@@ -326,7 +298,7 @@ func newStore(db *badger.DB, dir string, opts Options) (*Store, error) {
 		db.Close()
 		return nil, err
 	}
-	s.resident = startResidentKeeper(dir, opts.mappedRes)
+	s.resident = storedir.StartKeeper(dir, opts.mappedRes)
 	return s, nil
 }
 
@@ -373,7 +345,7 @@ func (s *Store) checkSchema() error {
 
 // Close flushes and closes the store.
 func (s *Store) Close() error {
-	s.resident.close()
+	s.resident.Close()
 	if err := s.db.Close(); err != nil {
 		return fmt.Errorf("close %s: %v", s.name(), err)
 	}

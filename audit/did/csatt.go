@@ -7,11 +7,11 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
 	"gonum.org/v1/gonum/mat"
-	"gonum.org/v1/gonum/stat/distuv"
 )
 
 // Group-time average treatment effects (Callaway & Sant'Anna 2021, J.
@@ -39,7 +39,7 @@ import (
 // delta method on the joint influence function of ATT and the treated mean.
 // Inference: cluster sums of unit influence contributions with factor
 // G/(G−1); with few treated clusters (or when asked) a multiplier bootstrap
-// with Rademacher or Webb weights by cluster, interval ATT ± 95% quantile of
+// with Rademacher or Webb weights by cluster, interval ATT ± 95% robust.Quantile of
 // |ATT*−ATT| and standard error from the bootstrap interquartile range.
 
 // csRun holds what every cell of one outcome shares.
@@ -93,7 +93,7 @@ func (r *csRun) prepareDR(cohorts map[int][]int) error {
 	r.k = 1 + len(r.p.Units[0].Covariates)
 	xpx := mat.NewSymDense(r.k, nil)
 	for i, u := range r.controls {
-		addOuter(xpx, r.covariates(u), r.cw[i])
+		robust.AddOuter(xpx, r.covariates(u), r.cw[i])
 	}
 	r.xpxInvC = mat.NewSymDense(r.k, nil)
 	if err := poisson.InvSym(r.xpxInvC, xpx); err != nil {
@@ -116,7 +116,7 @@ func (r *csRun) prepareDR(cohorts map[int][]int) error {
 			d = append(d, 0)
 			w = append(w, r.cw[i])
 		}
-		pr, hinv, err := logit(x, d, w)
+		pr, hinv, err := robust.Logit(x, d, w)
 		if err != nil {
 			return fmt.Errorf("doubly robust: propensity score of cohort %s: %w", r.p.MonthTime(g).Format("2006-01"), err)
 		}
@@ -242,60 +242,6 @@ func (r *csRun) cellDR(g, t, b int) csCell {
 	return c
 }
 
-// logit fits a weighted logistic regression of d on x by Newton-Raphson and
-// returns fitted probabilities and (Σ w p(1−p) x x')⁻¹. Perfect separation
-// (fitted probabilities within 1e-8 of 0 or 1 for the treated) is an error.
-func logit(x [][]float64, d, w []float64) ([]float64, *mat.SymDense, error) {
-	k := len(x[0])
-	beta := make([]float64, k)
-	p := make([]float64, len(x))
-	hinv := mat.NewSymDense(k, nil)
-	// start from the weighted share
-	sd, sw := 0.0, 0.0
-	for i := range d {
-		sd += w[i] * d[i]
-		sw += w[i]
-	}
-	beta[0] = math.Log(sd / (sw - sd))
-	for iter := 0; ; iter++ {
-		h := mat.NewSymDense(k, nil)
-		grad := make([]float64, k)
-		for i, xi := range x {
-			eta := 0.0
-			for a := range k {
-				eta += xi[a] * beta[a]
-			}
-			p[i] = 1 / (1 + math.Exp(-eta))
-			addOuter(h, xi, w[i]*p[i]*(1-p[i]))
-			for a := range k {
-				grad[a] += w[i] * (d[i] - p[i]) * xi[a]
-			}
-		}
-		if err := poisson.InvSym(hinv, h); err != nil {
-			return nil, nil, fmt.Errorf("logistic regression: %w", err)
-		}
-		step := make([]float64, k)
-		mat.NewVecDense(k, step).MulVec(hinv, mat.NewVecDense(k, grad))
-		maxStep := 0.0
-		for a := range k {
-			beta[a] += step[a]
-			maxStep = max(maxStep, math.Abs(step[a]))
-		}
-		if maxStep < 1e-10 {
-			break
-		}
-		if iter > 100 || !finite(maxStep) {
-			return nil, nil, errors.New("logistic regression did not converge (separation?)")
-		}
-	}
-	for i := range p {
-		if d[i] == 0 && p[i] > 1-1e-8 {
-			return nil, nil, errors.New("propensity score near 1 for a control: treated and controls separate on the covariates")
-		}
-	}
-	return p, hinv, nil
-}
-
 // csResult is the outcome of one CS run.
 type csResult struct {
 	overall  *estimate
@@ -319,15 +265,6 @@ func (a *aggregator) add(wt float64, c csCell, units, controls []int) {
 	for i, u := range controls {
 		a.phi[u] += wt * c.phiC[i]
 	}
-}
-
-// clusterSums returns Σ φ by cluster.
-func clusterSums(phi []float64, cl []int, G int) []float64 {
-	s := make([]float64, G)
-	for u, v := range phi {
-		s[cl[u]] += v
-	}
-	return s
 }
 
 // callawaySantAnna runs the group-time estimator on outcome y.
@@ -438,7 +375,7 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 		}
 		return s
 	}
-	sO := scale(clusterSums(overall.phi, cl, G))
+	sO := scale(robust.ClusterSums(overall.phi, cl, G))
 	// relative effect by the delta method: rel = θ/(M−θ)
 	theta, M := overall.est, treatedMean.est
 	relPhi := make([]float64, N)
@@ -446,23 +383,23 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 	for u := range relPhi {
 		relPhi[u] = (M*overall.phi[u] - theta*treatedMean.phi[u]) / (cf * cf)
 	}
-	sR := scale(clusterSums(relPhi, cl, G))
+	sR := scale(robust.ClusterSums(relPhi, cl, G))
 	boot := opts.Inference == InferenceBootstrap
-	var bd *bootDraws
+	var bd *robust.BootDraws
 	if boot {
-		bd = newBootDraws(rng, opts.Draws, G)
+		bd = robust.NewBootDraws(rng, opts.Draws, G)
 	}
 	res := &csResult{byCohort: byCohort}
 	e := &estimate{att: theta, treatedUnits: nTreated, controlUnits: len(r.controls)}
 	ifInfer := func(est float64, s []float64) (se, lo, hi, pv float64) {
-		return inferSums(est, s, bd, H)
+		return robust.InferSums(est, s, bd, H)
 	}
 	e.se, e.lo, e.hi, e.p = ifInfer(theta, sO)
 	if cf > 0 {
 		_, rlo, rhi, _ := ifInfer(theta/cf, sR)
 		e.hasRel, e.rel, e.relLo, e.relHi = true, theta/cf, rlo, rhi
 	}
-	name, _ := bootName(G)
+	name, _ := robust.BootName(G)
 	if boot {
 		e.method = fmt.Sprintf("multiplier-bootstrap-%s-%d", name, opts.Draws)
 	} else {
@@ -486,7 +423,7 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 	slices.Sort(gs)
 	for _, g := range gs {
 		a := cohortAgg[g]
-		se, lo, hi, _ := ifInfer(a.est, scale(clusterSums(a.phi, cl, G)))
+		se, lo, hi, _ := ifInfer(a.est, scale(robust.ClusterSums(a.phi, cl, G)))
 		e.cohorts = append(e.cohorts, cohortPoint{g: g, units: len(cohorts[g]), est: a.est, se: se, lo: lo, hi: hi})
 	}
 	// event study and pre-trend test
@@ -497,7 +434,7 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 		if !ok {
 			continue
 		}
-		s := scale(clusterSums(a.phi, cl, G))
+		s := scale(robust.ClusterSums(a.phi, cl, G))
 		se, lo, hi, _ := ifInfer(a.est, s)
 		res.events = append(res.events, eventPoint{e: ei, est: a.est, se: se, lo: lo, hi: hi})
 		if ei < 0 {
@@ -517,44 +454,11 @@ func callawaySantAnna(p *panel.Panel, y []float64, cl []int, G int, opts Options
 				v.SetSym(a, b, sum)
 			}
 		}
-		if pv, ok := leadTest(preEst, v, H); ok && H >= infer.MinTreatedForInterval {
+		if pv, ok := robust.LeadTest(preEst, v, H); ok && H >= infer.MinTreatedForInterval {
 			res.preP, res.hasPreP = pv, true
 		}
 	}
 	return res, nil
-}
-
-// inferSums turns an estimate and its cluster influence sums into a standard
-// error, 95% interval and p-value: analytic with t(H−1) quantiles (H the
-// smaller of the treated and untreated cluster counts), or, when bd is given,
-// by the multiplier bootstrap, whose interval est ± the 95% quantile of
-// |Σ v_g s_g| and p-value P(|Σ v_g s_g| ≥ |est|) come from the same draws.
-func inferSums(est float64, s []float64, bd *bootDraws, H int) (se, lo, hi, p float64) {
-	ss := 0.0
-	for _, v := range s {
-		ss += v * v
-	}
-	se = math.Sqrt(ss)
-	if bd == nil {
-		t := distuv.StudentsT{Mu: 0, Sigma: 1, Nu: float64(max(H-1, 1))}
-		c := t.Quantile(0.975)
-		return se, est - c*se, est + c*se, 2 * t.Survival(math.Abs(est/se))
-	}
-	abs := make([]float64, bd.B)
-	hits := 0
-	for i := range abs {
-		v := bd.v[i*bd.G : (i+1)*bd.G]
-		x := 0.0
-		for g, sg := range s {
-			x += v[g] * sg
-		}
-		abs[i] = math.Abs(x)
-		if abs[i] >= math.Abs(est) {
-			hits++
-		}
-	}
-	q := quantile(abs, 0.95)
-	return se, est - q, est + q, float64(hits+1) / float64(bd.B+1)
 }
 
 // csVarianceFactors returns the factors that scale the cluster influence
@@ -606,7 +510,7 @@ type placebo struct {
 }
 
 func (pl *placebo) row(layer string, shift int) []PlaceboRow {
-	if !pl.ok || !finite(pl.att) || !finite(pl.lo) || !finite(pl.hi) || !finite(pl.p) {
+	if !pl.ok || !robust.Finite(pl.att) || !robust.Finite(pl.lo) || !robust.Finite(pl.hi) || !robust.Finite(pl.p) {
 		return nil
 	}
 	return []PlaceboRow{{Layer: layer, Estimator: EstimatorCS, ShiftMonths: shift, ATT: pl.att, CI95: [2]float64{pl.lo, pl.hi}, PValue: pl.p}}
@@ -640,7 +544,7 @@ func placeboCS(p *panel.Panel, y []float64, cl []int, G int, opts Options, rng *
 			agg.add(float64(len(us))/total, r.cell(gf, us, t, gf-1), us, r.controls)
 		}
 	}
-	sums := clusterSums(agg.phi, cl, G)
+	sums := robust.ClusterSums(agg.phi, cl, G)
 	fT, fC, H, ok := csVarianceFactors(p, cl, G, len(cohorts))
 	if !ok {
 		return nil, errors.New("every cohort has one treated cluster: no placebo interval")
@@ -652,10 +556,10 @@ func placeboCS(p *panel.Panel, y []float64, cl []int, G int, opts Options, rng *
 			sums[g] *= fC
 		}
 	}
-	var bd *bootDraws
+	var bd *robust.BootDraws
 	if opts.Inference == InferenceBootstrap {
-		bd = newBootDraws(rng, opts.Draws, G)
+		bd = robust.NewBootDraws(rng, opts.Draws, G)
 	}
-	_, lo, hi, pv := inferSums(agg.est, sums, bd, H)
+	_, lo, hi, pv := robust.InferSums(agg.est, sums, bd, H)
 	return &placebo{att: agg.est, lo: lo, hi: hi, p: pv, ok: true}, nil
 }

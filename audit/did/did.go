@@ -3,11 +3,11 @@ package did
 import (
 	"context"
 	"fmt"
-	"math"
 	"math/rand/v2"
 
 	"gonum.org/v1/gonum/mat"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
 )
@@ -80,7 +80,7 @@ func did2x2(ctx context.Context, p *panel.Panel, y []float64, cohorts []int, cl 
 		}
 		d[i], w[i], rc[i], ncl[i] = r.d, r.w, r.cohort, cl[r.unit]
 	}
-	absorb := func(v []float64) { demeanGroups(v, w, rc, nc) }
+	absorb := func(v []float64) { robust.DemeanGroups(v, w, rc, nc) }
 	tUnits, cUnits := map[int]bool{}, map[int]bool{}
 	tClusters := map[int]bool{}
 	postSum, postN := 0.0, 0.0
@@ -97,12 +97,12 @@ func did2x2(ctx context.Context, p *panel.Panel, y []float64, cohorts []int, cl 
 	if len(tUnits) < 2 || len(cUnits) < 2 {
 		return nil, fmt.Errorf("%d treated and %d control units with months on both sides of treatment; need at least 2 of each", len(tUnits), len(cUnits))
 	}
-	reg := oneReg{x: x, y: d, w: w, cl: ncl, G: G, kParams: nc + 1, absorb: absorb}
-	res, err := reg.fit()
+	reg := robust.OneReg{X: x, Y: d, W: w, Cl: ncl, G: G, KParams: nc + 1, Absorb: absorb}
+	res, err := reg.Fit()
 	if err != nil {
 		return nil, err
 	}
-	e := &estimate{att: res.b, se: res.se, treatedUnits: len(tUnits), controlUnits: len(cUnits),
+	e := &estimate{att: res.B, se: res.SE, treatedUnits: len(tUnits), controlUnits: len(cUnits),
 		note: fmt.Sprintf("pooled 2x2 long differences, %d cohort(s), window %d months before and %d after, cohort intercepts", nc, opts.Window.Pre, opts.Window.Post)}
 	tc := len(tClusters)
 	if opts.useBootstrap(tc) {
@@ -119,102 +119,11 @@ func did2x2(ctx context.Context, p *panel.Panel, y []float64, cohorts []int, cl 
 			return nil, err
 		}
 	} else {
-		c := critical(tc, res.g)
-		e.lo, e.hi = res.b-c*res.se, res.b+c*res.se
-		e.p = pTwoSided(res.b/res.se, tc, res.g)
-		e.method = analyticName(tc, res.g)
+		c := robust.Critical(tc, res.G)
+		e.lo, e.hi = res.B-c*res.SE, res.B+c*res.SE
+		e.p = robust.PTwoSided(res.B/res.SE, tc, res.G)
+		e.method = robust.AnalyticName(tc, res.G)
 	}
 	e.setRelativeLinear(postSum / postN)
 	return e, nil
-}
-
-// demeanGroups removes weighted group means from v in place.
-func demeanGroups(v, w []float64, grp []int, ng int) {
-	s := make([]float64, ng)
-	sw := make([]float64, ng)
-	for i, x := range v {
-		s[grp[i]] += w[i] * x
-		sw[grp[i]] += w[i]
-	}
-	for i := range v {
-		if sw[grp[i]] > 0 {
-			v[i] -= s[grp[i]] / sw[grp[i]]
-		}
-	}
-}
-
-// oneReg is a weighted regression on one regressor after other effects
-// (intercepts, fixed effects) were absorbed by the weighted projection absorb
-// (Frisch-Waugh-Lovell). kParams counts every parameter for the CR1 factor.
-type oneReg struct {
-	x, y, w []float64
-	cl      []int
-	G       int
-	kParams int
-	absorb  func(v []float64)
-}
-
-type oneRes struct {
-	b, se float64
-	sxx   float64
-	u     []float64 // residuals
-	g     int       // clusters used
-	xt    []float64 // absorbed regressor
-}
-
-func (r *oneReg) fit() (*oneRes, error) {
-	xt := append([]float64(nil), r.x...)
-	yt := append([]float64(nil), r.y...)
-	r.absorb(xt)
-	r.absorb(yt)
-	sxx, sxy := 0.0, 0.0
-	for i := range xt {
-		sxx += r.w[i] * xt[i] * xt[i]
-		sxy += r.w[i] * xt[i] * yt[i]
-	}
-	if !(sxx > 1e-12) {
-		return nil, errSingular
-	}
-	b := sxy / sxx
-	u := yt
-	for i := range u {
-		u[i] -= b * xt[i]
-	}
-	res := &oneRes{b: b, sxx: sxx, u: u, xt: xt}
-	var g int
-	res.se, g = r.cr1(xt, u)
-	res.g = g
-	if !(res.se > 0) {
-		return nil, errSingular
-	}
-	return res, nil
-}
-
-// cr1 returns the CR1 standard error of the slope given residuals u.
-func (r *oneReg) cr1(xt, u []float64) (float64, int) {
-	sc := make([]float64, r.G)
-	used := make([]bool, r.G)
-	n := 0
-	sxx := 0.0
-	for i := range u {
-		if r.w[i] == 0 {
-			continue
-		}
-		n++
-		sc[r.cl[i]] += r.w[i] * xt[i] * u[i]
-		used[r.cl[i]] = true
-		sxx += r.w[i] * xt[i] * xt[i]
-	}
-	meat, G := 0.0, 0
-	for g, ok := range used {
-		if ok {
-			G++
-			meat += sc[g] * sc[g]
-		}
-	}
-	if G < 2 || n <= r.kParams {
-		return 0, G
-	}
-	adj := float64(G) / float64(G-1) * float64(n-1) / float64(n-r.kParams)
-	return math.Sqrt(adj*meat) / sxx, G
 }

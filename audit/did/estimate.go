@@ -7,6 +7,7 @@ import (
 	"runtime"
 	"sync"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
 )
@@ -197,7 +198,7 @@ func estimateOutcome(ctx context.Context, p *panel.Panel, o int, cl []int, G int
 		}
 		eff, ok := e.effect(name, est)
 		if !ok {
-			flag("%s: estimate not finite (too little variation); left out", est)
+			flag("%s: estimate not robust.Finite (too little variation); left out", est)
 			return
 		}
 		r.effects = append(r.effects, eff)
@@ -216,14 +217,14 @@ func estimateOutcome(ctx context.Context, p *panel.Panel, o int, cl []int, G int
 			if ev.reference {
 				row.CI95 = [2]float64{0, 0}
 			}
-			if finite(row.Estimate) && finite(row.SE) && finite(row.CI95[0]) && finite(row.CI95[1]) {
+			if robust.Finite(row.Estimate) && robust.Finite(row.SE) && robust.Finite(row.CI95[0]) && robust.Finite(row.CI95[1]) {
 				r.events = append(r.events, row)
 			}
 		}
 		for _, c := range e.cohorts {
 			row := CohortRow{Layer: name, Estimator: est, Cohort: p.MonthTime(c.g).Format("2006-01"), Units: c.units,
 				ATT: c.est, CI95: [2]float64{c.lo, c.hi}, SE: c.se}
-			if finite(row.ATT) && finite(row.SE) && finite(row.CI95[0]) && finite(row.CI95[1]) {
+			if robust.Finite(row.ATT) && robust.Finite(row.SE) && robust.Finite(row.CI95[0]) && robust.Finite(row.CI95[1]) {
 				r.cohorts = append(r.cohorts, row)
 			}
 		}

@@ -7,6 +7,7 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/infer"
 
@@ -119,7 +120,7 @@ func newESDesign(p *panel.Panel, win Window) (*esDesign, error) {
 	for r := range d.units {
 		for t := range T {
 			d.rowTilde(r, t, row)
-			addOuter(xtx, row, d.w[r])
+			robust.AddOuter(xtx, row, d.w[r])
 		}
 	}
 	d.xtxInv = mat.NewSymDense(d.K, nil)
@@ -200,13 +201,13 @@ func twfeEventStudy(ctx context.Context, d *esDesign, y []float64, cl []int, G i
 	}
 	n := nu * T
 	kParams := K + nu + T - 1
-	v, Gu := sandwichCR1(d.xtxInv, scores, used, K, n, kParams)
+	v, Gu := robust.SandwichCR1(d.xtxInv, scores, used, K, n, kParams)
 	tc := len(tClusters)
 	if tc == 0 || Gu < 2 {
 		return nil, fmt.Errorf("event study: %d treated clusters of %d; need treated units and at least 2 clusters", tc, Gu)
 	}
-	crit := critical(tc, Gu)
-	e := &estimate{treatedUnits: d.tUnits, controlUnits: d.cUnits, method: analyticName(tc, Gu)}
+	crit := robust.Critical(tc, Gu)
+	e := &estimate{treatedUnits: d.tUnits, controlUnits: d.cUnits, method: robust.AnalyticName(tc, Gu)}
 	// post average and leads
 	cvec := make([]float64, K)
 	var leads []int
@@ -233,7 +234,7 @@ func twfeEventStudy(ctx context.Context, d *esDesign, y []float64, cl []int, G i
 		return nil, errSingular
 	}
 	e.lo, e.hi = e.att-crit*e.se, e.att+crit*e.se
-	e.p = pTwoSided(e.att/e.se, tc, Gu)
+	e.p = robust.PTwoSided(e.att/e.se, tc, Gu)
 	if opts.useBootstrap(tc) {
 		if err := e.setWildRestricted(ctx, d.linearDesign(y, cl), d.fullRestriction(cvec), tc, opts, rng); err != nil {
 			return nil, err
@@ -248,7 +249,7 @@ func twfeEventStudy(ctx context.Context, d *esDesign, y []float64, cl []int, G i
 				vl.SetSym(i, j, v.At(a, leads[j]))
 			}
 		}
-		if pv, ok := leadTest(b, vl, Gu); ok {
+		if pv, ok := robust.LeadTest(b, vl, Gu); ok {
 			e.preP, e.hasPre = pv, true
 		}
 	}

@@ -10,6 +10,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
@@ -169,11 +170,11 @@ func splitOutcome(ctx context.Context, p *panel.Panel, g Grouping, o int, cl []i
 		} else {
 			ge.RelativeEffect, ge.CI95, ge.PValue, ge.Method, ge.NoInterval = e.rel, [2]float64{e.relLo, e.relHi}, e.p, e.method, e.noInterval
 		}
-		if !finite(ge.RelativeEffect) || !finite(ge.CI95[0]) || !finite(ge.CI95[1]) || !finite(ge.PValue) {
+		if !robust.Finite(ge.RelativeEffect) || !robust.Finite(ge.CI95[0]) || !robust.Finite(ge.CI95[1]) || !robust.Finite(ge.PValue) {
 			ge.RelativeEffect, ge.CI95, ge.PValue = 0, [2]float64{0, 0}, 1
 			ge.NoInterval = true
 			if ge.Note == "" {
-				ge.Note = "not estimated: no finite estimate"
+				ge.Note = "not estimated: no robust.Finite estimate"
 			}
 		}
 		sp.Groups = append(sp.Groups, ge)

@@ -4,6 +4,7 @@ import (
 	"math"
 	"testing"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/internal/reftest"
 	"gonum.org/v1/gonum/mat"
@@ -65,33 +66,33 @@ func TestWaldChi2(t *testing.T) {
 	// chi-square(2) survival at 5.991465 is 0.05 (standard table value, e.g.
 	// NIST/SEMATECH e-Handbook of Statistical Methods, table 1.3.6.7.4).
 	v := mat.NewSymDense(2, []float64{1, 0, 0, 1})
-	stat, df, p, ok := waldChi2([]float64{math.Sqrt(5.991465 / 2), math.Sqrt(5.991465 / 2)}, v)
+	stat, df, p, ok := robust.WaldChi2([]float64{math.Sqrt(5.991465 / 2), math.Sqrt(5.991465 / 2)}, v)
 	if !ok || df != 2 || math.Abs(stat-5.991465) > 1e-9 || math.Abs(p-0.05) > 1e-6 {
 		t.Errorf("Wald: stat %v df %d p %v ok %v; want 5.991465, 2, 0.05", stat, df, p, ok)
 	}
-	if _, _, _, ok := waldChi2([]float64{1, 1}, mat.NewSymDense(2, []float64{1, 1, 1, 1})); ok {
+	if _, _, _, ok := robust.WaldChi2([]float64{1, 1}, mat.NewSymDense(2, []float64{1, 1, 1, 1})); ok {
 		t.Error("singular variance accepted")
 	}
 }
 
 func TestCritical(t *testing.T) {
-	// Normal 0.975 quantile 1.959964 and t(9) 0.975 quantile 2.262157 (standard tables).
-	if c := critical(40, 100); math.Abs(c-1.959964) > 1e-6 {
+	// Normal 0.975 robust.Quantile 1.959964 and t(9) 0.975 robust.Quantile 2.262157 (standard tables).
+	if c := robust.Critical(40, 100); math.Abs(c-1.959964) > 1e-6 {
 		t.Errorf("many clusters: %v", c)
 	}
-	if c := critical(5, 10); math.Abs(c-2.262157) > 1e-6 {
+	if c := robust.Critical(5, 10); math.Abs(c-2.262157) > 1e-6 {
 		t.Errorf("10 clusters: %v", c)
 	}
 }
 
 func TestQuantileType7(t *testing.T) {
-	// R: quantile(c(1, 2, 3, 4, 10), 0.95) is 8.8 (type 7, R's default).
-	if q := quantile([]float64{10, 1, 3, 2, 4}, 0.95); math.Abs(q-8.8) > 1e-12 {
+	// R: robust.Quantile(c(1, 2, 3, 4, 10), 0.95) is 8.8 (type 7, R's default).
+	if q := robust.Quantile([]float64{10, 1, 3, 2, 4}, 0.95); math.Abs(q-8.8) > 1e-12 {
 		t.Errorf("got %v, want 8.8", q)
 	}
 }
 
-// The OLS fit below is test support only: it checks sandwichCR1, which the
+// The OLS fit below is test support only: it checks robust.SandwichCR1, which the
 // linear event study uses, against R on Petersen's data.
 
 // olsFit is a weighted least-squares fit with classic and cluster-robust
@@ -168,6 +169,6 @@ func olsCR1(x *mat.Dense, y, w []float64, cluster []int, G int) (*olsFit, error)
 	f := &olsFit{beta: beta, resid: resid, n: nEff, k: k}
 	f.vOLS = mat.NewSymDense(k, nil)
 	f.vOLS.ScaleSym(ssr/float64(nEff-k), &inv)
-	f.vCR1, f.g = sandwichCR1(&inv, scores, used, k, nEff, k)
+	f.vCR1, f.g = robust.SandwichCR1(&inv, scores, used, k, nEff, k)
 	return f, nil
 }

@@ -9,6 +9,7 @@ import (
 	"slices"
 	"strings"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/did/poisson"
 	"github.com/loadwake/loadwake/audit/infer"
 	"github.com/loadwake/loadwake/audit/panel"
@@ -245,7 +246,7 @@ func poissonScoreTest(ctx context.Context, st *stacked, G int, b float64, treate
 
 // separated diagnoses a separated Poisson layer: when the treated units'
 // counts are all zero after (or all zero before) their import, the
-// treatment coefficient is −∞ (or +∞) and no finite estimate exists.
+// treatment coefficient is −∞ (or +∞) and no robust.Finite estimate exists.
 func separated(st *stacked) error {
 	pre, post := 0.0, 0.0
 	for i, ev := range st.ev {
@@ -318,8 +319,8 @@ type ppmlStudy struct {
 // regressor per event month e in −Pre..Post−1 except the reference −1, and
 // returns each month's relative effect exp(b_e) − 1 with its 95% band (CR1, t
 // with H − 1 degrees of freedom; no band when H < infer.MinTreatedForInterval)
-// and the joint test that the leads (e < −1) are zero (leadTest with H
-// clusters). An event month whose treated counts are all zero has no finite
+// and the joint test that the leads (e < −1) are zero (robust.LeadTest with H
+// clusters). An event month whose treated counts are all zero has no robust.Finite
 // estimate; it is left out and named in the note.
 func ppmlEventStudy(st *stacked, G int, win Window, H int) (*ppmlStudy, error) {
 	sum := map[int]float64{}
@@ -394,7 +395,7 @@ func ppmlEventStudy(st *stacked, G int, win Window, H int) (*ppmlStudy, error) {
 				}
 			}
 		}
-		if p, ok := leadTest(bl, vl, H); ok {
+		if p, ok := robust.LeadTest(bl, vl, H); ok {
 			out.preP, out.hasPre = p, true
 			out.note = strings.TrimPrefix(out.note+fmt.Sprintf("; pre_trend_p: joint test of the %d leads of this event study (F with %d clusters)", len(leads), H), "; ")
 		}

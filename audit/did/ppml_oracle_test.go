@@ -11,6 +11,7 @@ import (
 
 	"gonum.org/v1/gonum/mat"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/did/poisson"
 )
 
@@ -165,7 +166,7 @@ func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 i
 				newDev += 2 * ww[i] * mu[i]
 			}
 		}
-		if !finite(newDev) {
+		if !robust.Finite(newDev) {
 			return nil, errors.New("Poisson fixed effects: the fit diverged")
 		}
 		conv := math.Abs(newDev-dev)/(math.Abs(newDev)+0.1) < 1e-13
@@ -209,7 +210,7 @@ func fitPoissonFE(y []float64, x [][]float64, fe1 []int, n1 int, fe2 []int, n2 i
 		}
 	}
 	fit.Beta = beta
-	fit.Vcov, fit.G = sandwichCR1(&h, scores, used, k, m, kParams)
+	fit.Vcov, fit.G = robust.SandwichCR1(&h, scores, used, k, m, kParams)
 	if fit.G > 1 {
 		fit.Adj = float64(fit.G) / float64(fit.G-1) * float64(m-1) / float64(m-kParams)
 	}

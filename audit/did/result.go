@@ -6,6 +6,7 @@ import (
 	"math/rand/v2"
 	"slices"
 
+	"github.com/loadwake/loadwake/audit/did/internal/robust"
 	"github.com/loadwake/loadwake/audit/panel"
 )
 
@@ -63,21 +64,21 @@ func rngFor(seed uint64, outcome, estimator string) *rand.Rand {
 	return rand.New(rand.NewPCG(seed, h.Sum64()))
 }
 
-// effect converts e to an Effect, reporting false when a number is not finite.
+// effect converts e to an Effect, reporting false when a number is not robust.Finite.
 func (e *estimate) effect(layer, est string) (Effect, bool) {
 	eff := Effect{Layer: layer, Estimator: est, ATT: e.att, SE: e.se, PValue: e.p, CI95: [2]float64{e.lo, e.hi},
 		TreatedUnits: e.treatedUnits, ControlUnits: e.controlUnits, Method: e.method, Note: e.note, NoInterval: e.noInterval}
 	for _, v := range []float64{e.att, e.se, e.p, e.lo, e.hi} {
-		if !finite(v) {
+		if !robust.Finite(v) {
 			return eff, false
 		}
 	}
-	if e.hasRel && finite(e.rel) && finite(e.relLo) && finite(e.relHi) {
+	if e.hasRel && robust.Finite(e.rel) && robust.Finite(e.relLo) && robust.Finite(e.relHi) {
 		rel := e.rel
 		eff.RelativeEffect = &rel
 		eff.CI95 = [2]float64{e.relLo, e.relHi}
 	}
-	if e.hasPre && finite(e.preP) {
+	if e.hasPre && robust.Finite(e.preP) {
 		pp := e.preP
 		eff.PreTrendP = &pp
 	}

@@ -6,7 +6,7 @@ import (
 	"slices"
 )
 
-// ErrSeparated marks an outcome whose Poisson fit has no finite estimate:
+// ErrSeparated marks an outcome whose Poisson fit has no robust.Finite estimate:
 // the import areas' counts are all zero on one side of the import
 // (separation; Correia, Guimarães & Zylkin 2021 on existence of Poisson
 // estimates).

@@ -6,7 +6,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"iter"
 	"math"
 	"math/rand/v2"
 	"os"
@@ -30,20 +29,6 @@ import (
 	"github.com/loadwake/loadwake/rules"
 )
 
-// asObjects turns an ingest reader into the object sequence ReadOSM takes.
-func asObjects(rd osmfile.Reader) iter.Seq2[osm.Object, error] {
-	return func(yield func(osm.Object, error) bool) {
-		for rd.Scan() {
-			if it := rd.Item(); it.Object != nil && !yield(it.Object, nil) {
-				return
-			}
-		}
-		if err := rd.Err(); err != nil {
-			yield(nil, err)
-		}
-	}
-}
-
 // TestReadOSMProposalOsmChange reads a real OsmChange file the osm module
 // ships (github.com/paulmach/osm v0.8.0 testdata/changeset_38162210.osc,
 // © OpenStreetMap contributors, ODbL). Expected figures from osmium-tool
@@ -58,7 +43,7 @@ func TestReadOSMProposalOsmChange(t *testing.T) {
 		t.Skipf("osm module testdata: %v", err)
 	}
 	defer rd.Close()
-	viaIngest, err := ReadOSM(ctx, path, asObjects(rd), rules.Default(), Options{})
+	viaIngest, err := ReadOSM(ctx, path, readerObjects(rd), rules.Default(), Options{})
 	if err != nil {
 		t.Fatal(err)
 	}

@@ -1,14 +1,11 @@
 package main
 
 import (
-	"context"
 	"fmt"
 	"io"
-	"iter"
 	"path/filepath"
 	"time"
 
-	"github.com/paulmach/osm"
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
@@ -16,8 +13,6 @@ import (
 	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/report"
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
-	"github.com/loadwake/loadwake/ingest/osmfile"
-	"github.com/loadwake/loadwake/rules"
 )
 
 // assessOptions holds the flags of `loadwake assess`.
@@ -94,7 +89,7 @@ func runAssess(cmd *cobra.Command, g *cli.Globals, o *assessOptions, path string
 	if err != nil {
 		return err
 	}
-	p, err := readProposal(ctx, path, r)
+	p, err := proposal.ReadFile(ctx, path, r, proposal.Options{})
 	if err != nil {
 		printPartialProfile(out, p)
 		return err
@@ -143,46 +138,5 @@ func printPartialProfile(w io.Writer, p *proposal.Proposal) {
 	fmt.Fprintf(w, "partial profile of the first %d features read before the error:\n", pr.Features)
 	for _, c := range pr.Classes {
 		fmt.Fprintf(w, "  %-28s %7d features (%d points, %d lines, %d polygons)\n", c.Class, c.Features, c.Points, c.Lines, c.Polygons)
-	}
-}
-
-// readProposal reads path as OSM XML or OsmChange (versions not needed), PBF
-// through ingest's reader, or GeoJSON; plain, gzip or bzip2, detected from the
-// content by ingest.
-func readProposal(ctx context.Context, path string, r *rules.RuleSet) (*proposal.Proposal, error) {
-	c, err := osmfile.OpenContent(path)
-	if err != nil {
-		return nil, err
-	}
-	defer c.Close()
-	switch c.Format {
-	case osmfile.FormatChangesets:
-		return nil, fmt.Errorf("%s: changeset metadata, not a proposal of map data", path)
-	case osmfile.FormatPBF:
-		rd, err := osmfile.OpenFile(ctx, path, osmfile.ReadOptions{})
-		if err != nil {
-			return nil, err
-		}
-		defer rd.Close()
-		return proposal.ReadOSM(ctx, path, objects(rd), r, proposal.Options{})
-	case osmfile.FormatXML, osmfile.FormatOsmChange:
-		// Editors' files have no versions: read them with the proposal reader.
-		return proposal.ReadOSM(ctx, path, proposal.XMLObjects(ctx, path, c), r, proposal.Options{})
-	}
-	return proposal.ReadGeoJSON(ctx, path, c, r, proposal.Options{})
-}
-
-// objects turns an ingest reader into the object sequence audit reads; the
-// reader's error (a *osmfile.ParseError naming file and position) ends it.
-func objects(rd osmfile.Reader) iter.Seq2[osm.Object, error] {
-	return func(yield func(osm.Object, error) bool) {
-		for rd.Scan() {
-			if it := rd.Item(); it.Object != nil && !yield(it.Object, nil) {
-				return
-			}
-		}
-		if err := rd.Err(); err != nil {
-			yield(nil, err)
-		}
 	}
 }

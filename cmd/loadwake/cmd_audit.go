@@ -59,7 +59,7 @@ The figures are evidence for the community's review, not a verdict.`,
 	cli.AddFileFlag(f, &o.md, "md", "the report's Markdown")
 	cli.AddOutFlag(f, &o.out, "the report (Markdown, HTML with charts, JSON, GeoJSON, panel CSV)")
 	cli.AddEstimatorFlags(f, &o.est)
-	addByFlag(cmd, &o.by)
+	cli.AddByFlag(cmd, &o.by)
 	o.plan.addFlags(f)
 	return cmd
 }
@@ -87,7 +87,7 @@ func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
 		return err
 	}
 	out := outs.Text
-	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, out); err != nil {
+	if err := cli.RunSplits(cmd, rep, o.by, &o.study, &o.est, out); err != nil {
 		return err
 	}
 	if err := printAudit(out, rep); err != nil {

@@ -11,6 +11,7 @@ import (
 
 	"github.com/loadwake/loadwake/audit/episode"
 	"github.com/loadwake/loadwake/audit/power"
+	"github.com/loadwake/loadwake/audit/proposal"
 	"github.com/loadwake/loadwake/audit/rollout"
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
@@ -123,7 +124,7 @@ func runPlan(cmd *cobra.Command, g *cli.Globals, o *planOptions, path string) er
 	if err != nil {
 		return err
 	}
-	p, err := readProposal(ctx, path, r)
+	p, err := proposal.ReadFile(ctx, path, r, proposal.Options{})
 	if err != nil {
 		return err
 	}

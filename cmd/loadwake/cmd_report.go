@@ -52,7 +52,7 @@ verdict; imports follow the community's import guidelines and local review.`,
 	cli.AddOutFlag(f, &o.out, "the report (required)")
 	cli.AddEstimatorFlags(f, &o.est)
 	f.BoolVar(&o.noChecklist, "no-checklist", false, "leave the neglected-tag checklist out")
-	addByFlag(cmd, &o.by)
+	cli.AddByFlag(cmd, &o.by)
 	return cmd
 }
 
@@ -73,7 +73,7 @@ func runReport(cmd *cobra.Command, g *cli.Globals, o *reportOptions) error {
 	if err != nil {
 		return err
 	}
-	if err := runSplits(cmd, rep, o.by, &o.study, &o.est, cmd.OutOrStdout()); err != nil {
+	if err := cli.RunSplits(cmd, rep, o.by, &o.study, &o.est, cmd.OutOrStdout()); err != nil {
 		return err
 	}
 	var cl *checklist.Checklist

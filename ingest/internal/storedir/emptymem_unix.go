@@ -1,6 +1,6 @@
 //go:build unix
 
-package ingest
+package storedir
 
 import (
 	"os"
@@ -8,14 +8,14 @@ import (
 	"syscall"
 )
 
-// removeEmptyMemtables removes the zero-length memtable files (NNNNN.mem) of
+// RemoveEmptyMemtables removes the zero-length memtable files (NNNNN.mem) of
 // the store in dir. A kill between Badger creating a memtable's write-ahead
 // file and giving it its size leaves such a file; it holds no write, but
 // Badger refuses to open a store with one ("while opening fid"). It acts only
 // while it holds the lock Badger takes on the folder (flock), so it never
 // touches the files of a store another process has open; any failure leaves
 // the folder as it was, and Badger's own open reports the problem.
-func removeEmptyMemtables(dir string) {
+func RemoveEmptyMemtables(dir string) {
 	d, err := os.Open(dir)
 	if err != nil {
 		return // no store yet

@@ -1,6 +1,6 @@
 //go:build !linux
 
-package ingest
+package storedir
 
 // On systems other than Linux the store leaves its mapped files' pages to
 // the kernel.

@@ -1,19 +1,19 @@
-package ingest
+package storedir
 
 import (
 	"sync"
 	"time"
 )
 
-// defaultMappedResident is how many bytes of the store's memory-mapped files
+// DefaultMappedResident is how many bytes of the store's memory-mapped files
 // may stay in the process's resident set before the store hands them back
-// to the kernel (Options.WithMappedResident).
-const defaultMappedResident = 256 << 20
+// to the kernel (ingest's Options.WithMappedResident).
+const DefaultMappedResident = 256 << 20
 
 // residentEvery is how often the store looks at its resident set.
 const residentEvery = 200 * time.Millisecond
 
-// residentKeeper keeps the pages of the store's memory-mapped files (Badger
+// Keeper keeps the pages of the store's memory-mapped files (Badger
 // maps its tables, value log and memtable logs) out of the process's
 // resident set once they exceed a limit: every residentEvery it reads how
 // much of the process's resident set is file pages and, above the limit,
@@ -21,15 +21,16 @@ const residentEvery = 200 * time.Millisecond
 // store's folder (pageOutMappings; Linux only, elsewhere it does nothing).
 // The files do not change by this: clean pages are dropped and read again
 // from the file when next used, dirty ones are written back first or kept.
-type residentKeeper struct {
+type Keeper struct {
 	stop chan struct{}
 	wg   sync.WaitGroup
 }
 
-// startResidentKeeper starts the keeper for the store in dir; limit <= 0
-// or dir "" (an in-memory store) starts nothing.
-func startResidentKeeper(dir string, limit int64) *residentKeeper {
-	k := &residentKeeper{stop: make(chan struct{})}
+// StartKeeper starts the keeper for the store in dir; limit <= 0 or dir ""
+// (an in-memory store) starts nothing. The caller calls Close when the store
+// closes.
+func StartKeeper(dir string, limit int64) *Keeper {
+	k := &Keeper{stop: make(chan struct{})}
 	if dir == "" || limit <= 0 || !canPageOut() {
 		return k
 	}
@@ -50,8 +51,9 @@ func startResidentKeeper(dir string, limit int64) *residentKeeper {
 	return k
 }
 
-// close stops the keeper and waits for it.
-func (k *residentKeeper) close() {
+// Close stops the keeper and waits for it; a nil Keeper does nothing, and
+// Close may be called more than once.
+func (k *Keeper) Close() {
 	if k == nil {
 		return
 	}

@@ -1,4 +1,4 @@
-package main
+package cli
 
 import (
 	"encoding/json"
@@ -11,23 +11,23 @@ import (
 	"github.com/spf13/cobra"
 
 	"github.com/loadwake/loadwake/audit"
-	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
-// addByFlag adds --by to audit and report.
-func addByFlag(cmd *cobra.Command, by *[]string) {
+// AddByFlag adds --by, the splits by area trait declared up front, to audit
+// and report.
+func AddByFlag(cmd *cobra.Command, by *[]string) {
 	cmd.Flags().StringSliceVar(by, "by", nil, "split the headline by area `TRAIT`s declared up front: intensity, activity (pre-period terciles) or a property of the --units file (repeat or comma-separate; p-values of the difference tests are Holm-adjusted across all splits)")
 }
 
 // splitSpecs turns --by into the declared splits, reading property values
 // from the units file.
-func splitSpecs(by []string, s *cli.StudyFlags) ([]audit.SplitSpec, error) {
+func splitSpecs(by []string, s *StudyFlags) ([]audit.SplitSpec, error) {
 	var out []audit.SplitSpec
 	seen := map[string]bool{}
 	for _, t := range by {
 		t = strings.TrimSpace(t)
 		if t == "" || seen[t] {
-			return nil, cli.Usagef("--by %q: give each trait once, non-empty", t)
+			return nil, Usagef("--by %q: give each trait once, non-empty", t)
 		}
 		seen[t] = true
 		if t == audit.TraitIntensity || t == audit.TraitActivity {
@@ -35,7 +35,7 @@ func splitSpecs(by []string, s *cli.StudyFlags) ([]audit.SplitSpec, error) {
 			continue
 		}
 		if !strings.HasSuffix(strings.ToLower(s.Units), "json") {
-			return nil, cli.Usagef("--by %s: a property split needs a GeoJSON --units file (computed traits: intensity, activity)", t)
+			return nil, Usagef("--by %s: a property split needs a GeoJSON --units file (computed traits: intensity, activity)", t)
 		}
 		vals, err := unitProperty(s.Units, s.UnitID, t)
 		if err != nil {
@@ -91,8 +91,10 @@ func propText(v any) string {
 	return fmt.Sprint(v)
 }
 
-// runSplits adds the declared splits to rep and prints one line per split.
-func runSplits(cmd *cobra.Command, rep *audit.Report, by []string, s *cli.StudyFlags, e *cli.EstimatorFlags, out io.Writer) error {
+// RunSplits adds the splits --by declares to rep (audit.AddSplits with the
+// estimator flags' options) and prints one line per split to out; an empty
+// by does nothing.
+func RunSplits(cmd *cobra.Command, rep *audit.Report, by []string, s *StudyFlags, e *EstimatorFlags, out io.Writer) error {
 	if len(by) == 0 {
 		return nil
 	}

@@ -1,7 +1,0 @@
-//go:build !unix
-
-package ingest
-
-// removeEmptyMemtables does nothing where flock is not available: a store
-// left with an empty memtable file by a kill needs the file removed by hand.
-func removeEmptyMemtables(string) {}
