@@ -9,6 +9,7 @@ import (
 	"github.com/loadwake/loadwake/audit"
 	"github.com/loadwake/loadwake/audit/report"
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/planrun"
 )
 
 // auditOptions holds the flags of `loadwake audit`.
@@ -19,7 +20,7 @@ type auditOptions struct {
 	md    string // write the report's Markdown here
 	est   cli.EstimatorFlags
 	by    []string // --by traits
-	plan  planAudit
+	plan  planrun.Audit
 }
 
 func newAuditCommand(g *cli.Globals) *cobra.Command {
@@ -60,12 +61,12 @@ The figures are evidence for the community's review, not a verdict.`,
 	cli.AddOutFlag(f, &o.out, "the report (Markdown, HTML with charts, JSON, GeoJSON, panel CSV)")
 	cli.AddEstimatorFlags(f, &o.est)
 	cli.AddByFlag(cmd, &o.by)
-	o.plan.addFlags(f)
+	o.plan.AddFlags(f)
 	return cmd
 }
 
 func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
-	cleanup, err := o.plan.prepare(cmd, &o.study)
+	cleanup, err := o.plan.Prepare(cmd, &o.study)
 	if err != nil {
 		return err
 	}
@@ -105,7 +106,7 @@ func runAudit(cmd *cobra.Command, g *cli.Globals, o *auditOptions) error {
 			return err
 		}
 	}
-	return o.plan.finish(cmd, in, rep, &o.est, &o.study, out, o.out)
+	return o.plan.Finish(cmd, in, rep, &o.est, &o.study, out, o.out)
 }
 
 // printAudit prints the audit's summary: what was studied, the units, the

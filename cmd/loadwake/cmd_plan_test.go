@@ -13,6 +13,7 @@ import (
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/audit/spatial"
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/planrun"
 )
 
 // TestPlanCommand plans the simulator's invented proposal over nine
@@ -96,9 +97,9 @@ func TestPlanCommand(t *testing.T) {
 				Kind string `json:"kind"`
 			} `json:"deviations"`
 		}
-		b, err := os.ReadFile(filepath.Join(eval, planEvalFile))
+		b, err := os.ReadFile(filepath.Join(eval, planrun.EvalFile))
 		if err != nil || json.Unmarshal(b, &ev) != nil {
-			t.Fatalf("%s: %v", planEvalFile, err)
+			t.Fatalf("%s: %v", planrun.EvalFile, err)
 		}
 		if ev.Randomization.Units < 3 || ev.Randomization.Units > 9 || ev.Randomization.P <= 0 || ev.Randomization.P > 1 || len(ev.Deviations) != 6 {
 			t.Errorf("plan evaluation: %+v", ev)

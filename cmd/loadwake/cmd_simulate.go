@@ -9,6 +9,7 @@ import (
 
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/planrun"
 	"github.com/spf13/cobra"
 )
 
@@ -134,7 +135,7 @@ func (o *simulateOptions) design(cmd *cobra.Command) error {
 	case o.plan != "" && (f.Changed("treated") || f.Changed("cohorts")):
 		return cli.Usagef("--plan gives the treated districts and their months: leave out --treated and --cohorts")
 	case o.plan != "":
-		if o.cfg, err = planWorld(cmd.OutOrStdout(), o.plan, o.cfg, f.Changed("months")); err != nil {
+		if o.cfg, err = planrun.World(cmd.OutOrStdout(), o.plan, o.cfg, f.Changed("months")); err != nil {
 			return err
 		}
 	case o.cfg.Treated == 0 && !f.Changed("cohorts"):

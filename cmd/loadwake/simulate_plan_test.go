@@ -18,6 +18,7 @@ import (
 	"github.com/loadwake/loadwake/audit/sim"
 	"github.com/loadwake/loadwake/audit/spatial"
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
+	"github.com/loadwake/loadwake/cmd/loadwake/internal/planrun"
 )
 
 // planRehearsal is the size of a plan rehearsal: an invented world of
@@ -39,7 +40,7 @@ type rehearsalResult struct {
 	method   string
 	treated  int
 	cohorts  map[string]int // by_cohort units per wave month (cs-att, attribute)
-	eval     planEvaluation
+	eval     planrun.Evaluation
 	out      string
 }
 
@@ -138,7 +139,7 @@ func (r planRehearsal) run(t testing.TB) rehearsalResult {
 			res.cohorts[c.Cohort] = c.Units
 		}
 	}
-	readJSON(t, filepath.Join(eval, planEvalFile), &res.eval)
+	readJSON(t, filepath.Join(eval, planrun.EvalFile), &res.eval)
 	return res
 }
 

@@ -1,4 +1,4 @@
-package main
+package planrun
 
 import (
 	"encoding/json"
@@ -17,28 +17,29 @@ import (
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
-// planEvalFile is the file --plan writes into --out beside the report.
-const planEvalFile = "plan-evaluation.json"
+// EvalFile is the file --plan writes into --out beside the report.
+const EvalFile = "plan-evaluation.json"
 
-// planAudit is the --plan part of audit: the plan's waves as the treatment,
+// Audit is the --plan part of audit: the plan's waves as the treatment,
 // the randomization-inference p-value and the deviations from the plan.
-type planAudit struct {
+type Audit struct {
 	path  string
 	draws int
 	plan  *rollout.Plan
 }
 
-func (pa *planAudit) addFlags(f *pflag.FlagSet) {
+// AddFlags adds --plan and --plan-draws to audit's flags.
+func (pa *Audit) AddFlags(f *pflag.FlagSet) {
 	f.StringVar(&pa.path, "plan", "", "`FILE` of a plan written by loadwake plan (plan.json): its waves are the treatment, the held-back wave the comparison")
 	f.IntVar(&pa.draws, "plan-draws", 199, "re-drawn assignments of the plan's randomization test (with --plan)")
 }
 
-// prepare reads the plan and makes its waves the study's treatment (a
+// Prepare reads the plan and makes its waves the study's treatment (a
 // treatment file in a temporary folder); --units defaults to the plan's
 // plan.geojson beside it, and the panel to --window-before months before the
 // first wave up to the month before the evaluation, and --k to 1. It
 // returns a cleanup.
-func (pa *planAudit) prepare(cmd *cobra.Command, s *cli.StudyFlags) (func(), error) {
+func (pa *Audit) Prepare(cmd *cobra.Command, s *cli.StudyFlags) (func(), error) {
 	if pa.path == "" {
 		return func() {}, nil
 	}
@@ -97,8 +98,8 @@ func planDefaults(cmd *cobra.Command, s *cli.StudyFlags, path string, pl *rollou
 	}
 }
 
-// planEvaluation is what --plan adds to an audit.
-type planEvaluation struct {
+// Evaluation is what --plan adds to an audit.
+type Evaluation struct {
 	Plan          string              `json:"plan"`
 	Seed          uint64              `json:"seed"`
 	Randomization *rollout.RIResult   `json:"randomization"`
@@ -107,14 +108,14 @@ type planEvaluation struct {
 	Note          string              `json:"note"`
 }
 
-// finish adds the randomization test and the deviations, prints them and,
+// Finish adds the randomization test and the deviations, prints them and,
 // with --out, writes plan-evaluation.json.
-func (pa *planAudit) finish(cmd *cobra.Command, in *cli.StudyInputs, rep *audit.Report, est *cli.EstimatorFlags, s *cli.StudyFlags, out io.Writer, outDir string) error {
+func (pa *Audit) Finish(cmd *cobra.Command, in *cli.StudyInputs, rep *audit.Report, est *cli.EstimatorFlags, s *cli.StudyFlags, out io.Writer, outDir string) error {
 	if pa.plan == nil {
 		return nil
 	}
 	pl, ctx := pa.plan, cmd.Context()
-	ev := planEvaluation{Plan: pa.path, Seed: pl.Seed, Deviations: []rollout.Deviation{},
+	ev := Evaluation{Plan: pa.path, Seed: pl.Seed, Deviations: []rollout.Deviation{},
 		Note: "The randomization p-value re-draws the waves with the plan's own procedure; it holds whatever the activity's distribution, as long as the units were loaded as planned (see the deviations)."}
 	if rep.Study != nil && rep.Study.All != nil {
 		ri, err := pl.RandomizationEffect(ctx, rep.Study.All, pl.Outcome, pa.draws, est.Options(s))
@@ -148,7 +149,7 @@ func (pa *planAudit) finish(cmd *cobra.Command, in *cli.StudyInputs, rep *audit.
 	if outDir == "" {
 		return nil
 	}
-	return cli.WriteFile(filepath.Join(outDir, planEvalFile), func(w io.Writer) error {
+	return cli.WriteFile(filepath.Join(outDir, EvalFile), func(w io.Writer) error {
 		enc := json.NewEncoder(w)
 		enc.SetIndent("", "  ")
 		return enc.Encode(ev)

@@ -1,4 +1,4 @@
-package main
+package planrun
 
 import (
 	"errors"
@@ -18,13 +18,13 @@ import (
 	"github.com/loadwake/loadwake/cmd/loadwake/internal/cli"
 )
 
-// planWorld makes cfg's import follow the plan at path, written by loadwake
+// World makes cfg's import follow the plan at path, written by loadwake
 // plan over the districts.geojson of a world of the same grid: each plan
 // unit (a district id) is loaded in its wave's month. Without monthsSet the
 // world runs to the plan's evaluation month; units whose wave starts after
 // the world's last month (the held-back wave, typically) are not loaded,
 // and a line on out says so.
-func planWorld(out io.Writer, path string, cfg sim.Config, monthsSet bool) (sim.Config, error) {
+func World(out io.Writer, path string, cfg sim.Config, monthsSet bool) (sim.Config, error) {
 	pl, err := rollout.ReadPlan(path)
 	if err != nil {
 		return cfg, err
