@@ -36,7 +36,8 @@ func WriteCSV(w io.Writer, p *Panel) error {
 		return err
 	}
 	cw := csv.NewWriter(w)
-	header := append(append([]string{}, ExportColumns...), p.Outcomes...)
+	lead := exportColumns()
+	header := append(lead, p.Outcomes...)
 	ncov := 0
 	if len(p.Units) > 0 {
 		ncov = len(p.Units[0].Covariates)
@@ -64,10 +65,10 @@ func WriteCSV(w io.Writer, p *Panel) error {
 			row[3] = strconv.FormatFloat(un.Weight, 'g', -1, 64)
 			row[4] = un.cluster()
 			for o := range p.Outcomes {
-				row[5+o] = strconv.FormatFloat(p.Y[o][u*p.Months+t], 'g', -1, 64)
+				row[len(lead)+o] = strconv.FormatFloat(p.Y[o][u*p.Months+t], 'g', -1, 64)
 			}
 			for k, c := range un.Covariates {
-				row[5+len(p.Outcomes)+k] = strconv.FormatFloat(c, 'g', -1, 64)
+				row[len(lead)+len(p.Outcomes)+k] = strconv.FormatFloat(c, 'g', -1, 64)
 			}
 			if err := cw.Write(row); err != nil {
 				return fmt.Errorf("audit: write panel csv: %w", err)
@@ -81,9 +82,9 @@ func WriteCSV(w io.Writer, p *Panel) error {
 	return nil
 }
 
-// ExportColumns are the leading columns of every file WriteCSV writes; the
-// outcome columns follow them, then the covariate columns.
-var ExportColumns = []string{"unit", "month", "first_treated", "weight", "cluster"}
+// exportColumns returns the leading columns of every file WriteCSV writes;
+// the outcome columns follow them, then the covariate columns.
+func exportColumns() []string { return []string{"unit", "month", "first_treated", "weight", "cluster"} }
 
 // CovariatePrefix starts the name of each covariate column WriteCSV writes.
 const CovariatePrefix = "covariate:"
@@ -92,8 +93,9 @@ const CovariatePrefix = "covariate:"
 // columns to read it back with: every outcome, the weight and cluster
 // columns, and every covariate. ok is false for any other header.
 func ExportDefaults(header []string) (cols Columns, ok bool) {
-	n := len(ExportColumns)
-	if len(header) < n || !slices.Equal(header[:n], ExportColumns) {
+	lead := exportColumns()
+	n := len(lead)
+	if len(header) < n || !slices.Equal(header[:n], lead) {
 		return Columns{}, false
 	}
 	cols = Columns{Unit: "unit", Time: "month", FirstTreated: "first_treated", Weight: "weight", Cluster: "cluster"}
